@@ -1,0 +1,78 @@
+"""What `stock check` says about a valid stock file: counts, ranges, E-series, gaps."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from .eseries import smallest_series
+from .parts import Inventory
+
+__all__ = ["StockSummary", "summarise"]
+
+
+@dataclass(frozen=True)
+class StockSummary:
+    """A summary of one stock file, in SI units.
+
+    Attributes
+    ----------
+    counts : dict
+        Lines per kind (``resistor``, ``transistor``).
+    resistance_min, resistance_max : float or None
+        Range of the bias-usable resistor values, ohm (links excluded).
+    series_of_value : dict
+        part_id → the coarsest IEC 60063 series the value belongs to (None: off-series).
+    zero_qty : list of str
+        part_ids with no pieces left.
+    links : list of str
+        part_ids of zero-ohm links.
+    assumptions : dict
+        transistor part_id → statements of the defaults it relies on.
+    """
+
+    file: str
+    sha256: str
+    delimiter: str
+    counts: dict[str, int]
+    resistance_min: float | None
+    resistance_max: float | None
+    series_of_value: dict[str, str | None]
+    series_counts: dict[str, int]
+    zero_qty: list[str]
+    links: list[str]
+    assumptions: dict[str, list[str]]
+    extra_columns: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict[str, object]:
+        return {
+            "file": self.file, "sha256": self.sha256,
+            "delimiter": self.delimiter, "counts": dict(self.counts),
+            "resistance_min_ohm": self.resistance_min, "resistance_max_ohm": self.resistance_max,
+            "series_of_value": dict(self.series_of_value),
+            "series_counts": dict(self.series_counts),
+            "zero_qty": list(self.zero_qty), "zero_ohm_links": list(self.links),
+            "assumptions": {k: list(v) for k, v in self.assumptions.items()},
+            "extra_columns": list(self.extra_columns),
+        }
+
+
+def summarise(inv: Inventory) -> StockSummary:
+    """Summarise a validated inventory."""
+    usable = inv.bias_resistors
+    values = [r.value_ohm for r in usable]
+    series = {r.part_id: smallest_series(r.value_ohm) for r in usable}
+    counts: dict[str, int] = {}
+    for name in series.values():
+        key = name or "off-series"
+        counts[key] = counts.get(key, 0) + 1
+    return StockSummary(
+        file=inv.path, sha256=inv.sha256, delimiter=inv.delimiter,
+        counts={"resistor": len(inv.resistors), "transistor": len(inv.transistors)},
+        resistance_min=min(values) if values else None,
+        resistance_max=max(values) if values else None,
+        series_of_value=series, series_counts=counts,
+        zero_qty=[p.part_id for p in (*inv.resistors, *inv.transistors) if p.qty == 0],
+        links=[r.part_id for r in inv.resistors if r.is_link],
+        assumptions={t.part_id: t.assumptions() for t in inv.transistors if t.assumptions()},
+        extra_columns=list(inv.extra_columns),
+    )
