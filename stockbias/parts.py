@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 __all__ = [
+    "MODEL_CARD_FIELDS",
     "TRANSISTOR_DEFAULTS",
     "Inventory",
     "Resistor",
@@ -43,6 +44,9 @@ TRANSISTOR_DEFAULTS: dict[str, tuple[float | None, str]] = {
     "xti": (3.0, "XTI 3 (SPICE default)"),
     "eg_ev": (1.11, "EG 1.11 eV (silicon, SPICE default)"),
 }
+
+#: Optional fields used only by the exponential (Gummel-Poon) model.
+MODEL_CARD_FIELDS = frozenset({"is_a", "br", "nf", "nr", "vaf_v", "xti", "eg_ev"})
 
 
 @dataclass(frozen=True)

@@ -202,7 +202,8 @@ def read_inventory(path: str | Path) -> Inventory:
         if col == "":
             continue
         if col in index:
-            problems.append(Problem(header_no, col, header[i], "column appears twice in the header"))
+            problems.append(Problem(header_no, col, header[i],
+                                    "column appears twice in the header"))
         index.setdefault(col, i)
     missing = [c.name for c in COLUMNS.values()
                if c.name in ("kind", "part_id", "qty") and c.name not in index]
@@ -221,14 +222,16 @@ def read_inventory(path: str | Path) -> Inventory:
     try:
         for line_no, fields in records:
             row = _RowReader(line_no, fields, columns, index, delimiter, problems, warnings)
+            raw_id = row.raw("part_id")
+            if raw_id and raw_id in seen_ids:
+                problems.append(Problem(line_no, "part_id", raw_id,
+                                        f"duplicate part_id (first on line {seen_ids[raw_id]})"))
+                continue
+            if raw_id:
+                seen_ids[raw_id] = line_no
             part = row.build()
             if part is None:
                 continue
-            if part.part_id in seen_ids:
-                problems.append(Problem(line_no, "part_id", part.part_id,
-                                        f"duplicate part_id (first on line {seen_ids[part.part_id]})"))
-                continue
-            seen_ids[part.part_id] = line_no
             if isinstance(part, Resistor):
                 resistors.append(part)
             else:

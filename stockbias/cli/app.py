@@ -11,9 +11,13 @@ import sys
 from collections.abc import Sequence
 from typing import Any
 
-import click
 import typer
 from typer.core import TyperGroup
+
+try:  # typer >= 0.29 carries its own copy of click
+    from typer._click.exceptions import ClickException, UsageError
+except ImportError:  # pragma: no cover - older typer depends on click
+    from click.exceptions import ClickException, UsageError  # type: ignore[no-redef]
 
 from ..errors import StockbiasError, StockFileError
 
@@ -31,23 +35,23 @@ class _OneLineErrors(TyperGroup):
         try:
             rv = super().main(args=args, prog_name=prog_name, complete_var=complete_var,
                               standalone_mode=False, **extra)
-        except click.UsageError as exc:
+        except UsageError as exc:
             where = f" ({exc.ctx.command_path})" if exc.ctx is not None else ""
-            click.echo(f"stockbias: usage error{where}: {_flatten(exc.format_message())}",
+            typer.echo(f"stockbias: usage error{where}: {_flatten(exc.format_message())}",
                        err=True)
             sys.exit(2)
         except StockFileError as exc:
             for line in exc.lines():
-                click.echo(line, err=True)
+                typer.echo(line, err=True)
             sys.exit(exc.exit_code)
         except StockbiasError as exc:
-            click.echo(exc.one_line(), err=True)
+            typer.echo(exc.one_line(), err=True)
             sys.exit(exc.exit_code)
-        except click.ClickException as exc:
-            click.echo(f"stockbias: {_flatten(exc.format_message())}", err=True)
+        except ClickException as exc:
+            typer.echo(f"stockbias: {_flatten(exc.format_message())}", err=True)
             sys.exit(exc.exit_code)
-        except click.Abort:
-            click.echo("stockbias: aborted", err=True)
+        except typer.Abort:
+            typer.echo("stockbias: aborted", err=True)
             sys.exit(130)
         code = rv if isinstance(rv, int) else 0
         if standalone_mode:

@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Annotated
 
 import typer
-from rich.console import Console
 
 from ..errors import StockFileError
+from ..render.console import make_console
 from ..render.json_out import dumps
 from ..stock_io import read_inventory
 from ..stock_summary import summarise
@@ -17,9 +18,10 @@ app = typer.Typer(help="Check and look after a stock file.", no_args_is_help=Tru
 
 @app.command("check")
 def check(
-    file: Path = typer.Argument(..., exists=True, dir_okay=False, readable=True,
-                                help="The stock CSV file."),
-    json_out: bool = typer.Option(False, "--json", help="Print only a JSON object on stdout."),
+    file: Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True,
+                                         help="The stock CSV file.")],
+    json_out: Annotated[bool, typer.Option("--json",
+                                           help="Print only a JSON object on stdout.")] = False,
 ) -> None:
     """Validate a stock file and summarise what is on the shelf."""
     try:
@@ -41,4 +43,4 @@ def check(
         return
     from ..render.stock_table import render_stock_summary
 
-    render_stock_summary(Console(), inv, summary)
+    render_stock_summary(make_console(), inv, summary)

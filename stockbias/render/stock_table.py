@@ -5,7 +5,7 @@ from __future__ import annotations
 from rich.console import Console
 from rich.table import Table
 
-from ..parts import Inventory
+from ..parts import MODEL_CARD_FIELDS, TRANSISTOR_DEFAULTS, Inventory
 from ..stock_summary import StockSummary
 from ..units import format_quantity
 
@@ -14,9 +14,10 @@ __all__ = ["render_stock_summary"]
 
 def render_stock_summary(console: Console, inv: Inventory, summary: StockSummary) -> None:
     """Print the summary of a valid stock file."""
-    delim = "semicolon (decimal commas allowed)" if inv.delimiter == ";" else "comma"
+    delim = ("semicolon-delimited (decimal commas read)" if inv.delimiter == ";"
+             else "comma-delimited")
     console.print(f"[bold]{inv.path}[/bold]: valid, {summary.counts['resistor']} resistor lines, "
-                  f"{summary.counts['transistor']} transistor lines, {delim}-delimited")
+                  f"{summary.counts['transistor']} transistor lines, {delim}")
     if summary.resistance_min is not None and summary.resistance_max is not None:
         console.print(f"Resistance range: {format_quantity(summary.resistance_min, 'ohm')} to "
                       f"{format_quantity(summary.resistance_max, 'ohm')}")
@@ -55,7 +56,17 @@ def render_stock_summary(console: Console, inv: Inventory, summary: StockSummary
     if summary.assumptions:
         console.print("[bold]Assumed where the stock file is silent[/bold] "
                       "(later analyses use these):")
-        for part_id, items in summary.assumptions.items():
-            console.print(f"  {part_id}: " + "; ".join(items))
+        grouped: dict[str, list[str]] = {}
+        card = "Gummel–Poon parameters not given (IS, BR, NF, NR, VAF, XTI, EG): SPICE " \
+               "defaults, IS from the VBE range; used by the exponential model only"
+        for t in inv.transistors:
+            for name in sorted(t.assumed, key=list(TRANSISTOR_DEFAULTS).index):
+                item = card if name in MODEL_CARD_FIELDS else TRANSISTOR_DEFAULTS[name][1]
+                if t.part_id not in grouped.setdefault(item, []):
+                    grouped[item].append(t.part_id)
+        for item, part_ids in grouped.items():
+            who = "all transistors" if len(part_ids) == len(inv.transistors) > 1 \
+                else ", ".join(part_ids)
+            console.print(f"  - {item}: {who}")
     if summary.extra_columns:
         console.print("Columns kept but not used: " + ", ".join(summary.extra_columns))

@@ -1,0 +1,216 @@
+"""The stock file reader: every parser path and every error kind (DESIGN §3, issue 2)."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import pytest
+
+from stockbias.errors import StockFileError
+from stockbias.stock_io import read_inventory
+
+SAMPLES = Path(__file__).resolve().parent.parent / "inventory_samples"
+
+HEADER = ("kind,part_id,value,tolerance_pct,power_w,qty,unit_cost,polarity,hfe_min,hfe_max,"
+          "vceo_max,ic_max,pd_max_w")
+GOOD_R = "resistor,R1,4k7,5,0.25,10,0.01,,,,,,"
+GOOD_T = "transistor,Q1,,,,10,0.05,NPN,100,300,40,200m,625mW"
+
+
+def write(tmp_path: Path, text: str, name: str = "stock.csv", encoding: str = "utf-8") -> Path:
+    path = tmp_path / name
+    path.write_bytes(text.encode(encoding))
+    return path
+
+
+def problems_of(path: Path) -> list[tuple[int, str, str, str]]:
+    with pytest.raises(StockFileError) as info:
+        read_inventory(path)
+    return [(p.line, p.column, p.text, p.message) for p in info.value.problems]
+
+
+def test_valid_file_parses_to_si_units(tmp_path: Path) -> None:
+    inv = read_inventory(write(tmp_path, f"{HEADER}\n{GOOD_R}\n{GOOD_T}\n"))
+    r = inv.resistors[0]
+    t = inv.transistors[0]
+    assert r.value_ohm == pytest.approx(4700.0, rel=1e-12)  # IEC 60062: 4k7 = 4.7 kΩ
+    assert (r.tolerance_pct, r.power_w, r.qty, r.line) == (5.0, 0.25, 10, 2)
+    assert t.polarity == "NPN"
+    assert t.ic_max == pytest.approx(0.2, rel=1e-12)
+    assert t.pd_max_w == pytest.approx(0.625, rel=1e-12)
+    assert t.line == 3
+    # DESIGN §3 defaults, common practice: VBE 0.60..0.75 V, VCE(sat) 0.2 V, TJ max 150 °C
+    assert (t.vbe_min, t.vbe_max, t.vce_sat, t.tj_max) == (0.60, 0.75, 0.2, 150.0)
+    assert {"vbe_min", "vbe_max", "icbo_a", "theta_ja", "hfe_test_ic"} <= t.assumed
+    assert math.isinf(t.vaf_v)
+
+
+def test_bom_blank_lines_comments_and_header_case(tmp_path: Path) -> None:
+    text = ("\ufeff# a comment first\n\n  KIND , Part_ID ,Value,Tolerance_pct,POWER_W,qty,"
+            "unit_cost,polarity,hfe_min,hfe_max,vceo_max,ic_max,pd_max_w\n"
+            "   # indented comment\n\n" + GOOD_R + "\n\n" + GOOD_T + "\n")
+    inv = read_inventory(write(tmp_path, text))
+    assert [r.line for r in inv.resistors] == [6]
+    assert [t.line for t in inv.transistors] == [8]
+
+
+def test_semicolon_file_with_decimal_commas(tmp_path: Path) -> None:
+    text = ("kind;part_id;value;tolerance_pct;power_w;qty;unit_cost\n"
+            "resistor;R1;4,7k;0,5;0,125;3;0,02\n")
+    inv = read_inventory(write(tmp_path, text))
+    assert inv.delimiter == ";"
+    r = inv.resistors[0]
+    assert (r.value_ohm, r.tolerance_pct, r.power_w, r.unit_cost) == pytest.approx(
+        (4700.0, 0.5, 0.125, 0.02))
+
+
+def test_decimal_comma_is_an_error_in_a_comma_file(tmp_path: Path) -> None:
+    text = 'kind,part_id,value,tolerance_pct,power_w,qty\nresistor,R1,"1,5k",5,0.25,3\n'
+    (line, column, bad, message), = problems_of(write(tmp_path, text))
+    assert (line, column, bad) == (2, "value", "1,5k")
+    assert "comma" in message
+
+
+def test_unknown_columns_are_kept_and_ignored(tmp_path: Path) -> None:
+    text = ("kind,part_id,value,tolerance_pct,power_w,qty,supplier,bin colour\n"
+            "resistor,R1,10k,1,0.1,5,Acme,blue\n")
+    inv = read_inventory(write(tmp_path, text))
+    assert inv.extra_columns == ("supplier", "bin colour")
+    assert inv.resistors[0].value_ohm == 10e3
+
+
+def test_zero_ohm_link_is_accepted_and_flagged(tmp_path: Path) -> None:
+    text = "kind,part_id,value,tolerance_pct,power_w,qty\nresistor,J1,0R,5,0.25,50\n"
+    inv = read_inventory(write(tmp_path, text))
+    assert inv.resistors[0].is_link
+    assert inv.bias_resistors == ()
+    assert any("zero-ohm link" in w[3] for w in inv.warnings)
+
+
+def test_the_reader_never_writes(tmp_path: Path) -> None:
+    path = write(tmp_path, f"{HEADER}\n{GOOD_R}\n")
+    before = (path.read_bytes(), path.stat().st_mtime_ns)
+    read_inventory(path)
+    assert (path.read_bytes(), path.stat().st_mtime_ns) == before
+
+
+@pytest.mark.parametrize(
+    ("row", "column", "text", "words"),
+    [
+        ("resistor,R1,4k7k,5,0.25,10,0.01,,,,,,", "value", "4k7k", "letter code"),
+        ("resistor,R1,10 kV,5,0.25,10,0.01,,,,,,", "value", "10 kV", "unit 'V'"),
+        ("resistor,R1,-10,5,0.25,10,0.01,,,,,,", "value", "-10", "between 1 mΩ and 10 GΩ"),
+        ("resistor,R1,20G,5,0.25,10,0.01,,,,,,", "value", "20G", "between 1 mΩ and 10 GΩ"),
+        ("resistor,R1,0.5m,5,0.25,10,0.01,,,,,,", "value", "0.5m", "between 1 mΩ and 10 GΩ"),
+        ("resistor,R1,,5,0.25,10,0.01,,,,,,", "value", "", "required field 'value'"),
+        ("resistor,R1,1k,0,0.25,10,0.01,,,,,,", "tolerance_pct", "0", "more than 0 %"),
+        ("resistor,R1,1k,51,0.25,10,0.01,,,,,,", "tolerance_pct", "51", "at most 50 %"),
+        ("resistor,R1,1k,5,0,10,0.01,,,,,,", "power_w", "0", "more than 0 W"),
+        ("resistor,R1,1k,5,-1,10,0.01,,,,,,", "power_w", "-1", "more than 0 W"),
+        ("resistor,R1,1k,5,0.25,-2,0.01,,,,,,", "qty", "-2", "whole number"),
+        ("resistor,R1,1k,5,0.25,2.5,0.01,,,,,,", "qty", "2.5", "whole number"),
+        ("resistor,R1,1k,5,0.25,ten,0.01,,,,,,", "qty", "ten", ""),
+        ("resistor,R1,1k,5,0.25,1,-0.01,,,,,,", "unit_cost", "-0.01", "negative"),
+        ("inductor,L1,1k,5,0.25,1,0.01,,,,,,", "kind", "inductor", "unknown kind"),
+        (",L1,1k,5,0.25,1,0.01,,,,,,", "kind", "", "'kind' is empty"),
+        ("resistor,,1k,5,0.25,1,0.01,,,,,,", "part_id", "", "'part_id' is empty"),
+        ("transistor,Q1,,,,1,0.05,NPX,100,300,40,0.2,0.6", "polarity", "NPX", "unknown polarity"),
+        ("transistor,Q1,,,,1,0.05,,100,300,40,0.2,0.6", "polarity", "", "'polarity' is empty"),
+        ("transistor,Q1,,,,1,0.05,NPN,300,100,40,0.2,0.6", "hfe_min", "300", "larger than hfe_max"),
+        ("transistor,Q1,,,,1,0.05,NPN,100,300,40 A,0.2,0.6", "vceo_max", "40 A", "unit 'A'"),
+        ("transistor,Q1,,,,1,0.05,NPN,100,300,40,,0.6", "ic_max", "", "'ic_max' is empty"),
+        ("transistor,Q1,,,,1,0.05,NPN,100,300,40,0.2,0", "pd_max_w", "0", "more than 0 W"),
+    ],
+)
+def test_each_error_names_line_column_and_text(tmp_path: Path, row: str, column: str, text: str,
+                                               words: str) -> None:
+    found = problems_of(write(tmp_path, f"{HEADER}\n{GOOD_R.replace('R1', 'R0')}\n{row}\n"))
+    assert len(found) == 1, found
+    line, col, bad, message = found[0]
+    assert (line, col, bad) == (3, column, text)
+    assert words in message
+
+
+def test_vbe_min_above_vbe_max(tmp_path: Path) -> None:
+    text = (HEADER + ",vbe_min,vbe_max\n" + GOOD_T + ",0.8,0.7\n")
+    (line, col, bad, message), = problems_of(write(tmp_path, text))
+    assert (line, col, bad) == (2, "vbe_min", "0.8")
+    assert "larger than vbe_max" in message
+
+
+def test_default_vbe_max_can_contradict_a_given_vbe_min(tmp_path: Path) -> None:
+    text = HEADER + ",vbe_min\n" + GOOD_T + ",0.8\n"
+    (line, col, bad, message), = problems_of(write(tmp_path, text))
+    assert (line, col, bad) == (2, "vbe_min", "0.8")
+    assert "0.75" in message
+
+
+def test_every_problem_is_collected(tmp_path: Path) -> None:
+    found = problems_of(SAMPLES / "broken_shelf.csv")
+    # one mistake per line, lines 3..11 of the deliberately broken sample
+    assert [p[0] for p in found] == list(range(3, 12))
+    assert found[5][1:3] == ("part_id", "BR-5")
+    assert "duplicate part_id (first on line 7)" in found[5][3]
+
+
+def test_duplicate_part_id(tmp_path: Path) -> None:
+    found = problems_of(write(tmp_path, f"{HEADER}\n{GOOD_R}\n{GOOD_R}\n"))
+    assert found == [(3, "part_id", "R1", "duplicate part_id (first on line 2)")]
+
+
+def test_missing_required_column(tmp_path: Path) -> None:
+    found = problems_of(write(tmp_path, "kind,part_id,value,tolerance_pct\nresistor,R1,1k,5\n"))
+    assert found[0][0] == 1
+    assert found[0][1] == "qty"
+    assert "required column 'qty'" in found[0][3]
+
+
+def test_missing_kind_specific_column(tmp_path: Path) -> None:
+    found = problems_of(write(tmp_path, "kind,part_id,value,qty\nresistor,R1,1k,5\n"))
+    assert [(f[0], f[1]) for f in found] == [(2, "tolerance_pct"), (2, "power_w")]
+
+
+def test_too_many_fields(tmp_path: Path) -> None:
+    found = problems_of(write(tmp_path, f"{HEADER}\n{GOOD_R},surplus\n"))
+    assert found[0][:3] == (2, "", "surplus")
+
+
+@pytest.mark.parametrize("text", ["", "\n\n", "# only a comment\n"])
+def test_empty_file(tmp_path: Path, text: str) -> None:
+    found = problems_of(write(tmp_path, text))
+    assert "empty" in found[0][3]
+
+
+def test_header_only(tmp_path: Path) -> None:
+    found = problems_of(write(tmp_path, HEADER + "\n"))
+    assert "no stock rows" in found[0][3]
+
+
+def test_not_utf8(tmp_path: Path) -> None:
+    path = write(tmp_path, f"{HEADER}\n{GOOD_R}\nresistor,R2,4k7,5,0.25,3,0.01,,,,,,# 50 µ\n",
+                 encoding="latin-1")
+    found = problems_of(path)
+    assert found[0][0] == 3
+    assert "not UTF-8" in found[0][3]
+
+
+def test_unterminated_quote(tmp_path: Path) -> None:
+    found = problems_of(write(tmp_path, f'{HEADER}\n{GOOD_R}\nresistor,"R2,1k,5\n'))
+    assert found[0][0] == 3
+    assert "CSV syntax" in found[0][3]
+
+
+@pytest.mark.parametrize("name", ["workshop_drawers.csv", "nearly_empty_drawer.csv",
+                                  "stockroom_e96_reels.csv"])
+def test_bundled_samples_are_valid(name: str) -> None:
+    inv = read_inventory(SAMPLES / name)
+    assert inv.resistors and inv.transistors
+
+
+def test_e96_reel_sample_is_the_whole_series() -> None:
+    # the sample claims every E96 value from 10 Ω to 1 MΩ: 5 decades × 96 + 1 (IEC 60063)
+    inv = read_inventory(SAMPLES / "stockroom_e96_reels.csv")
+    assert len(inv.resistors) == 481
+    assert min(r.value_ohm for r in inv.resistors) == 10.0
+    assert max(r.value_ohm for r in inv.resistors) == 1e6
