@@ -1,0 +1,214 @@
+"""IEC 60063 preferred-number series (E3 … E192) for resistor values.
+
+Each series is kept as integer mantissas per decade: two digits for E3 … E24
+(10 … 91), three digits for E48 … E192 (100 … 988).  Values are built from those
+integers (47 × 10**2, not 4.7 × 100.0), so 4700.0 and 0.47 come out as the floats
+nearest to the decimal values, and comparisons with parsed stock values are exact.
+
+E24 and the coarser series keep their historical values, which differ from
+round(10**(i/24), 1 decimal) at 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7 and 8.2, so they
+are written out.  E48, E96 and E192 are round(10**(i/n)) to three significant
+figures, with one exception the standard keeps: E192 has 920 where the formula
+gives 919.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+__all__ = [
+    "E3",
+    "E6",
+    "E12",
+    "E24",
+    "E48",
+    "E96",
+    "E192",
+    "SERIES_NAMES",
+    "decade_values",
+    "mantissas",
+    "nearest",
+    "series_of",
+    "series_tolerance_pct",
+    "series_values",
+    "smallest_series",
+]
+
+E3: tuple[int, ...] = (10, 22, 47)
+E6: tuple[int, ...] = (10, 15, 22, 33, 47, 68)
+E12: tuple[int, ...] = (10, 12, 15, 18, 22, 27, 33, 39, 47, 56, 68, 82)
+E24: tuple[int, ...] = (10, 11, 12, 13, 15, 16, 18, 20, 22, 24, 27, 30,
+                        33, 36, 39, 43, 47, 51, 56, 62, 68, 75, 82, 91)
+
+
+def _three_figure_series(n: int, exceptions: dict[int, int]) -> tuple[int, ...]:
+    """round(100 · 10**(i/n)) for i = 0 … n−1, with the standard's exceptions by index."""
+    values = [round(100.0 * 10.0 ** (i / n)) for i in range(n)]
+    for index, value in exceptions.items():
+        values[index] = value
+    return tuple(values)
+
+
+E48: tuple[int, ...] = _three_figure_series(48, {})
+E96: tuple[int, ...] = _three_figure_series(96, {})
+E192: tuple[int, ...] = _three_figure_series(192, {185: 920})  # formula: 919
+
+SERIES_NAMES: tuple[str, ...] = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
+
+_MANTISSAS: dict[str, tuple[int, ...]] = {
+    "E3": E3, "E6": E6, "E12": E12, "E24": E24, "E48": E48, "E96": E96, "E192": E192,
+}
+
+# Associated tolerance, percent.  IEC 60063 gives E3 only as "wider than ±20 %";
+# 40 % is the figure in use for it.  E192 serves ±0.5, ±0.25 and ±0.1 % parts;
+# the widest, 0.5 %, is returned.
+_TOLERANCE_PCT: dict[str, float] = {
+    "E3": 40.0, "E6": 20.0, "E12": 10.0, "E24": 5.0, "E48": 2.0, "E96": 1.0, "E192": 0.5,
+}
+
+
+def _check(name: str) -> str:
+    key = name.strip().upper() if isinstance(name, str) else name
+    if key not in _MANTISSAS:
+        raise ValueError(f"unknown E-series {name!r}; expected one of {', '.join(SERIES_NAMES)}")
+    return key
+
+
+def _exact(mantissa: int, exponent: int) -> float:
+    """mantissa × 10**exponent as the float nearest to the decimal value."""
+    if exponent >= 0:
+        return float(mantissa * 10**exponent)
+    return mantissa / 10**-exponent  # int / int is correctly rounded
+
+
+def _figures(key: str) -> int:
+    """Digits per mantissa: 2 for E3 … E24, 3 for E48 … E192."""
+    return len(str(_MANTISSAS[key][0]))
+
+
+def mantissas(name: str) -> tuple[int, ...]:
+    """The integer mantissas of one decade, e.g. ``(10, 22, 47)`` for E3.
+
+    Parameters
+    ----------
+    name : str
+        Series name, one of :data:`SERIES_NAMES` (case-insensitive).
+    """
+    return _MANTISSAS[_check(name)]
+
+
+def series_tolerance_pct(name: str) -> float:
+    """The tolerance a series is made for, percent (E24 -> 5.0).
+
+    E3 returns 40.0 (the standard says only "wider than ±20 %"); E192 returns 0.5,
+    the widest of its ±0.5/0.25/0.1 % grades.
+    """
+    return _TOLERANCE_PCT[_check(name)]
+
+
+def decade_values(name: str) -> tuple[float, ...]:
+    """The values of one decade as mantissas in [1, 10), e.g. E3 -> (1.0, 2.2, 4.7)."""
+    key = _check(name)
+    shift = 1 - _figures(key)
+    return tuple(_exact(m, shift) for m in _MANTISSAS[key])
+
+
+def series_values(name: str, low: float, high: float) -> np.ndarray:
+    """Every value of a series in [low, high], across decades, ascending.
+
+    Parameters
+    ----------
+    name : str
+        Series name, one of :data:`SERIES_NAMES`.
+    low, high : float
+        Inclusive bounds, ohm; 0 < low ≤ high, both finite.
+
+    Returns
+    -------
+    numpy.ndarray
+        float64 values, each the float nearest to its decimal value (4700.0, 0.47).
+    """
+    key = _check(name)
+    low, high = float(low), float(high)
+    if not (math.isfinite(low) and math.isfinite(high) and 0.0 < low <= high):
+        raise ValueError(f"need finite bounds with 0 < low <= high, got low={low!r}, high={high!r}")
+    shift = 1 - _figures(key)
+    first = math.floor(math.log10(low)) - 1
+    last = math.floor(math.log10(high)) + 1
+    values = [
+        _exact(m, decade + shift)
+        for decade in range(first, last + 1)
+        for m in _MANTISSAS[key]
+    ]
+    return np.array([v for v in values if low <= v <= high], dtype=np.float64)
+
+
+def _neighbours(key: str, value: float) -> np.ndarray:
+    """The series values in the decade of ``value`` and the decades either side."""
+    decade = math.floor(math.log10(value))
+    shift = 1 - _figures(key)
+    return np.array(
+        [_exact(m, d + shift) for d in (decade - 1, decade, decade + 1) for m in _MANTISSAS[key]],
+        dtype=np.float64,
+    )
+
+
+def _check_positive(value: float) -> float:
+    value = float(value)
+    if not (math.isfinite(value) and value > 0.0):
+        raise ValueError(f"an E-series value must be finite and > 0, got {value!r}")
+    return value
+
+
+def nearest(value: float, name: str) -> float:
+    """The series value nearest to ``value`` in log distance (ratio), any decade.
+
+    Parameters
+    ----------
+    value : float
+        Resistance, ohm; finite and > 0.
+    name : str
+        Series name, one of :data:`SERIES_NAMES`.
+
+    Returns
+    -------
+    float
+        The nearest value; 9.9 in E12 gives 10.0.  On an exact tie in ratio the
+        lower value is returned.
+    """
+    key = _check(name)
+    value = _check_positive(value)
+    candidates = _neighbours(key, value)
+    distance = np.abs(np.log(candidates / value))
+    return float(candidates[int(np.argmin(distance))])
+
+
+def series_of(value: float, *, rel_tol: float = 1e-6) -> tuple[str, ...]:
+    """Every series that contains ``value``, coarsest first.
+
+    Parameters
+    ----------
+    value : float
+        Resistance, ohm; finite and > 0 (any decade, 0.47 or 2.2e9 alike).
+    rel_tol : float, optional
+        Relative distance to a series value still counted as equal.
+
+    Returns
+    -------
+    tuple of str
+        E.g. 4700 -> ("E3", "E6", "E12", "E24", "E192") (470 is also an E192
+        value), 4750 -> ("E96", "E192"), 125 -> ().
+    """
+    value = _check_positive(value)
+    return tuple(
+        name for name in SERIES_NAMES
+        if abs(nearest(value, name) / value - 1.0) <= rel_tol
+    )
+
+
+def smallest_series(value: float, *, rel_tol: float = 1e-6) -> str | None:
+    """The coarsest series (fewest values per decade) containing ``value``, or None."""
+    found = series_of(value, rel_tol=rel_tol)
+    return found[0] if found else None
