@@ -43,6 +43,8 @@ class StockbiasError(Exception):
     """
 
     exit_code = 2
+    #: What the place inside the file is called in messages ("column" in a CSV).
+    field_label = "column"
 
     def __init__(
         self,
@@ -86,7 +88,7 @@ class StockbiasError(Exception):
             place += ": "
         elif self.line is not None:
             place = f"line {self.line}: "
-        col = f"column '{self.column}': " if self.column is not None else ""
+        col = f"{self.field_label} '{self.column}': " if self.column is not None else ""
         txt = f" (text '{self.text}')" if self.text is not None else ""
         return f"{place}{col}{self.message}{txt}"
 
@@ -104,6 +106,8 @@ class NotationError(InputError):
 
 class JobError(InputError):
     """A job file that is malformed or contradicts itself."""
+
+    field_label = "key"
 
 
 @dataclass(frozen=True)
