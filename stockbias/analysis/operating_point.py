@@ -1,0 +1,637 @@
+"""Exact DC operating point of a bias network, two device models, both polarities.
+
+Both solvers broadcast over any shape of inputs (candidates × corners ×
+samples) and return an :class:`OperatingPoint` of arrays of that shape.
+
+How a stage is solved
+---------------------
+A PNP stage is solved as the NPN stage with every voltage negated (the *NPN
+frame*: rails and node voltages multiplied by −1, currents unchanged), and
+the node voltages are negated back, so it is the exact mirror.
+
+The resistor network is linear.  It is solved by modified nodal analysis with
+one current unknown per resistor role, so that an absent optional role (a
+zero resistance) is an ideal short, stated exactly as V_a − V_b = 0, not a
+tiny resistor.  With the transistor replaced by the currents it draws (IB into
+the base, IC into the collector, IE = IB + IC out of the emitter), every node
+voltage is affine in (IB, IC); the device equations then close the system.
+
+Constant-VBE model (:func:`solve_constant_vbe`)
+    Active: VBE = vbe and IC = β·IB + (β+1)·ICBO (IC = α·IE + leakage).
+    Cut off when the active solution has IE ≤ 0 (no forward base current
+    would flow); then IE = 0, IC = ICBO, IB = −ICBO (leakage only; with no
+    leakage IB = IC = 0) and the node voltages are the real ones.
+    Saturated when the active solution has VCE < vce_sat; then VBE = vbe and
+    VCE = vce_sat, and the linear network gives the real currents (IC < β·IB).
+    The active region has closed forms per network (the fast path) and the
+    nodal solution (``method="nodal"``); they agree to rounding.
+
+Exponential model (:func:`solve_exponential`)
+    Gummel–Poon DC equations without high injection, leakage diodes or
+    parasitic resistances, VAR infinite, exactly as ngspice-39 evaluates them
+    (``bjtload.c``: base charge qb = q1 = 1/(1 − VBC/VAF), IC = (If − Ir)/qb − Ir/BR)::
+
+        If = IS·(exp(VBE/(NF·VT)) − 1),   Ir = IS·(exp(VBC/(NR·VT)) − 1)
+        IC = (If − Ir)·(1 − VBC/VAF) − Ir/BR + ICBO
+        IB = If/BF + Ir/BR − ICBO
+
+    (ICBO, optional, is a collector-to-base leakage source outside the
+    intrinsic device; ngspice has none.)  The two junction voltages are found
+    by a vectorised Newton iteration with SPICE junction-voltage limiting,
+    converged to 1e-12 V (IC to about 4e-11 relative).  ngspice adds GMIN
+    (1e-12 S) across each junction; we do not, which matters only for
+    picoampere currents in cut-off.
+
+    Region rule, consistent with the constant-VBE rule:
+
+    * cut off when the base–emitter junction is not conducting,
+      VBE < 5·NF·VT (about 0.13 V at 25 °C): the forward injection is then
+      below e⁵ ≈ 150 × IS, picoamperes for small-signal parts;
+    * saturated when the base–collector junction is forward biased enough to
+      inject at least 0.1 % of the forward current, exp(VBC/(NR·VT)) ≥
+      1e-3 · exp(VBE/(NF·VT)); for NF = NR that is VCE ≤ VT·ln 1000 ≈ 0.18 V at
+      25 °C, next to the constant-VBE rule VCE < VCE(sat) ≈ 0.2 V;
+    * active otherwise.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+
+from stockbias.analysis.device import GummelPoon, thermal_voltage
+from stockbias.topologies import (
+    FIXED_NODES,
+    TERMINAL_NODES,
+    Network,
+    get_network,
+    polarity_sign,
+    rail_voltages,
+)
+
+__all__ = [
+    "ACTIVE",
+    "CUTOFF",
+    "CUTOFF_VBE_VT",
+    "REGION_NAMES",
+    "SATURATED",
+    "SATURATION_INJECTION_RATIO",
+    "OperatingPoint",
+    "classify_exponential",
+    "region_names",
+    "solve_constant_vbe",
+    "solve_exponential",
+]
+
+ACTIVE = np.int8(0)
+SATURATED = np.int8(1)
+CUTOFF = np.int8(2)
+REGION_NAMES = ("active", "saturated", "cutoff")
+
+CUTOFF_VBE_VT = 5.0  # exponential model: cut off below VBE = 5·NF·VT
+SATURATION_INJECTION_RATIO = 1e-3  # exponential model: BC injection / BE injection
+
+_NEWTON_TOL_V = 1e-12
+_NEWTON_MAX_ITER = 200
+_EXP_ARG_MAX = 300.0
+_NODE_INDEX = {"B": 0, "C": 1, "E": 2}
+
+
+def region_names(region) -> np.ndarray:
+    """Region codes to names ``"active"``, ``"saturated"``, ``"cutoff"`` (array of str)."""
+    return np.asarray(REGION_NAMES)[np.asarray(region, dtype=np.intp)]
+
+
+@dataclass(frozen=True)
+class OperatingPoint:
+    """DC operating point of a stage; every field an array of the broadcast shape.
+
+    Currents and the junction voltages are oriented so that they are positive
+    in normal operation for either polarity: ``ic`` into the collector of an
+    NPN (out of the collector of a PNP), ``vce`` = VCE for NPN and VEC for PNP,
+    ``vbe`` = VBE or VEB.  Node voltages are signed against ground.
+
+    Attributes
+    ----------
+    network : str
+        Network name.
+    polarity : str
+        ``"NPN"`` or ``"PNP"``.
+    ic, ib, ie : ndarray
+        Collector, base and emitter currents, ampere (ie = ib + ic).
+    vb, vc, ve : ndarray
+        Node voltages, volt.
+    vce, vbe : ndarray
+        Collector–emitter and base–emitter voltages (polarity oriented), volt.
+    region : ndarray of int8
+        :data:`ACTIVE`, :data:`SATURATED` or :data:`CUTOFF`.
+    resistances : Mapping[str, ndarray]
+        Resistance of each role, ohm (0 = absent, a short).
+    resistor_currents : Mapping[str, ndarray]
+        Current in each role, ampere, oriented like the role (node_a → node_b
+        for NPN, node_b → node_a for PNP); for an absent role, the current in
+        the short.
+    supply_power : ndarray
+        Total power delivered by all supplies, watt.
+    pd : ndarray
+        Transistor dissipation VCE·IC + VBE·IB, watt.
+    """
+
+    network: str
+    polarity: str
+    ic: np.ndarray
+    ib: np.ndarray
+    ie: np.ndarray
+    vb: np.ndarray
+    vc: np.ndarray
+    ve: np.ndarray
+    vce: np.ndarray
+    vbe: np.ndarray
+    region: np.ndarray
+    resistances: Mapping[str, np.ndarray]
+    resistor_currents: Mapping[str, np.ndarray]
+    supply_power: np.ndarray
+    pd: np.ndarray
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        """Broadcast shape of every array."""
+        return self.ic.shape
+
+    @property
+    def region_name(self) -> np.ndarray:
+        """Region names as an array of str."""
+        return region_names(self.region)
+
+    def resistor_current(self, role: str) -> np.ndarray:
+        """Current in ``role``, ampere (see :attr:`resistor_currents`)."""
+        try:
+            return self.resistor_currents[role]
+        except KeyError:
+            raise ValueError(
+                f"network {self.network} has no role {role!r}; roles: {tuple(self.resistances)}"
+            ) from None
+
+    def resistor_power(self, role: str) -> np.ndarray:
+        """Dissipation of ``role``, I²·R in watt (0 for an absent role)."""
+        i = self.resistor_current(role)
+        return i * i * self.resistances[role]
+
+    @property
+    def resistor_powers(self) -> dict[str, np.ndarray]:
+        """``{"p_<role>": watt}`` for every role."""
+        return {f"p_{role}": self.resistor_power(role) for role in self.resistances}
+
+
+# --------------------------------------------------------------------------- inputs
+
+
+def _resistances(network: Network, resistances: Mapping[str, object]) -> dict[str, np.ndarray]:
+    unknown = set(resistances) - set(network.role_names)
+    if unknown:
+        raise ValueError(
+            f"network {network.name} has no role(s) {sorted(unknown)}; roles: {network.role_names}"
+        )
+    out: dict[str, np.ndarray] = {}
+    for role in network.roles:
+        if role.name not in resistances or resistances[role.name] is None:
+            if not role.optional:
+                raise ValueError(f"network {network.name}: role {role.name} is required")
+            out[role.name] = np.zeros(())
+            continue
+        value = np.asarray(resistances[role.name], dtype=float)
+        if np.any(~np.isfinite(value)) or np.any(value < 0):
+            raise ValueError(f"role {role.name}: resistance must be finite and >= 0 (ohm)")
+        if not role.optional and np.any(value == 0):
+            raise ValueError(f"role {role.name} is required and cannot be 0 ohm (a short)")
+        out[role.name] = value
+    return out
+
+
+@dataclass(frozen=True)
+class _Stage:
+    """A batch of stages flattened to 1-D, in the NPN frame."""
+
+    network: Network
+    polarity: str
+    sign: float
+    shape: tuple[int, ...]
+    r: dict[str, np.ndarray]
+    rails: dict[str, np.ndarray]  # NPN-frame voltages of the fixed nodes
+    extra: tuple[np.ndarray, ...]
+
+
+def _stage(network, resistances, polarity, vcc, vee, *extra) -> _Stage:
+    net = get_network(network)
+    sign = polarity_sign(polarity)
+    r = _resistances(net, resistances)
+    rails = rail_voltages(net, polarity, vcc, vee)
+    extra_a = [np.asarray(x, dtype=float) for x in extra]
+    arrays = [*r.values(), rails["RAIL_C"], rails["RAIL_E"], *extra_a]
+    shape = np.broadcast_shapes(*(a.shape for a in arrays))
+
+    def flat(a):
+        return np.broadcast_to(a, shape).ravel().astype(float, copy=True)
+
+    return _Stage(
+        network=net,
+        polarity="NPN" if sign > 0 else "PNP",
+        sign=sign,
+        shape=shape,
+        r={k: flat(v) for k, v in r.items()},
+        rails={k: sign * flat(v) for k, v in rails.items()},
+        extra=tuple(flat(x) for x in extra_a),
+    )
+
+
+# --------------------------------------------------------------------------- linear network
+
+
+@dataclass(frozen=True)
+class _Response:
+    """Node voltages (B, C, E) affine in the device currents: V = v0 + dv_ib·IB + dv_ic·IC."""
+
+    v0: np.ndarray  # (N, 3)
+    dv_ib: np.ndarray  # (N, 3)
+    dv_ic: np.ndarray  # (N, 3)
+
+    def voltages(self, ib, ic) -> np.ndarray:
+        return self.v0 + self.dv_ib * ib[:, None] + self.dv_ic * ic[:, None]
+
+    def junction(self, a: int, b: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Coefficients of V_a − V_b = k0 + k_ib·IB + k_ic·IC."""
+        return (
+            self.v0[:, a] - self.v0[:, b],
+            self.dv_ib[:, a] - self.dv_ib[:, b],
+            self.dv_ic[:, a] - self.dv_ic[:, b],
+        )
+
+
+def _linear_response(network: Network, r: dict[str, np.ndarray], rails: dict[str, np.ndarray]):
+    """Modified nodal analysis of the resistor network, three right-hand sides."""
+    n_batch = next(iter(rails.values())).shape[0]
+    roles = network.roles
+    size = 3 + len(roles)
+    a = np.zeros((n_batch, size, size))
+    rhs = np.zeros((n_batch, size, 3))
+    for k, role in enumerate(roles):
+        col = 3 + k
+        res = r[role.name]
+        short = res == 0.0
+        cv = np.where(short, 1.0, 1.0 / np.where(short, 1.0, res))
+        ci = np.where(short, 0.0, -1.0)
+        # KCL rows: the role's current leaves node_a and enters node_b.
+        # Branch row: cv·(V_a − V_b) + ci·I = 0 (a short when R = 0).
+        for node, s in ((role.node_a, 1.0), (role.node_b, -1.0)):
+            if node in _NODE_INDEX:
+                a[:, _NODE_INDEX[node], col] += s
+                a[:, col, _NODE_INDEX[node]] += s * cv
+            else:
+                rhs[:, col, 0] -= s * cv * rails[node]
+        a[:, col, col] = ci
+    # The device draws IB from B and IC from C and returns IE = IB + IC into E.
+    rhs[:, 0, 1] = -1.0
+    rhs[:, 2, 1] = 1.0
+    rhs[:, 1, 2] = -1.0
+    rhs[:, 2, 2] = 1.0
+    x = np.linalg.solve(a, rhs)
+    return _Response(v0=x[:, :3, 0], dv_ib=x[:, :3, 1], dv_ic=x[:, :3, 2])
+
+
+def _saturated_currents(resp: _Response, vbe, vbc):
+    """IB, IC that hold VBE = vbe and VBC = vbc (two linear equations)."""
+    p0, p1, p2 = resp.junction(0, 2)
+    q0, q1, q2 = resp.junction(0, 1)
+    det = p1 * q2 - p2 * q1
+    rb = vbe - p0
+    rc = vbc - q0
+    ib = (rb * q2 - p2 * rc) / det
+    ic = (p1 * rc - q1 * rb) / det
+    return ib, ic
+
+
+# --------------------------------------------------------------------------- assembly
+
+
+def _assemble(st: _Stage, ib, ic, vb, vc, ve, region) -> OperatingPoint:
+    net = st.network
+    v = {"B": vb, "C": vc, "E": ve, **st.rails}
+    ie = ib + ic
+    device_out = {"B": ib, "C": ic, "E": -ie}  # current leaving each node into the device
+    currents: dict[str, np.ndarray] = {}
+    for role in net.roles:
+        res = st.r[role.name]
+        short = res == 0.0
+        currents[role.name] = np.where(
+            short, 0.0, (v[role.node_a] - v[role.node_b]) / np.where(short, 1.0, res)
+        )
+    for role in net.roles:
+        short = st.r[role.name] == 0.0
+        if not role.optional or not np.any(short):
+            continue
+        node = role.node_a if role.node_a in TERMINAL_NODES else role.node_b
+        s_self = 1.0 if role.node_a == node else -1.0
+        leaving = device_out[node].copy()
+        for other in net.roles:
+            if other is role or node not in (other.node_a, other.node_b):
+                continue
+            leaving += (1.0 if other.node_a == node else -1.0) * currents[other.name]
+        currents[role.name] = np.where(short, -leaving / s_self, currents[role.name])
+    supply_power = np.zeros_like(ib)
+    for rail in FIXED_NODES:
+        out_of_rail = np.zeros_like(ib)
+        for role in net.roles:
+            if role.node_a == rail:
+                out_of_rail += currents[role.name]
+            elif role.node_b == rail:
+                out_of_rail -= currents[role.name]
+        supply_power += st.rails[rail] * out_of_rail
+    vce = vc - ve
+    vbe = vb - ve
+    pd = vce * ic + vbe * ib
+
+    def shaped(x):
+        return np.reshape(x, st.shape)
+
+    return OperatingPoint(
+        network=net.name,
+        polarity=st.polarity,
+        ic=shaped(ic),
+        ib=shaped(ib),
+        ie=shaped(ie),
+        vb=shaped(st.sign * vb),
+        vc=shaped(st.sign * vc),
+        ve=shaped(st.sign * ve),
+        vce=shaped(vce),
+        vbe=shaped(vbe),
+        region=shaped(np.asarray(region, dtype=np.int8)),
+        resistances={k: shaped(x) for k, x in st.r.items()},
+        resistor_currents={k: shaped(x) for k, x in currents.items()},
+        supply_power=shaped(supply_power),
+        pd=shaped(pd),
+    )
+
+
+# --------------------------------------------------------------------------- constant VBE
+
+
+def solve_constant_vbe(
+    network: Network | str,
+    resistances: Mapping[str, object],
+    polarity: str,
+    vcc,
+    vee,
+    beta,
+    vbe,
+    vce_sat,
+    icbo=0.0,
+    *,
+    method: Literal["closed_form", "nodal"] = "closed_form",
+) -> OperatingPoint:
+    """Operating point with the constant-VBE device model.
+
+    Parameters
+    ----------
+    network : Network or str
+        The bias network or its registry name.
+    resistances : Mapping[str, float or ndarray]
+        Resistance of each role, ohm; an optional role missing or 0 is absent (a short).
+    polarity : {"NPN", "PNP"}
+        Transistor polarity.
+    vcc : float or ndarray
+        Positive supply, volt.
+    vee : float or ndarray or None
+        Negative supply, volt, signed (< 0); used by ``dual_supply`` only.
+    beta : float or ndarray
+        Current gain β (hFE) at the temperature of interest.
+    vbe : float or ndarray
+        Base–emitter voltage magnitude in conduction, volt.
+    vce_sat : float or ndarray
+        Collector–emitter saturation voltage magnitude, volt.
+    icbo : float or ndarray
+        Collector–base leakage, ampere.
+    method : {"closed_form", "nodal"}
+        Active region from the network's closed form (fast) or from the nodal
+        solution; saturated and cut-off points always come from the nodal one.
+
+    Returns
+    -------
+    OperatingPoint
+        Arrays of the broadcast shape of all inputs.
+    """
+    st = _stage(network, resistances, polarity, vcc, vee, beta, vbe, vce_sat, icbo)
+    beta_f, vbe_f, vce_sat_f, icbo_f = st.extra
+    if np.any(~(beta_f > 0)):
+        raise ValueError("beta must be positive")
+    if np.any(~(vce_sat_f >= 0)):
+        raise ValueError("vce_sat must be >= 0 (volt)")
+    if method == "closed_form":
+        r = {name: st.r[name] for name in st.network.role_names}
+        ib, ic, vb, vc, ve = st.network.active_closed_form(
+            r, st.rails["RAIL_C"], st.rails["RAIL_E"], beta_f, vbe_f, icbo_f
+        )
+        ib, ic = np.asarray(ib, dtype=float), np.asarray(ic, dtype=float)
+        vb, vc, ve = (np.asarray(x, dtype=float) for x in (vb, vc, ve))
+        resp = None
+    elif method == "nodal":
+        resp = _linear_response(st.network, st.r, st.rails)
+        p0, p1, p2 = resp.junction(0, 2)
+        ib = (vbe_f - p0 - p2 * (beta_f + 1.0) * icbo_f) / (p1 + p2 * beta_f)
+        ic = beta_f * ib + (beta_f + 1.0) * icbo_f
+        vb, vc, ve = resp.voltages(ib, ic).T
+    else:
+        raise ValueError(f"method must be 'closed_form' or 'nodal', got {method!r}")
+
+    region = np.full(ib.shape, ACTIVE, dtype=np.int8)
+    cut = (ib + ic) <= 0.0
+    sat = ~cut & ((vc - ve) < vce_sat_f)
+    region[cut] = CUTOFF
+    region[sat] = SATURATED
+    other = cut | sat
+    if np.any(other):
+        ib, ic, vb, vc, ve = (np.array(x, dtype=float) for x in (ib, ic, vb, vc, ve))
+        if resp is None:
+            sub = {k: x[other] for k, x in st.r.items()}
+            rails = {k: x[other] for k, x in st.rails.items()}
+            resp_o = _linear_response(st.network, sub, rails)
+        else:
+            resp_o = _Response(resp.v0[other], resp.dv_ib[other], resp.dv_ic[other])
+        cut_o = cut[other]
+        ib_o = -icbo_f[other]
+        ic_o = icbo_f[other].copy()
+        if np.any(~cut_o):
+            ib_s, ic_s = _saturated_currents(
+                resp_o, vbe_f[other], vbe_f[other] - vce_sat_f[other]
+            )
+            ib_o = np.where(cut_o, ib_o, ib_s)
+            ic_o = np.where(cut_o, ic_o, ic_s)
+        ib[other], ic[other] = ib_o, ic_o
+        vb[other], vc[other], ve[other] = resp_o.voltages(ib_o, ic_o).T
+    return _assemble(st, ib, ic, vb, vc, ve, region)
+
+
+# --------------------------------------------------------------------------- exponential
+
+
+def _pnjlim(v_new, v_old, vt, v_crit):
+    """SPICE junction-voltage limiting, vectorised (keeps Newton off the exponential wall)."""
+    limit = (v_new > v_crit) & (np.abs(v_new - v_old) > 2.0 * vt)
+    arg = 1.0 + (v_new - v_old) / vt
+    from_positive = np.where(
+        arg > 0, v_old + vt * np.log(np.where(arg > 0, arg, 1.0)), v_crit
+    )
+    from_negative = vt * np.log(np.where(v_new > 0, v_new, vt) / vt)
+    limited = np.where(v_old > 0, from_positive, from_negative)
+    return np.where(limit, limited, v_new), limit
+
+
+def _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf, vt, icbo):
+    """Terminal currents IB, IC and their derivatives in (VBE, VBC)."""
+    vtf, vtr = nf * vt, nr * vt
+    ef = np.exp(np.minimum(vbe / vtf, _EXP_ARG_MAX))
+    er = np.exp(np.minimum(vbc / vtr, _EXP_ARG_MAX))
+    i_f = is_a * (ef - 1.0)
+    i_r = is_a * (er - 1.0)
+    g_f = is_a * ef / vtf
+    g_r = is_a * er / vtr
+    early = 1.0 - vbc * inv_vaf
+    ic = (i_f - i_r) * early - i_r / br + icbo
+    ib = i_f / bf + i_r / br - icbo
+    dic = (g_f * early, -g_r * early - (i_f - i_r) * inv_vaf - g_r / br)
+    dib = (g_f / bf, g_r / br)
+    return ib, ic, dib, dic
+
+
+def classify_exponential(
+    vbe,
+    vbc,
+    nf,
+    nr,
+    temp_k,
+    *,
+    cutoff_vbe_vt: float = CUTOFF_VBE_VT,
+    saturation_ratio: float = SATURATION_INJECTION_RATIO,
+) -> np.ndarray:
+    """Region of an exponential-model point from its junction voltages (NPN frame).
+
+    Parameters
+    ----------
+    vbe, vbc : float or ndarray
+        Base–emitter and base–collector voltages, volt (polarity oriented).
+    nf, nr : float or ndarray
+        Emission coefficients.
+    temp_k : float or ndarray
+        Device temperature, kelvin.
+    cutoff_vbe_vt : float
+        Cut off when VBE < cutoff_vbe_vt · NF · VT.
+    saturation_ratio : float
+        Saturated when exp(VBC/(NR·VT)) ≥ saturation_ratio · exp(VBE/(NF·VT)).
+
+    Returns
+    -------
+    ndarray of int8
+        Region codes.
+    """
+    vt = thermal_voltage(temp_k)
+    vbe = np.asarray(vbe, dtype=float)
+    vbc = np.asarray(vbc, dtype=float)
+    cut = vbe < cutoff_vbe_vt * nf * vt
+    sat = (vbc / (nr * vt) - vbe / (nf * vt)) >= np.log(saturation_ratio)
+    region = np.where(cut, CUTOFF, np.where(sat, SATURATED, ACTIVE))
+    return np.asarray(region, dtype=np.int8)
+
+
+def solve_exponential(
+    network: Network | str,
+    resistances: Mapping[str, object],
+    polarity: str,
+    vcc,
+    vee,
+    gp: GummelPoon,
+    temp_k,
+    icbo=0.0,
+    *,
+    cutoff_vbe_vt: float = CUTOFF_VBE_VT,
+    saturation_ratio: float = SATURATION_INJECTION_RATIO,
+) -> OperatingPoint:
+    """Operating point with the Gummel–Poon DC equations (see the module notes).
+
+    Parameters
+    ----------
+    network, resistances, polarity, vcc, vee
+        As in :func:`solve_constant_vbe`.
+    gp : GummelPoon
+        Device parameters at the device temperature (see
+        :func:`stockbias.analysis.device.gummel_poon_at`); fields broadcast.
+    temp_k : float or ndarray
+        Device temperature, kelvin (sets VT).
+    icbo : float or ndarray
+        Extra collector–base leakage, ampere (0 for a pure Gummel–Poon device).
+    cutoff_vbe_vt, saturation_ratio : float
+        Region thresholds, see :func:`classify_exponential`.
+
+    Returns
+    -------
+    OperatingPoint
+        Arrays of the broadcast shape of all inputs.
+
+    Raises
+    ------
+    ArithmeticError
+        If the Newton iteration does not converge (not seen in practice).
+    """
+    inv_vaf = 1.0 / np.asarray(gp.vaf, dtype=float)
+    st = _stage(
+        network, resistances, polarity, vcc, vee,
+        gp.is_a, gp.bf, gp.br, gp.nf, gp.nr, inv_vaf, temp_k, icbo,
+    )
+    is_a, bf, br, nf, nr, inv_vaf_f, temp_f, icbo_f = st.extra
+    vt = thermal_voltage(temp_f)
+    resp = _linear_response(st.network, st.r, st.rails)
+    p0, p1, p2 = resp.junction(0, 2)
+    q0, q1, q2 = resp.junction(0, 1)
+
+    # Start from the constant-VBE point with VBE at 1 mA and β = BF.
+    vbe_start = nf * vt * np.log(1e-3 / is_a)
+    ib0 = (vbe_start - p0 - p2 * (bf + 1.0) * icbo_f) / (p1 + p2 * bf)
+    ic0 = bf * ib0 + (bf + 1.0) * icbo_f
+    cut0 = (ib0 + ic0) <= 0
+    ib0 = np.where(cut0, 0.0, ib0)
+    ic0 = np.where(cut0, 0.0, ic0)
+    vbe = p0 + p1 * ib0 + p2 * ic0
+    vbc = np.minimum(q0 + q1 * ib0 + q2 * ic0, vbe - 0.1)
+
+    vcrit_f = nf * vt * np.log(nf * vt / (np.sqrt(2.0) * is_a))
+    vcrit_r = nr * vt * np.log(nr * vt / (np.sqrt(2.0) * is_a))
+    converged = False
+    for _ in range(_NEWTON_MAX_ITER):
+        ib, ic, dib, dic = _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f)
+        f1 = p0 + p1 * ib + p2 * ic - vbe
+        f2 = q0 + q1 * ib + q2 * ic - vbc
+        j11 = p1 * dib[0] + p2 * dic[0] - 1.0
+        j12 = p1 * dib[1] + p2 * dic[1]
+        j21 = q1 * dib[0] + q2 * dic[0]
+        j22 = q1 * dib[1] + q2 * dic[1] - 1.0
+        det = j11 * j22 - j12 * j21
+        d_vbe = (-f1 * j22 + f2 * j12) / det
+        d_vbc = (-f2 * j11 + f1 * j21) / det
+        vbe_new, lim_f = _pnjlim(vbe + d_vbe, vbe, nf * vt, vcrit_f)
+        vbc_new, lim_r = _pnjlim(vbc + d_vbc, vbc, nr * vt, vcrit_r)
+        step = np.maximum(np.abs(vbe_new - vbe), np.abs(vbc_new - vbc))
+        vbe, vbc = vbe_new, vbc_new
+        if np.all((step < _NEWTON_TOL_V) & ~lim_f & ~lim_r):
+            converged = True
+            break
+    if not converged:
+        raise ArithmeticError("exponential operating point: Newton iteration did not converge")
+
+    ib, ic, _, _ = _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f)
+    vb, vc, ve = resp.voltages(ib, ic).T
+    region = classify_exponential(
+        vb - ve, vb - vc, nf, nr, temp_f,
+        cutoff_vbe_vt=cutoff_vbe_vt, saturation_ratio=saturation_ratio,
+    )
+    return _assemble(st, ib, ic, vb, vc, ve, region)
