@@ -70,8 +70,9 @@ app = typer.Typer(
 
 
 def _register() -> None:
-    from . import stock_cmd
+    from . import demo_cmd, stock_cmd
 
+    app.command("demo")(demo_cmd.demo)
     app.add_typer(stock_cmd.app, name="stock")
 
 
