@@ -174,7 +174,7 @@ def write_netlist(
 def _ngspice() -> str:
     exe = shutil.which("ngspice")
     if exe is None:
-        raise SimulatorError("ngspice was not found on PATH; install it (e.g. apt-get install ngspice)")
+        raise SimulatorError("ngspice was not found on PATH; install it (apt-get install ngspice)")
     return exe
 
 

@@ -67,7 +67,7 @@ def active_constant_vbe(r, v_rail_c, v_rail_e, beta, vbe, icbo):
 DIVIDER = Network(
     name="divider",
     roles=(
-        Role("R1", "RAIL_C", "B", description="base to the collector-side rail (upper divider leg)"),
+        Role("R1", "RAIL_C", "B", description="upper divider leg, base to collector-side rail"),
         Role("R2", "B", "RAIL_E", description="base to the emitter-side rail (lower divider leg)"),
         Role("RC", "RAIL_C", "C", description="collector load"),
         Role("RE", "E", "RAIL_E", description="emitter resistor (DC feedback)"),

@@ -11,7 +11,8 @@ def active_constant_vbe(r, v_rail_c, v_rail_e, beta, vbe, icbo):
     """Active-region Q-point with constant VBE (NPN frame).
 
     IE = (VRAIL_C − VRAIL_E − VBE + RB·ICBO) / (RE + RB/(β+1)), which without
-    leakage is IB = (VCC − VBE) / (RB + (β+1)·RE); RE = 0 when absent.  Arguments as in :func:`stockbias.topologies.divider.active_constant_vbe`
+    leakage is IB = (VCC − VBE) / (RB + (β+1)·RE); RE = 0 when absent.
+    Arguments as in :func:`stockbias.topologies.divider.active_constant_vbe`
     (``r`` holds ``RB, RC, RE`` in ohm).
     """
     re = r["RE"]
