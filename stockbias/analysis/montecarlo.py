@@ -1,0 +1,107 @@
+"""Monte Carlo yield: draw boards as manufacturing varies them, test each over the environment.
+
+Each drawn board gets its own resistor values (±tol as a 3σ normal truncated at
+±tol, DESIGN §2), its own resistor tempcos (uniform within ±|tempco|), its own
+hFE and VBE (uniform in the stock ranges) and leakage (uniform 0…ICBO).  Each
+board is then evaluated at every environment corner: both supply extremes
+(and both negative-supply extremes for a dual supply) × both ambient extremes.
+A board passes when every limit holds at every one of its corners.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+
+import numpy as np
+
+from .constraints import Limit, evaluate_limits
+from .stage import StagePoint, StageSpec, evaluate
+from .statistics import YieldResult, draw_resistor_factors, draw_uniform, yield_estimate
+
+__all__ = ["MonteCarloResult", "monte_carlo"]
+
+
+@dataclass(frozen=True)
+class MonteCarloResult:
+    """Yield and the drawn boards' spread.  ``ic`` holds every board × corner value, A."""
+
+    yield_: YieldResult
+    ic: np.ndarray
+    vce: np.ndarray
+    failing: dict[str, int]
+    seed: int
+
+    def to_dict(self) -> dict[str, object]:
+        d = self.yield_.to_dict()
+        d["seed"] = self.seed
+        d["failures_by_constraint"] = dict(self.failing)
+        return d
+
+
+def _environment_corners(spec: StageSpec) -> list[dict[str, float]]:
+    vcc = (spec.vcc * (1 - spec.vcc_tol), spec.vcc * (1 + spec.vcc_tol))
+    amb = (spec.ambient_min_c, spec.ambient_max_c)
+    if spec.network.supply == "dual" and spec.vee is not None:
+        vee = (spec.vee * (1 - spec.vee_tol), spec.vee * (1 + spec.vee_tol))
+    else:
+        vee = (None,)
+    return [{"vcc": a, "vee": b, "ambient": c}
+            for a, b, c in itertools.product(sorted(set(vcc)), sorted(set(vee), key=str),
+                                             sorted(set(amb)))]
+
+
+def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int,
+                rng: np.random.Generator, *, seed: int = 0,
+                tempco_ppm: dict[str, float] | None = None) -> MonteCarloResult:
+    """Draw ``samples`` boards and test each at every environment corner.
+
+    Parameters
+    ----------
+    spec : StageSpec
+        One stage (scalar).
+    limits : list of Limit
+        The constraints (``non_active_corners`` and ``vceo_needed`` are handled here).
+    samples : int
+        Number of boards.
+    rng : numpy.random.Generator
+    tempco_ppm : dict, optional
+        role → |tempco| in ppm/°C (drawn uniform in ±); default none.
+    """
+    n = int(samples)
+    d = spec.device
+    roles = list(spec.resistors)
+    factors = {role: draw_resistor_factors(rng, 100 * float(spec.resistors[role].tol), n)
+               for role in roles}
+    tempco = {role: draw_uniform(rng, -abs((tempco_ppm or {}).get(role, 0.0)),
+                                 abs((tempco_ppm or {}).get(role, 0.0)), n) * 1e-6
+              for role in roles}
+    hfe = draw_uniform(rng, float(d.hfe_min), float(d.hfe_max), n)
+    vbe = draw_uniform(rng, float(d.vbe_min), float(d.vbe_max), n)
+    icbo = draw_uniform(rng, 0.0, float(d.icbo_a), n)
+    corners = _environment_corners(spec)
+    m = len(corners)
+    vcc = np.array([c["vcc"] for c in corners])[None, :]
+    amb = np.array([c["ambient"] for c in corners], dtype=float)[None, :]
+    vee = None if corners[0]["vee"] is None else np.array([c["vee"] for c in corners])[None, :]
+    r = {role: float(spec.resistors[role].value) * factors[role][:, None]
+         * (1 + tempco[role][:, None] * (amb - 25.0)) for role in roles}
+    point = StagePoint(vcc=vcc, vee=vee, r=r, hfe=hfe[:, None], vbe=vbe[:, None],
+                       icbo=icbo[:, None], ambient_c=amb)
+    ev = evaluate(spec, point)
+    q = dict(ev.quantities)
+    q["non_active_corners"] = (ev.op.region != 0).astype(float)
+    q["vceo_needed"] = np.zeros((n, m))
+    low = {k: np.min(v, axis=1) for k, v in q.items() if np.ndim(v) == 2}
+    high = {k: np.max(v, axis=1) for k, v in q.items() if np.ndim(v) == 2}
+    checked = [lim for lim in limits if lim.quantity in low and lim.name != "vceo"]
+    margins = evaluate_limits(checked, low, high)
+    ok = np.ones(n, dtype=bool)
+    failing = {}
+    for name, marg in margins.items():
+        bad = marg < 0
+        failing[name] = int(np.count_nonzero(bad))
+        ok &= ~bad
+    failing = {k: v for k, v in failing.items() if v}
+    return MonteCarloResult(yield_=yield_estimate(ok), ic=np.asarray(q["ic"]),
+                            vce=np.asarray(q["vce"]), failing=failing, seed=seed)

@@ -1,0 +1,399 @@
+"""A bias stage as the analysis sees it, and its evaluation at points of the tolerance box.
+
+A :class:`StageSpec` holds everything that sets the operating point: the
+network, the device data (25 °C stock data), each resistor's nominal value
+with its tolerance and tempco drift, the supply rails with their tolerances,
+the ambient range and the device model.  Fields may be arrays over
+*candidates* (the search evaluates thousands of stages at once).
+
+A *point* of the tolerance box is a :class:`StagePoint`: physical values of
+every varied parameter (supply, each resistor, hFE and VBE at 25 °C, ICBO at
+25 °C, ambient).  :func:`evaluate` solves the stage at any broadcast array of
+points and returns an :class:`Evaluation` with the operating point and what
+follows from it (dissipations, junction temperature, small-signal figures).
+
+Axes of the tolerance box (DESIGN §2, "Extreme value analysis"):
+
+=============  ==========================================================
+``vcc``        VCC·(1 ± tol)
+``vee``        VEE·(1 ± tol), ``dual_supply`` only
+``R:<role>``   R·(1 ± tol)·(1 ± |tempco|·max|T − 25 °C|) — the tempco is
+               taken as ± (either sign), so its drift widens the band
+``hfe``        hFE min … max at 25 °C, moved to temperature with
+               (T/298.15 K)^XTB
+``vbe``        VBE min … max at 25 °C, moved with the VBE tempco
+               (−2 mV/°C, common practice); for the exponential model the
+               VBE range becomes an IS range at the hFE test current
+``icbo``       0 … ICBO(25 °C), doubling every 10 °C
+``ambient``    ambient min … max, °C
+=============  ==========================================================
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from ..topologies import Network, get_network
+from . import device
+from .operating_point import ACTIVE, OperatingPoint, solve_constant_vbe, solve_exponential
+from .small_signal import (
+    ce_voltage_gain,
+    collector_feedback_gain,
+    collector_feedback_input_resistance,
+    input_resistance,
+    parallel,
+    r_o,
+    r_pi,
+    transconductance,
+)
+
+__all__ = [
+    "AXIS_NOMINAL_RULE",
+    "DeviceSpec",
+    "Evaluation",
+    "ResistorSpec",
+    "StagePoint",
+    "StageSpec",
+    "evaluate",
+]
+
+#: How the nominal point is chosen (DESIGN §3 "Results").
+AXIS_NOMINAL_RULE = {
+    "vcc": "nominal supply",
+    "vee": "nominal supply",
+    "R": "nominal value",
+    "hfe": "geometric mean of the hFE range",
+    "vbe": "middle of the VBE range",
+    "icbo": "half the 25 °C leakage",
+    "ambient": "25 °C, or the middle of the ambient range when it excludes 25 °C",
+}
+
+
+@dataclass(frozen=True)
+class ResistorSpec:
+    """One resistor role.  value : ohm; tol, drift : fractions (0.05 = ±5 %)."""
+
+    value: float | np.ndarray
+    tol: float | np.ndarray
+    drift: float | np.ndarray = 0.0
+
+    @property
+    def low(self) -> np.ndarray:
+        return np.asarray(self.value) * (1 - np.asarray(self.tol)) * (1 - np.asarray(self.drift))
+
+    @property
+    def high(self) -> np.ndarray:
+        return np.asarray(self.value) * (1 + np.asarray(self.tol)) * (1 + np.asarray(self.drift))
+
+
+@dataclass(frozen=True)
+class DeviceSpec:
+    """Transistor data at 25 °C (see :class:`stockbias.parts.Transistor`), arrays allowed."""
+
+    polarity: str
+    hfe_min: float | np.ndarray
+    hfe_max: float | np.ndarray
+    vbe_min: float | np.ndarray = 0.60
+    vbe_max: float | np.ndarray = 0.75
+    vce_sat: float | np.ndarray = 0.2
+    icbo_a: float | np.ndarray = 0.0
+    hfe_test_ic: float | np.ndarray = 1e-3
+    xtb: float | np.ndarray = 1.5
+    vbe_tempco: float = device.VBE_TEMPCO_DEFAULT
+    is_a: float | np.ndarray | None = None
+    br: float | np.ndarray = 1.0
+    nf: float | np.ndarray = 1.0
+    nr: float | np.ndarray = 1.0
+    vaf_v: float | np.ndarray = math.inf
+    xti: float | np.ndarray = 3.0
+    eg_ev: float | np.ndarray = 1.11
+    theta_ja: float | np.ndarray = math.nan  # °C/W; NaN: derived from the PD rating
+    tj_max: float | np.ndarray = 150.0
+    pd_max_w: float | np.ndarray = math.inf
+    ic_max: float | np.ndarray = math.inf
+    vceo_max: float | np.ndarray = math.inf
+
+    @classmethod
+    def from_transistor(cls, t: object) -> DeviceSpec:
+        """Build from a :class:`stockbias.parts.Transistor` row."""
+        names = [f.name for f in cls.__dataclass_fields__.values() if f.name != "vbe_tempco"]
+        values = {n: getattr(t, n) for n in names}
+        if values["theta_ja"] is None:
+            values["theta_ja"] = math.nan
+        return cls(**values)
+
+    @property
+    def theta_ja_effective(self) -> np.ndarray:
+        """θJA, °C/W; where unknown, (TJ max − 25 °C)/PD max (linear derating assumed)."""
+        theta = np.asarray(self.theta_ja, dtype=float)
+        derived = (np.asarray(self.tj_max, dtype=float) - 25.0) / np.asarray(self.pd_max_w)
+        return np.where(np.isnan(theta), derived, theta)
+
+
+@dataclass(frozen=True)
+class StagePoint:
+    """Physical values of the varied parameters (arrays broadcast together).
+
+    vcc, vee : V; r : role → ohm; hfe, vbe, icbo : at 25 °C (–, V, A); ambient_c : °C.
+    """
+
+    vcc: np.ndarray
+    vee: np.ndarray | None
+    r: Mapping[str, np.ndarray]
+    hfe: np.ndarray
+    vbe: np.ndarray
+    icbo: np.ndarray
+    ambient_c: np.ndarray
+
+
+@dataclass(frozen=True)
+class StageSpec:
+    """Everything that sets a stage's operating point (arrays over candidates allowed).
+
+    Attributes
+    ----------
+    network : Network
+    resistors : Mapping[str, ResistorSpec]
+        Present roles only; a missing optional role is absent (a short).
+    device : DeviceSpec
+    vcc : float
+        Positive supply, V.  vcc_tol : fraction.
+    vee : float or None
+        Negative supply, V (signed), ``dual_supply`` only.  vee_tol : fraction.
+    ambient_min_c, ambient_max_c : float
+        Ambient range, °C.
+    model : {"constant_vbe", "exponential"}
+    load : float
+        AC load on the collector, ohm (inf: none).
+    re_bypassed : bool
+        RE fully bypassed for AC.
+    """
+
+    network: Network
+    resistors: Mapping[str, ResistorSpec]
+    device: DeviceSpec
+    vcc: float
+    vcc_tol: float = 0.0
+    vee: float | None = None
+    vee_tol: float = 0.0
+    ambient_min_c: float = 25.0
+    ambient_max_c: float = 25.0
+    model: str = "constant_vbe"
+    load: float = math.inf
+    re_bypassed: bool = True
+    names: Mapping[str, str] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "network", get_network(self.network))
+        missing = set(self.network.required_roles) - set(self.resistors)
+        if missing:
+            raise ValueError(f"network {self.network.name} needs roles {sorted(missing)}")
+        if self.network.supply == "dual" and self.vee is None:
+            raise ValueError("dual_supply needs a negative supply")
+        if self.model not in ("constant_vbe", "exponential"):
+            raise ValueError(f"unknown model {self.model!r}")
+
+    @property
+    def polarity(self) -> str:
+        return self.device.polarity
+
+    @property
+    def nominal_ambient_c(self) -> float:
+        if self.ambient_min_c <= 25.0 <= self.ambient_max_c:
+            return 25.0
+        return 0.5 * (self.ambient_min_c + self.ambient_max_c)
+
+    def axes(self) -> tuple[str, ...]:
+        """Names of the axes that actually vary for this stage."""
+        out = ["vcc"] if np.any(np.asarray(self.vcc_tol) > 0) else []
+        if self.network.supply == "dual" and np.any(np.asarray(self.vee_tol) > 0):
+            out.append("vee")
+        out += [f"R:{role}" for role, spec in self.resistors.items()
+                if np.any(np.asarray(spec.tol) + np.asarray(spec.drift) > 0)]
+        if np.any(np.asarray(self.device.hfe_max) > np.asarray(self.device.hfe_min)):
+            out.append("hfe")
+        if np.any(np.asarray(self.device.vbe_max) > np.asarray(self.device.vbe_min)):
+            out.append("vbe")
+        if np.any(np.asarray(self.device.icbo_a) > 0):
+            out.append("icbo")
+        if self.ambient_max_c > self.ambient_min_c:
+            out.append("ambient")
+        return tuple(out)
+
+    def axis_range(self, axis: str) -> tuple[np.ndarray, np.ndarray]:
+        """(low, high) physical values of an axis."""
+        d = self.device
+        if axis == "vcc":
+            v = np.asarray(self.vcc, dtype=float)
+            return v * (1 - np.asarray(self.vcc_tol)), v * (1 + np.asarray(self.vcc_tol))
+        if axis == "vee":  # signed negative: "low" is the smaller magnitude
+            v = np.asarray(self.vee, dtype=float)
+            return v * (1 - np.asarray(self.vee_tol)), v * (1 + np.asarray(self.vee_tol))
+        if axis.startswith("R:"):
+            spec = self.resistors[axis[2:]]
+            return spec.low, spec.high
+        if axis == "hfe":
+            return np.asarray(d.hfe_min, dtype=float), np.asarray(d.hfe_max, dtype=float)
+        if axis == "vbe":
+            return np.asarray(d.vbe_min, dtype=float), np.asarray(d.vbe_max, dtype=float)
+        if axis == "icbo":
+            return np.zeros_like(np.asarray(d.icbo_a, dtype=float)), np.asarray(d.icbo_a,
+                                                                                 dtype=float)
+        if axis == "ambient":
+            return np.asarray(self.ambient_min_c, dtype=float), np.asarray(self.ambient_max_c,
+                                                                           dtype=float)
+        raise KeyError(axis)
+
+    def nominal_point(self) -> StagePoint:
+        """The nominal point of DESIGN §3."""
+        d = self.device
+        return StagePoint(
+            vcc=np.asarray(self.vcc, dtype=float),
+            vee=None if self.vee is None else np.asarray(self.vee, dtype=float),
+            r={role: np.asarray(s.value, dtype=float) for role, s in self.resistors.items()},
+            hfe=np.sqrt(np.asarray(d.hfe_min, dtype=float) * np.asarray(d.hfe_max)),
+            vbe=0.5 * (np.asarray(d.vbe_min, dtype=float) + np.asarray(d.vbe_max)),
+            icbo=0.5 * np.asarray(d.icbo_a, dtype=float),
+            ambient_c=np.asarray(self.nominal_ambient_c, dtype=float),
+        )
+
+    def point_from(self, values: Mapping[str, np.ndarray],
+                   base: StagePoint | None = None) -> StagePoint:
+        """A point with the given axes set (physical values), the rest from ``base`` or nominal."""
+        p = base or self.nominal_point()
+        r = dict(p.r)
+        kw: dict[str, object] = {}
+        for axis, v in values.items():
+            if axis.startswith("R:"):
+                r[axis[2:]] = np.asarray(v, dtype=float)
+            elif axis == "ambient":
+                kw["ambient_c"] = np.asarray(v, dtype=float)
+            else:
+                kw[axis] = np.asarray(v, dtype=float)
+        return replace(p, r=r, **kw)  # type: ignore[arg-type]
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """A stage solved at an array of points.
+
+    Attributes
+    ----------
+    op : OperatingPoint
+        Currents (A), node voltages (V), region, dissipations (W).
+    quantities : dict
+        ``ic, ib, ie, vb, vc, ve, vce, supply_power, pd, p_<role>, tj`` (SI, °C for tj),
+        and, NaN outside the active region, ``gain`` (V/V, signed), ``rin`` (ohm), ``gm``.
+    beta, temp_c : ndarray
+        Current gain and device temperature at each point.
+    """
+
+    op: OperatingPoint
+    quantities: dict[str, np.ndarray]
+    beta: np.ndarray
+    temp_c: np.ndarray
+
+    @property
+    def region(self) -> np.ndarray:
+        return self.op.region
+
+    @property
+    def active(self) -> np.ndarray:
+        return self.op.region == ACTIVE
+
+
+def _device_temperature_terms(spec: StageSpec, point: StagePoint, temp_c: np.ndarray):
+    d = spec.device
+    t_k = temp_c + device.CELSIUS_TO_KELVIN
+    beta = device.beta_at(point.hfe, t_k, xtb=np.asarray(d.xtb, dtype=float))
+    icbo = device.icbo_at(point.icbo, temp_c)
+    return beta, icbo, t_k
+
+
+def solve_point(spec: StageSpec, point: StagePoint,
+                temp_c: np.ndarray | None = None) -> tuple[OperatingPoint, np.ndarray]:
+    """Solve the operating point; the device at ``temp_c`` (default: the point's ambient)."""
+    d = spec.device
+    temp = np.asarray(point.ambient_c if temp_c is None else temp_c, dtype=float)
+    beta, icbo, t_k = _device_temperature_terms(spec, point, temp)
+    r = dict(point.r)
+    if spec.model == "constant_vbe":
+        vbe = device.vbe_at(point.vbe, temp, spec.device.vbe_tempco)
+        op = solve_constant_vbe(spec.network, r, d.polarity, point.vcc, point.vee, beta, vbe,
+                                d.vce_sat, icbo)
+        return op, beta
+    t25 = device.STOCK_REFERENCE_C + device.CELSIUS_TO_KELVIN
+    nf = np.asarray(d.nf, dtype=float)
+    if d.is_a is None:
+        is25 = device.saturation_current_from_vbe(point.vbe, d.hfe_test_ic, nf, t25)
+    else:
+        is_nom = device.saturation_current_at(d.is_a, t25, device.TNOM_DEFAULT_C
+                                              + device.CELSIUS_TO_KELVIN, d.xti, d.eg_ev)
+        vbe_mid = 0.5 * (np.asarray(d.vbe_min) + np.asarray(d.vbe_max))
+        is25 = is_nom * np.exp((vbe_mid - point.vbe) / (nf * device.thermal_voltage(t25)))
+    gp = device.gummel_poon_at(is25, point.hfe, d.br, d.nf, d.nr, d.vaf_v, d.xti, d.eg_ev,
+                               d.xtb, device.STOCK_REFERENCE_C, temp)
+    op = solve_exponential(spec.network, r, d.polarity, point.vcc, point.vee, gp, t_k, icbo)
+    beta_dc = np.where(op.ib > 0, op.ic / np.where(op.ib > 0, op.ib, 1.0), np.asarray(gp.bf))
+    return op, np.asarray(beta_dc, dtype=float)
+
+
+def evaluate(spec: StageSpec, point: StagePoint) -> Evaluation:
+    """Solve the stage at ``point`` and derive every reported quantity.
+
+    Parameters
+    ----------
+    spec : StageSpec
+    point : StagePoint
+        Arrays broadcast together (and with the spec's candidate arrays).
+
+    Returns
+    -------
+    Evaluation
+    """
+    op, beta = solve_point(spec, point)
+    temp_c = np.asarray(point.ambient_c, dtype=float) * np.ones(op.shape)
+    d = spec.device
+    q: dict[str, np.ndarray] = {
+        "ic": op.ic, "ib": op.ib, "ie": op.ie, "vb": op.vb, "vc": op.vc, "ve": op.ve,
+        "vce": op.vce, "supply_power": op.supply_power, "pd": op.pd,
+    }
+    for role in spec.resistors:
+        q[f"p_{role}"] = op.resistor_power(role)
+    q["tj"] = temp_c + spec.device.theta_ja_effective * op.pd
+
+    # Small-signal figures, only where the transistor is active.
+    active = op.region == ACTIVE
+    vt = device.thermal_voltage(temp_c + device.CELSIUS_TO_KELVIN)
+    ic_pos = np.where(active, op.ic, np.nan)
+    gm = transconductance(ic_pos, vt)
+    rpi = r_pi(beta, gm)
+    vcb = np.maximum(op.vce - op.vbe, 0.0)
+    ro = r_o(ic_pos, np.asarray(d.vaf_v, dtype=float), vcb)
+    re_u = 0.0
+    if not spec.re_bypassed and "RE" in point.r:
+        re_u = point.r["RE"]
+    rc = point.r["RC"]
+    if spec.network.name == "collector_feedback":
+        gain = collector_feedback_gain(gm, beta, rc, point.r["RB"], spec.load, re_u, ro)
+        rin = collector_feedback_input_resistance(point.r["RB"], gain, rpi, beta, re_u)
+    else:
+        gain = ce_voltage_gain(gm, beta, rc, spec.load, re_u, ro)
+        if spec.network.name == "divider":
+            r_bias = parallel(point.r["R1"], point.r["R2"])
+        else:
+            r_bias = point.r["RB"]
+        rin = input_resistance(r_bias, beta, rpi, re_u)
+    q["gm"] = gm
+    q["gain"] = np.where(active, gain, np.nan)
+    q["gain_abs"] = np.abs(q["gain"])
+    q["rin"] = np.where(active, rin, np.nan)
+    # Symmetric swing: room towards saturation, and towards cut-off (IC·(RC‖RL)).
+    q["swing_to_saturation"] = op.vce - np.asarray(d.vce_sat, dtype=float)
+    q["swing_to_cutoff"] = np.where(active, op.ic * parallel(rc, spec.load), np.nan)
+    return Evaluation(op=op, quantities=q, beta=np.asarray(beta) * np.ones(op.shape),
+                      temp_c=temp_c)
