@@ -70,9 +70,10 @@ app = typer.Typer(
 
 
 def _register() -> None:
-    from . import demo_cmd, stock_cmd
+    from . import check_cmd, demo_cmd, stock_cmd
 
     app.command("demo")(demo_cmd.demo)
+    app.command("check")(check_cmd.check)
     app.add_typer(stock_cmd.app, name="stock")
 
 
