@@ -9,11 +9,11 @@ A PNP stage is solved as the NPN stage with every voltage negated (the *NPN
 frame*: rails and node voltages multiplied by −1, currents unchanged), and
 the node voltages are negated back, so it is the exact mirror.
 
-The resistor network is linear.  It is solved by modified nodal analysis with
-one current unknown per resistor role, so that an absent optional role (a
-zero resistance) is an ideal short, stated exactly as V_a − V_b = 0, not a
-tiny resistor.  With the transistor replaced by the currents it draws (IB into
-the base, IC into the collector, IE = IB + IC out of the emitter), every node
+The resistor network is linear.  It is solved by nodal analysis of the three
+terminal nodes; an absent optional role (a zero resistance) is an ideal short,
+stated exactly as V_n = V_rail (the node is eliminated), not a tiny
+resistor.  With the transistor replaced by the currents it draws (IB into the
+base, IC into the collector, IE = IB + IC out of the emitter), every node
 voltage is affine in (IB, IC); the device equations then close the system.
 
 Constant-VBE model (:func:`solve_constant_vbe`)
@@ -273,34 +273,81 @@ class _Response:
 
 
 def _linear_response(network: Network, r: dict[str, np.ndarray], rails: dict[str, np.ndarray]):
-    """Modified nodal analysis of the resistor network, three right-hand sides."""
+    """Nodal analysis of the resistor network (B, C, E unknown), three right-hand sides.
+
+    Present roles are stamped as conductances.  An absent role is an ideal
+    short: the KCL row of its terminal node is replaced by V_n = V_fixed (or,
+    for a short between two terminal nodes, merged into a supernode row and
+    replaced by V_n1 − V_n2 = 0).  The 3×3 systems are solved by cofactors,
+    elementwise over the batch, with one step of iterative refinement.
+    """
     n_batch = next(iter(rails.values())).shape[0]
-    roles = network.roles
-    size = 3 + len(roles)
-    a = np.zeros((n_batch, size, size))
-    rhs = np.zeros((n_batch, size, 3))
-    for k, role in enumerate(roles):
-        col = 3 + k
+    zero = np.zeros(n_batch)
+    a = [[zero.copy() for _ in range(3)] for _ in range(3)]
+    # right-hand side columns: fixed sources, unit IB, unit IC
+    rhs = [[zero.copy() for _ in range(3)] for _ in range(3)]
+    for role in network.roles:
         res = r[role.name]
-        short = res == 0.0
-        cv = np.where(short, 1.0, 1.0 / np.where(short, 1.0, res))
-        ci = np.where(short, 0.0, -1.0)
-        # KCL rows: the role's current leaves node_a and enters node_b.
-        # Branch row: cv·(V_a − V_b) + ci·I = 0 (a short when R = 0).
-        for node, s in ((role.node_a, 1.0), (role.node_b, -1.0)):
-            if node in _NODE_INDEX:
-                a[:, _NODE_INDEX[node], col] += s
-                a[:, col, _NODE_INDEX[node]] += s * cv
+        g = np.where(res == 0.0, 0.0, 1.0 / np.where(res == 0.0, 1.0, res))
+        for here, there in ((role.node_a, role.node_b), (role.node_b, role.node_a)):
+            if here not in _NODE_INDEX:
+                continue
+            i = _NODE_INDEX[here]
+            a[i][i] = a[i][i] + g
+            if there in _NODE_INDEX:
+                a[i][_NODE_INDEX[there]] = a[i][_NODE_INDEX[there]] - g
             else:
-                rhs[:, col, 0] -= s * cv * rails[node]
-        a[:, col, col] = ci
+                rhs[i][0] = rhs[i][0] + g * rails[there]
     # The device draws IB from B and IC from C and returns IE = IB + IC into E.
-    rhs[:, 0, 1] = -1.0
-    rhs[:, 2, 1] = 1.0
-    rhs[:, 1, 2] = -1.0
-    rhs[:, 2, 2] = 1.0
-    x = np.linalg.solve(a, rhs)
-    return _Response(v0=x[:, :3, 0], dv_ib=x[:, :3, 1], dv_ic=x[:, :3, 2])
+    rhs[0][1] = rhs[0][1] - 1.0
+    rhs[2][1] = rhs[2][1] + 1.0
+    rhs[1][2] = rhs[1][2] - 1.0
+    rhs[2][2] = rhs[2][2] + 1.0
+    for role in network.roles:
+        short = r[role.name] == 0.0
+        if not role.optional or not np.any(short):
+            continue
+        ends = [n for n in (role.node_a, role.node_b) if n in _NODE_INDEX]
+        i = _NODE_INDEX[ends[0]]
+        row_a = [np.where(short, 0.0, x) for x in a[i]]
+        row_b = [np.where(short, 0.0, x) for x in rhs[i]]
+        if len(ends) == 1:
+            fixed = role.node_b if role.node_a == ends[0] else role.node_a
+            row_a[i] = np.where(short, 1.0, row_a[i])
+            row_b[0] = np.where(short, rails[fixed], row_b[0])
+        else:
+            k = _NODE_INDEX[ends[1]]
+            a[k] = [np.where(short, x + y, x) for x, y in zip(a[k], a[i], strict=True)]
+            rhs[k] = [np.where(short, x + y, x) for x, y in zip(rhs[k], rhs[i], strict=True)]
+            row_a[i] = np.where(short, 1.0, row_a[i])
+            row_a[k] = np.where(short, -1.0, row_a[k])
+        a[i], rhs[i] = row_a, row_b
+    # cofactor solve
+    c00 = a[1][1] * a[2][2] - a[1][2] * a[2][1]
+    c01 = a[1][2] * a[2][0] - a[1][0] * a[2][2]
+    c02 = a[1][0] * a[2][1] - a[1][1] * a[2][0]
+    c10 = a[0][2] * a[2][1] - a[0][1] * a[2][2]
+    c11 = a[0][0] * a[2][2] - a[0][2] * a[2][0]
+    c12 = a[0][1] * a[2][0] - a[0][0] * a[2][1]
+    c20 = a[0][1] * a[1][2] - a[0][2] * a[1][1]
+    c21 = a[0][2] * a[1][0] - a[0][0] * a[1][2]
+    c22 = a[0][0] * a[1][1] - a[0][1] * a[1][0]
+    det = a[0][0] * c00 + a[0][1] * c01 + a[0][2] * c02
+    inv = [[c00, c10, c20], [c01, c11, c21], [c02, c12, c22]]
+
+    def apply_inverse(b):
+        return [(inv[i][0] * b[0] + inv[i][1] * b[1] + inv[i][2] * b[2]) / det for i in range(3)]
+
+    cols = []
+    for c in range(3):
+        b = [rhs[0][c], rhs[1][c], rhs[2][c]]
+        x = apply_inverse(b)
+        # one step of iterative refinement: resistances spanning decades make
+        # the cofactor solution lose a few digits, the residual recovers them
+        resid = [b[i] - (a[i][0] * x[0] + a[i][1] * x[1] + a[i][2] * x[2]) for i in range(3)]
+        dx = apply_inverse(resid)
+        cols.append(np.stack([x[i] + dx[i] for i in range(3)], axis=1))
+    return _Response(v0=cols[0], dv_ib=cols[1], dv_ic=cols[2])
 
 
 def _saturated_currents(resp: _Response, vbe, vbc):
