@@ -380,7 +380,7 @@ def test_kcl_kvl_and_energy_both_models(rng, network, polarity):
     t = rng.uniform(233.15, 358.15, n)
     for op in (
         solve_constant_vbe(network, r, polarity, vcc, vee, **dev),
-        solve_exponential(network, r, polarity, vcc, vee, gp, t),
+        solve_exponential(network, r, polarity, vcc, vee, gp, t, dev["icbo"]),
     ):
         kcl, kvl = kcl_kvl_residuals(op, network, rails)
         assert kcl < 1e-15  # ampere; exact up to rounding
