@@ -32,11 +32,11 @@ import numpy as np
 from .stage import Evaluation, StagePoint, StageSpec, evaluate
 
 __all__ = [
-    "REFINED_QUANTITIES",
     "Bound",
     "WorstCase",
     "corner_setting",
     "point_at_unit",
+    "refined_quantities",
     "rss",
     "vertex_points",
     "worst_case",
@@ -45,7 +45,7 @@ __all__ = [
 REPORTED = ("ic", "ib", "ie", "vb", "vc", "ve", "vce", "supply_power", "pd", "tj", "gain", "rin")
 
 
-def REFINED_QUANTITIES(spec: StageSpec) -> tuple[str, ...]:  # noqa: N802 - reads like a constant
+def refined_quantities(spec: StageSpec) -> tuple[str, ...]:
     """Quantities whose maximum is refined inside the box (products: powers, TJ)."""
     return ("supply_power", "pd", "tj", *(f"p_{r}" for r in spec.resistors))
 
@@ -208,7 +208,7 @@ def worst_case(spec: StageSpec, *, refine: bool = True,
     ev = evaluate(spec, point)
     names = list(quantities) if quantities is not None else \
         [*REPORTED, *(f"p_{r}" for r in spec.resistors)]
-    refined = set(REFINED_QUANTITIES(spec)) if refine else set()
+    refined = set(refined_quantities(spec)) if refine else set()
     bounds: dict[str, Bound] = {}
     table = {n: np.asarray(ev.quantities[n], dtype=float).reshape(-1) for n in names
              if n in ev.quantities and not np.all(np.isnan(ev.quantities[n]))}

@@ -26,7 +26,7 @@ def check(
                                          help="Monte Carlo boards (0: none).")] = 20000,
     seed: Annotated[int, typer.Option("--seed", help="Monte Carlo seed.")] = 0,
     tolerance: Annotated[float | None, typer.Option(
-        "--tolerance", min=0.0, max=50.0, min_open=True,
+        "--tolerance", min=0.01, max=50.0,
         help="Tolerance, %, for values that are not stock parts (default: the job's).")] = None,
     stage: Annotated[str | None, typer.Option("--stage",
                                               help="Stage name in a board file.")] = None,

@@ -1,0 +1,163 @@
+"""Terminal rendering of a `check` result: failures first, units, corners named."""
+
+from __future__ import annotations
+
+from rich.console import Console
+from rich.table import Table
+
+from ..analysis.check import CheckResult
+from ..analysis.constraints import ConstraintResult
+from ..job import Job
+from ..units import format_quantity
+
+__all__ = ["corner_text", "render_check", "render_constraints"]
+
+_UNITS = {"ic": "A", "ib": "A", "ie": "A", "vb": "V", "vc": "V", "ve": "V", "vce": "V",
+          "supply_power": "W", "pd": "W", "tj": "°C", "gain": "", "rin": "ohm"}
+_LABELS = {"ic": "IC", "ib": "IB", "ie": "IE", "vb": "VB", "vc": "VC", "ve": "VE", "vce": "VCE",
+           "supply_power": "supply power", "pd": "PD (transistor)", "tj": "TJ",
+           "gain": "gain (V/V)", "rin": "input resistance"}
+_MODEL_NAMES = {"constant_vbe": "constant-VBE", "exponential": "exponential (Gummel–Poon)"}
+_AXIS_LABELS = {"vcc": "VCC", "vee": "|VEE|", "hfe": "hFE", "vbe": "VBE", "icbo": "ICBO"}
+
+
+def _q(value: float, unit: str) -> str:
+    if unit in ("", "corners"):
+        return f"{value:.3g}"
+    return format_quantity(value, unit)
+
+
+def corner_text(corner: dict | None) -> str:
+    """A compact corner: ``VCC+ R1− R2+ hFE+ VBE− 55 °C`` (interior values spelled out)."""
+    if not corner:
+        return ""
+    parts = []
+    for axis, item in corner.items():
+        setting, value = item["setting"], float(item["value"])
+        if axis == "ambient_c":
+            parts.append(f"{value:.3g} °C" if setting != "interior" else f"T~{value:.3g} °C")
+            continue
+        label = _AXIS_LABELS.get(axis, axis)
+        if axis == "vee":
+            setting = {"min": "max", "max": "min"}.get(setting, setting) if value < 0 else setting
+        if setting == "interior":
+            unit = {"vcc": "V", "vee": "V", "vbe": "V", "icbo": "A", "hfe": ""}.get(axis, "ohm")
+            parts.append(f"{label}~{_q(abs(value), unit)}")
+        else:
+            parts.append(f"{label}{'+' if setting == 'max' else '−'}")
+    return " ".join(parts)
+
+
+def render_constraints(console: Console, constraints: list[ConstraintResult],
+                       title: str = "Constraints (failures first)") -> None:
+    """The pass/fail table of constraints with margins."""
+    table = Table(title=title, title_justify="left")
+    for col in ("", "constraint", "limit", "worst", "margin", "at corner"):
+        table.add_column(col)
+    ordered = sorted(constraints, key=lambda c: (c.ok, c.name))
+    for c in ordered:
+        sign = "≥" if c.name in ("ic_min", "vce_min", "swing_saturation", "swing_cutoff",
+                                 "gain_min", "yield_min") else "≤"
+        mark = "[green]ok[/green]" if c.ok else "[bold red]FAIL[/bold red]"
+        limit = f"{sign} {_q(c.limit, c.unit)}"
+        worst = _q(c.worst, c.unit) if c.worst == c.worst else "n/a"
+        margin = _q(c.margin, c.unit) if c.margin not in (float("inf"), float("-inf")) \
+            else "fails (undefined where not active)"
+        table.add_row(mark, f"{c.name}: {c.description}", limit, worst, margin,
+                      corner_text(c.corner))
+    console.print(table)
+
+
+def render_check(console: Console, job: Job, result: CheckResult) -> None:
+    """Print a `check` result."""
+    s = job.supply
+    supply = f"{_q(s.volts, 'V')} ±{s.tolerance_pct:g} %"
+    if s.negative_volts is not None:
+        supply += f", {_q(s.negative_volts, 'V')} ±{s.vee_tolerance_pct:g} %"
+    env = job.environment
+    t = result.transistor
+    console.print(f"[bold]Stage '{result.stage}'[/bold]: {result.topology}, "
+                  f"{t.polarity} {t.part_id} (hFE {t.hfe_min:g}–{t.hfe_max:g}), "
+                  f"{_MODEL_NAMES.get(result.model, result.model)} model, {supply}, "
+                  f"{env.ambient_min_c:g} to {env.ambient_max_c:g} °C")
+    parts = []
+    for role, p in result.parts.items():
+        ids = "+".join(p.part_ids) if p.arrangement == "series" else "|".join(p.part_ids)
+        where = f" ({ids})" if ids else " (not in stock)"
+        parts.append(f"{role} = {_q(p.value, 'ohm')} ±{100 * p.tol:.3g} %{where}")
+    console.print("Parts: " + ", ".join(parts))
+    n_fail = len(result.failing)
+    n_all = len(result.constraints)
+    if n_fail:
+        console.print(f"[bold red]FAIL[/bold red]: {n_fail} of {n_all} constraints fail: "
+                      + ", ".join(c.name for c in result.failing))
+    else:
+        console.print(f"[bold green]PASS[/bold green]: all {n_all} constraints hold at every "
+                      "worst-case corner")
+    render_constraints(console, result.constraints)
+
+    nom = result.nominal
+    region = str(nom["region"])
+    console.print(f"[bold]Nominal Q-point[/bold] ({nom['temperature_c']:g} °C, β "
+                  f"{float(nom['beta']):.3g}, nominal values and supply): region {region.upper()}")
+    line = "  ".join(f"{_LABELS[k]} {_q(float(nom[k]), _UNITS[k])}"  # type: ignore[arg-type]
+                     for k in ("ic", "ib", "vce", "vb", "vc", "ve", "pd", "supply_power"))
+    console.print("  " + line)
+    if region == "active":
+        console.print(f"  gain {float(nom['gain']):.3g} V/V, input resistance "  # type: ignore[arg-type]
+                      f"{_q(float(nom['rin']), 'ohm')}, gm "  # type: ignore[arg-type]
+                      f"{_q(float(nom['gm']), 'A')}/V")  # type: ignore[arg-type]
+    else:
+        console.print(f"  [yellow]The transistor is {region} at the nominal point: the voltages "
+                      "above are the real ones; no active-region figures (gain, gm, input "
+                      "resistance) are given.[/yellow]")
+
+    wc = result.worst
+    table = Table(title=f"Worst case over {wc.n_vertices} corners (extreme values; maxima of "
+                        "products refined inside the tolerance box)", title_justify="left")
+    for col in ("quantity", "min", "max", "RSS range", "corner of min", "corner of max"):
+        table.add_column(col)
+    rows = [*_LABELS, *(f"p_{r}" for r in result.parts)]
+    for q in rows:
+        b = wc.bounds.get(q)
+        if b is None:
+            continue
+        unit = _UNITS.get(q, "W")
+        rss = result.rss.get(q)
+        rss_txt = f"{_q(rss['min'], unit)} … {_q(rss['max'], unit)}" if rss else ""
+        label = _LABELS.get(q, f"P {q[2:]}")
+        table.add_row(label, _q(b.min, unit), _q(b.max, unit), rss_txt,
+                      corner_text(b.corner_min), corner_text(b.corner_max))
+    console.print(table)
+    if wc.non_active_corners:
+        console.print(f"[yellow]{wc.non_active_corners} of {wc.n_vertices} corners are not in "
+                      f"the active region ({', '.join(wc.regions_seen)}); e.g. at "
+                      f"{corner_text(wc.non_active_example)}. Gain and input resistance are "
+                      "bounded over the active corners only.[/yellow]")
+    mc = result.monte_carlo
+    if mc is not None:
+        y = mc.yield_
+        fails = ", ".join(f"{k} {v}" for k, v in mc.failing.items()) or "none"
+        console.print(f"[bold]Monte Carlo[/bold]: {y.samples} boards (seed {mc.seed}), each at "
+                      f"every supply × ambient extreme: yield {100 * y.yield_:.2f} % "
+                      f"(95 % interval {100 * y.low:.2f}–{100 * y.high:.2f} %); failing boards "
+                      f"by constraint: {fails}")
+    st = result.stability
+    console.print(f"[bold]Stability[/bold] at the nominal point: S_ICBO = {st['s_icbo']:.3g}, "
+                  f"S_VBE = {_q(st['s_vbe'], 'A')}/V, S_β = {_q(st['s_beta'], 'A')} per unit β")
+    th = result.thermal
+    if "tj_self_heated_c" in th:
+        source = "from the stock data" if th["theta_ja_from_data"] else \
+            "derived from the PD rating"
+        console.print(f"[bold]Thermal[/bold]: θJA {float(th['theta_ja']):.3g} °C/W ({source}); "  # type: ignore[arg-type]
+                      f"at the hottest corner ({float(th['ambient_at_hottest_corner_c']):.3g} °C "  # type: ignore[arg-type]
+                      f"ambient) the self-heated junction settles at "
+                      f"{float(th['tj_self_heated_c']):.3g} °C; runaway factor ∂PD/∂TJ·θJA = "  # type: ignore[arg-type]
+                      f"{float(th['runaway_factor']):.2g} (must stay below 1)")  # type: ignore[arg-type]
+    if result.warnings:
+        for w in result.warnings:
+            console.print(f"[yellow]warning[/yellow]: {w}")
+    if result.assumptions:
+        console.print("Assumed: " + "; ".join(result.assumptions))
+    for c in result.cautions:
+        console.print(f"[bold yellow]caution[/bold yellow]: {c}")
