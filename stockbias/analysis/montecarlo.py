@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .constraints import Limit, evaluate_limits
-from .stage import StagePoint, StageSpec, evaluate
+from .stage import SMALL_SIGNAL_QUANTITIES, StagePoint, StageSpec, evaluate
 from .statistics import YieldResult, draw_resistor_factors, draw_uniform, yield_estimate
 
 __all__ = ["MonteCarloResult", "monte_carlo"]
@@ -53,7 +53,8 @@ def _environment_corners(spec: StageSpec) -> list[dict[str, float]]:
 
 def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int,
                 rng: np.random.Generator, *, seed: int = 0,
-                tempco_ppm: dict[str, float] | None = None) -> MonteCarloResult:
+                tempco_ppm: dict[str, float] | None = None,
+                chunk: int = 250_000) -> MonteCarloResult:
     """Draw ``samples`` boards and test each at every environment corner.
 
     Parameters
@@ -67,41 +68,62 @@ def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int,
     rng : numpy.random.Generator
     tempco_ppm : dict, optional
         role → |tempco| in ppm/°C (drawn uniform in ±); default none.
+    chunk : int
+        Boards evaluated at once (bounds memory).  Results are reproducible for the
+        same seed, samples and chunk.
     """
     n = int(samples)
     d = spec.device
     roles = list(spec.resistors)
-    factors = {role: draw_resistor_factors(rng, 100 * float(spec.resistors[role].tol), n)
-               for role in roles}
-    tempco = {role: draw_uniform(rng, -abs((tempco_ppm or {}).get(role, 0.0)),
-                                 abs((tempco_ppm or {}).get(role, 0.0)), n) * 1e-6
-              for role in roles}
-    hfe = draw_uniform(rng, float(d.hfe_min), float(d.hfe_max), n)
-    vbe = draw_uniform(rng, float(d.vbe_min), float(d.vbe_max), n)
-    icbo = draw_uniform(rng, 0.0, float(d.icbo_a), n)
     corners = _environment_corners(spec)
-    m = len(corners)
     vcc = np.array([c["vcc"] for c in corners])[None, :]
     amb = np.array([c["ambient"] for c in corners], dtype=float)[None, :]
     vee = None if corners[0]["vee"] is None else np.array([c["vee"] for c in corners])[None, :]
-    r = {role: float(spec.resistors[role].value) * factors[role][:, None]
-         * (1 + tempco[role][:, None] * (amb - 25.0)) for role in roles}
-    point = StagePoint(vcc=vcc, vee=vee, r=r, hfe=hfe[:, None], vbe=vbe[:, None],
-                       icbo=icbo[:, None], ambient_c=amb)
-    ev = evaluate(spec, point)
-    q = dict(ev.quantities)
-    q["non_active_corners"] = (ev.op.region != 0).astype(float)
-    q["vceo_needed"] = np.zeros((n, m))
-    low = {k: np.min(v, axis=1) for k, v in q.items() if np.ndim(v) == 2}
-    high = {k: np.max(v, axis=1) for k, v in q.items() if np.ndim(v) == 2}
-    checked = [lim for lim in limits if lim.quantity in low and lim.name != "vceo"]
-    margins = evaluate_limits(checked, low, high)
-    ok = np.ones(n, dtype=bool)
-    failing = {}
-    for name, marg in margins.items():
-        bad = marg < 0
-        failing[name] = int(np.count_nonzero(bad))
-        ok &= ~bad
+    checked = [lim for lim in limits if lim.name != "vceo"]
+    needed = {lim.quantity for lim in checked} | {"ic", "vce"}
+    small_signal = bool(needed & SMALL_SIGNAL_QUANTITIES)
+    ok = np.empty(n, dtype=bool)
+    ic_all = np.empty((n, len(corners)))
+    vce_all = np.empty((n, len(corners)))
+    failing: dict[str, int] = {}
+    for start in range(0, n, chunk):
+        size = min(chunk, n - start)
+        factors = {role: draw_resistor_factors(rng, 100 * float(spec.resistors[role].tol),
+                                               size) for role in roles}
+        tempco = {role: draw_uniform(rng, -abs((tempco_ppm or {}).get(role, 0.0)),
+                                     abs((tempco_ppm or {}).get(role, 0.0)), size) * 1e-6
+                  for role in roles}
+        hfe = draw_uniform(rng, float(d.hfe_min), float(d.hfe_max), size)
+        vbe = draw_uniform(rng, float(d.vbe_min), float(d.vbe_max), size)
+        icbo = draw_uniform(rng, 0.0, float(d.icbo_a), size)
+        r = {role: float(spec.resistors[role].value) * factors[role][:, None]
+             * (1 + tempco[role][:, None] * (amb - 25.0)) for role in roles}
+        point = StagePoint(vcc=vcc, vee=vee, r=r, hfe=hfe[:, None], vbe=vbe[:, None],
+                           icbo=icbo[:, None], ambient_c=amb)
+        ev = evaluate(spec, point, small_signal=small_signal)
+        q = {k: v for k, v in ev.quantities.items() if k in needed}
+        q["non_active_corners"] = (ev.op.region != 0).astype(float)
+        low = {k: _columns(np.minimum, v) for k, v in q.items()}
+        high = {k: _columns(np.maximum, v) for k, v in q.items()}
+        good = np.ones(size, dtype=bool)
+        for name, marg in evaluate_limits(checked, low, high).items():
+            bad = marg < 0
+            failing[name] = failing.get(name, 0) + int(np.count_nonzero(bad))
+            good &= ~bad
+        ok[start:start + size] = good
+        ic_all[start:start + size] = q["ic"]
+        vce_all[start:start + size] = q["vce"]
     failing = {k: v for k, v in failing.items() if v}
-    return MonteCarloResult(yield_=yield_estimate(ok), ic=np.asarray(q["ic"]),
-                            vce=np.asarray(q["vce"]), failing=failing, seed=seed)
+    return MonteCarloResult(yield_=yield_estimate(ok), ic=ic_all, vce=vce_all, failing=failing,
+                            seed=seed)
+
+
+def _columns(op: np.ufunc, values: np.ndarray) -> np.ndarray:
+    """Reduce over the (few) environment corners column by column (faster than axis=1)."""
+    values = np.asarray(values, dtype=float)
+    if values.ndim == 1:
+        return values
+    out = values[:, 0].copy()
+    for j in range(1, values.shape[1]):
+        op(out, values[:, j], out=out)
+    return out

@@ -236,6 +236,8 @@ def _stage(network, resistances, polarity, vcc, vee, *extra) -> _Stage:
     shape = np.broadcast_shapes(*(a.shape for a in arrays))
 
     def flat(a):
+        if a.shape == shape and a.dtype == np.float64:
+            return a.ravel()  # a view when contiguous; callers never write into inputs
         return np.broadcast_to(a, shape).ravel().astype(float, copy=True)
 
     return _Stage(
@@ -371,16 +373,21 @@ def _assemble(st: _Stage, ib, ic, vb, vc, ve, region) -> OperatingPoint:
     ie = ib + ic
     device_out = {"B": ib, "C": ic, "E": -ie}  # current leaving each node into the device
     currents: dict[str, np.ndarray] = {}
+    shorts = {}
     for role in net.roles:
         res = st.r[role.name]
         short = res == 0.0
-        currents[role.name] = np.where(
-            short, 0.0, (v[role.node_a] - v[role.node_b]) / np.where(short, 1.0, res)
-        )
+        shorts[role.name] = bool(np.any(short))
+        if shorts[role.name]:
+            currents[role.name] = np.where(
+                short, 0.0, (v[role.node_a] - v[role.node_b]) / np.where(short, 1.0, res)
+            )
+        else:
+            currents[role.name] = (v[role.node_a] - v[role.node_b]) / res
     for role in net.roles:
-        short = st.r[role.name] == 0.0
-        if not role.optional or not np.any(short):
+        if not role.optional or not shorts[role.name]:
             continue
+        short = st.r[role.name] == 0.0
         node = role.node_a if role.node_a in TERMINAL_NODES else role.node_b
         s_self = 1.0 if role.node_a == node else -1.0
         leaving = device_out[node].copy()

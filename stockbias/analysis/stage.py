@@ -53,6 +53,7 @@ from .small_signal import (
 
 __all__ = [
     "AXIS_NOMINAL_RULE",
+    "SMALL_SIGNAL_QUANTITIES",
     "DeviceSpec",
     "Evaluation",
     "ResistorSpec",
@@ -342,7 +343,10 @@ def solve_point(spec: StageSpec, point: StagePoint,
     return op, np.asarray(beta_dc, dtype=float)
 
 
-def evaluate(spec: StageSpec, point: StagePoint) -> Evaluation:
+SMALL_SIGNAL_QUANTITIES = frozenset({"gm", "gain", "gain_abs", "rin", "swing_to_cutoff"})
+
+
+def evaluate(spec: StageSpec, point: StagePoint, *, small_signal: bool = True) -> Evaluation:
     """Solve the stage at ``point`` and derive every reported quantity.
 
     Parameters
@@ -350,13 +354,15 @@ def evaluate(spec: StageSpec, point: StagePoint) -> Evaluation:
     spec : StageSpec
     point : StagePoint
         Arrays broadcast together (and with the spec's candidate arrays).
+    small_signal : bool
+        Also derive the small-signal figures (:data:`SMALL_SIGNAL_QUANTITIES`).
 
     Returns
     -------
     Evaluation
     """
     op, beta = solve_point(spec, point)
-    temp_c = np.asarray(point.ambient_c, dtype=float) * np.ones(op.shape)
+    temp_c = np.broadcast_to(np.asarray(point.ambient_c, dtype=float), op.shape)
     d = spec.device
     q: dict[str, np.ndarray] = {
         "ic": op.ic, "ib": op.ib, "ie": op.ie, "vb": op.vb, "vc": op.vc, "ve": op.ve,
@@ -365,6 +371,9 @@ def evaluate(spec: StageSpec, point: StagePoint) -> Evaluation:
     for role in spec.resistors:
         q[f"p_{role}"] = op.resistor_power(role)
     q["tj"] = temp_c + spec.device.theta_ja_effective * op.pd
+    q["swing_to_saturation"] = op.vce - np.asarray(d.vce_sat, dtype=float)
+    if not small_signal:
+        return Evaluation(op=op, quantities=q, beta=np.asarray(beta), temp_c=temp_c)
 
     # Small-signal figures, only where the transistor is active.
     active = op.region == ACTIVE
@@ -392,8 +401,7 @@ def evaluate(spec: StageSpec, point: StagePoint) -> Evaluation:
     q["gain"] = np.where(active, gain, np.nan)
     q["gain_abs"] = np.abs(q["gain"])
     q["rin"] = np.where(active, rin, np.nan)
-    # Symmetric swing: room towards saturation, and towards cut-off (IC·(RC‖RL)).
-    q["swing_to_saturation"] = op.vce - np.asarray(d.vce_sat, dtype=float)
+    # Symmetric swing towards cut-off: IC·(RC‖RL) (towards saturation: VCE − VCE(sat)).
     q["swing_to_cutoff"] = np.where(active, op.ic * parallel(rc, spec.load), np.nan)
     return Evaluation(op=op, quantities=q, beta=np.asarray(beta) * np.ones(op.shape),
                       temp_c=temp_c)
