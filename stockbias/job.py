@@ -52,6 +52,7 @@ class Supply:
     tolerance_pct: float = 0.0
     negative_volts: float | None = None
     negative_tolerance_pct: float | None = None
+    mains_derived: bool = False
 
     @property
     def vee_tolerance_pct(self) -> float:
@@ -183,7 +184,7 @@ class Job:
 # key -> unit for parse_quantity; None: not a quantity (validated separately)
 _SECTIONS: dict[str, dict[str, str | None]] = {
     "supply": {"volts": "V", "tolerance_pct": "%", "negative_volts": "V",
-               "negative_tolerance_pct": "%"},
+               "negative_tolerance_pct": "%", "mains_derived": None},
     "target": {"ic": "A", "ic_window_pct": "%", "ic_min": "A", "ic_max": "A", "vce_min": "V",
                "swing_pk": "V", "gain_min": "", "gain_max": "", "yield_min": ""},
     "limits": {"supply_power_max": "W", "resistor_derating": "", "tj_max": "°C",
@@ -293,7 +294,11 @@ class _Parser:
         if neg_tol is not None and not 0 <= neg_tol < 50:
             raise self.error("tolerance must be 0 % or more and below 50 %", "supply",
                              "negative_tolerance_pct", t["negative_tolerance_pct"])
-        return Supply(volts, tol, neg, neg_tol)
+        mains = t.get("mains_derived", False)
+        if not isinstance(mains, bool):
+            raise self.error("mains_derived must be true or false", "supply", "mains_derived",
+                             mains)
+        return Supply(volts, tol, neg, neg_tol, mains)
 
     def target(self, t: dict[str, Any], section: str, occurrence: int = 0) -> Target:
         self.check_keys(t, section, set(_SECTIONS["target"]), occurrence)

@@ -121,3 +121,15 @@ def test_missing_target_and_bad_toml() -> None:
     with pytest.raises(JobError, match="not valid TOML") as info:
         parse_job("[supply]\nvolts = = 12\n")
     assert info.value.line == 2
+
+
+def test_mains_derived_flag_and_caution() -> None:
+    from stockbias.analysis.check import cautions
+
+    job = parse_job(BASE.replace("tolerance_pct = 5\n",
+                                 "tolerance_pct = 5\nmains_derived = true\n"))
+    assert job.supply.mains_derived
+    assert any("mains" in c for c in cautions(job, [], {}))
+    with pytest.raises(JobError, match="true or false"):
+        parse_job(BASE.replace("tolerance_pct = 5\n",
+                               'tolerance_pct = 5\nmains_derived = "yes"\n'))

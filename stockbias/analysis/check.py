@@ -259,6 +259,10 @@ def cautions(job: Job, results: list[ConstraintResult], thermal: dict[str, objec
         out.append(f"The supplies reach {total_v:.3g} V, above the usual 60 V DC extra-low-"
                    "voltage limit: shock hazard; follow local electrical codes and licensed "
                    "practice.")
+    if job.supply.mains_derived:
+        out.append("The supply is derived from the mains: the primary side carries hazardous "
+                   "voltage; build and test it to local electrical codes, with isolation and "
+                   "protection as licensed practice requires.")
     by_name = {c.name: c for c in results}
     pd = by_name.get("pd")
     if pd is not None and pd.limit > 0 and pd.worst > 0.5 * pd.limit:
