@@ -152,7 +152,7 @@ def _pair(role: str, a: Resistor, b: Resistor, arrangement: str, off: bool,
         share_a = b.value_ohm / (a.value_ohm + b.value_ohm)
     share_b = 1.0 - share_a
     rating = min(a.power_w / share_a, b.power_w / share_b)
-    tempco = max(a.tempco_ppm or 0.0, b.tempco_ppm or 0.0)
+    tempco = max(abs(a.tempco_ppm or 0.0), abs(b.tempco_ppm or 0.0))  # ± magnitude
     parts = tuple(p for p in (a, b) if p.part_id)
     return ResolvedResistor(role=role, value=nominal, tol=tol, tempco_ppm=tempco, rating=rating,
                             parts=parts, arrangement=arrangement, off_stock=off,

@@ -176,3 +176,18 @@ def test_saturated_corners_are_counted_and_flagged() -> None:
     assert wc.non_active_corners > 0
     assert "saturated" in wc.regions_seen
     assert wc.bounds["vce"].min == pytest.approx(0.2, abs=1e-12)   # VCE(sat) of the spec
+
+
+def test_self_heated_junction_widens_the_bounds() -> None:
+    # DESIGN §2: where θJA is known the device is also evaluated at TJ = TA + θJA·PD(TJ).
+    # IC rises with temperature (β up, VBE down), so the self-heated IC max is higher.
+    spec = make_spec("divider")
+    heated = worst_case(spec)
+    ambient_only = worst_case(spec, self_heating=False)
+    assert heated.bounds["ic"].max > ambient_only.bounds["ic"].max
+    corner = heated.bounds["ic"].corner_max
+    assert corner["junction_c"]["setting"] == "self_heated"
+    tj = corner["junction_c"]["value"]
+    # the fixed point: TJ − TA = θJA·PD at that corner (θJA 200 °C/W in make_spec)
+    assert tj > corner["ambient_c"]["value"]
+    assert heated.bounds["ic"].min == pytest.approx(ambient_only.bounds["ic"].min, rel=1e-12)

@@ -60,6 +60,7 @@ __all__ = [
     "StagePoint",
     "StageSpec",
     "evaluate",
+    "self_heated_temperature",
 ]
 
 #: How the nominal point is chosen (DESIGN §3 "Results").
@@ -346,7 +347,29 @@ def solve_point(spec: StageSpec, point: StagePoint,
 SMALL_SIGNAL_QUANTITIES = frozenset({"gm", "gain", "gain_abs", "rin", "swing_to_cutoff"})
 
 
-def evaluate(spec: StageSpec, point: StagePoint, *, small_signal: bool = True) -> Evaluation:
+def self_heated_temperature(spec: StageSpec, point: StagePoint) -> np.ndarray:
+    """Junction temperature TJ = TA + θJA·PD(TJ) at each point (fixed point), °C.
+
+    The device is evaluated at TJ, the resistors at the ambient.  Where no fixed
+    point exists below 400 °C (thermal runaway) TJ is the cap.
+    """
+    from .thermal import self_heated_point
+
+    ambient = np.asarray(point.ambient_c, dtype=float)
+    theta = spec.device.theta_ja_effective
+
+    def pd_of_tj(tj: np.ndarray) -> np.ndarray:
+        op, _ = solve_point(spec, point, tj)
+        return np.maximum(np.asarray(op.pd, dtype=float), 0.0)
+
+    shape = solve_point(spec, point)[0].shape
+    sh = self_heated_point(pd_of_tj, np.broadcast_to(ambient, shape),
+                           np.broadcast_to(theta, shape), tol=1e-4)
+    return np.asarray(sh.tj_c, dtype=float)
+
+
+def evaluate(spec: StageSpec, point: StagePoint, *, small_signal: bool = True,
+             device_temp_c: np.ndarray | None = None) -> Evaluation:
     """Solve the stage at ``point`` and derive every reported quantity.
 
     Parameters
@@ -356,13 +379,18 @@ def evaluate(spec: StageSpec, point: StagePoint, *, small_signal: bool = True) -
         Arrays broadcast together (and with the spec's candidate arrays).
     small_signal : bool
         Also derive the small-signal figures (:data:`SMALL_SIGNAL_QUANTITIES`).
+    device_temp_c : ndarray, optional
+        Evaluate the transistor at this temperature (°C) instead of the ambient, e.g.
+        the self-heated junction temperature; resistors stay at the ambient.
 
     Returns
     -------
     Evaluation
     """
-    op, beta = solve_point(spec, point)
-    temp_c = np.broadcast_to(np.asarray(point.ambient_c, dtype=float), op.shape)
+    op, beta = solve_point(spec, point, device_temp_c)
+    ambient = np.broadcast_to(np.asarray(point.ambient_c, dtype=float), op.shape)
+    temp_c = ambient if device_temp_c is None else np.broadcast_to(
+        np.asarray(device_temp_c, dtype=float), op.shape)
     d = spec.device
     q: dict[str, np.ndarray] = {
         "ic": op.ic, "ib": op.ib, "ie": op.ie, "vb": op.vb, "vc": op.vc, "ve": op.ve,
@@ -370,7 +398,7 @@ def evaluate(spec: StageSpec, point: StagePoint, *, small_signal: bool = True) -
     }
     for role in spec.resistors:
         q[f"p_{role}"] = op.resistor_power(role)
-    q["tj"] = temp_c + spec.device.theta_ja_effective * op.pd
+    q["tj"] = ambient + spec.device.theta_ja_effective * op.pd
     q["swing_to_saturation"] = op.vce - np.asarray(d.vce_sat, dtype=float)
     if not small_signal:
         return Evaluation(op=op, quantities=q, beta=np.asarray(beta), temp_c=temp_c)

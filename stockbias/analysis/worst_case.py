@@ -29,7 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .stage import Evaluation, StagePoint, StageSpec, evaluate
+from .stage import Evaluation, StagePoint, StageSpec, evaluate, self_heated_temperature
 
 __all__ = [
     "Bound",
@@ -186,7 +186,7 @@ def _refine_max(spec: StageSpec, axes: tuple[str, ...], names: list[str],
     return out
 
 
-def worst_case(spec: StageSpec, *, refine: bool = True,
+def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = True,
                quantities: Iterable[str] | None = None) -> WorstCase:
     """Extreme value analysis of one stage (scalar spec).
 
@@ -196,6 +196,9 @@ def worst_case(spec: StageSpec, *, refine: bool = True,
         A single stage (no candidate arrays).
     refine : bool
         Refine the maxima of products inside the box (see module notes).
+    self_heating : bool
+        Where θJA is known, also evaluate every vertex with the device at its
+        self-heated junction temperature (the bounds cover both).
     quantities : iterable of str, optional
         Which to report (default: currents, node voltages, VCE, powers, TJ, gain, rin).
 
@@ -206,35 +209,52 @@ def worst_case(spec: StageSpec, *, refine: bool = True,
     axes = spec.axes()
     point, bits = vertex_points(spec, axes)
     ev = evaluate(spec, point)
+    heated = None
+    if self_heating and not np.all(np.isnan(np.asarray(spec.device.theta_ja, dtype=float))):
+        # DESIGN §2: where θJA is known, the device is also evaluated at its self-heated
+        # junction temperature; every bound covers both.
+        heated = evaluate(spec, point, device_temp_c=self_heated_temperature(spec, point))
     names = list(quantities) if quantities is not None else \
         [*REPORTED, *(f"p_{r}" for r in spec.resistors)]
     refined = set(refined_quantities(spec)) if refine else set()
     bounds: dict[str, Bound] = {}
     table = {n: np.asarray(ev.quantities[n], dtype=float).reshape(-1) for n in names
              if n in ev.quantities and not np.all(np.isnan(ev.quantities[n]))}
+    n_vertex = len(bits)
+    if heated is not None:   # rows n_vertex.. are the same vertices, self-heated
+        table = {n: np.concatenate([v, np.asarray(heated.quantities[n], dtype=float).reshape(-1)])
+                 for n, v in table.items()}
+        tj_heated = np.asarray(heated.temp_c, dtype=float).reshape(-1)
     to_refine = [n for n in table if n in refined] if axes else []
     starts = {}
     for n in to_refine:
         order = np.argsort(-np.nan_to_num(table[n], nan=-np.inf))[:4]
-        starts[n] = np.vstack([bits[order], np.full((1, len(axes)), 0.5)])
+        starts[n] = np.vstack([bits[order % len(bits)], np.full((1, len(axes)), 0.5)])
     refined_max = _refine_max(spec, axes, to_refine, starts) if to_refine else {}
+    def corner_of(i: int, u: np.ndarray) -> dict[str, dict[str, object]]:
+        c = corner_setting(spec, dict(zip(axes, u, strict=True)))
+        if i >= n_vertex:
+            c["junction_c"] = {"setting": "self_heated", "value": float(tj_heated[i - n_vertex])}
+        return c
+
     for name, values in table.items():
         i_min, i_max = int(np.nanargmin(values)), int(np.nanargmax(values))
         v_min, v_max = float(values[i_min]), float(values[i_max])
-        u_max = bits[i_max]
+        u_min, u_max = bits[i_min % n_vertex], bits[i_max % n_vertex]
+        c_max = corner_of(i_max, u_max)
         if name in refined_max and refined_max[name][0] > v_max * (1 + 1e-12):
             v_max, u_max = refined_max[name]
-        bounds[name] = Bound(v_min, v_max,
-                             corner_setting(spec, dict(zip(axes, bits[i_min], strict=True))),
-                             corner_setting(spec, dict(zip(axes, u_max, strict=True))),
-                             bits[i_min], np.asarray(u_max))
+            c_max = corner_of(0, u_max)
+        bounds[name] = Bound(v_min, v_max, corner_of(i_min, u_min), c_max, u_min,
+                             np.asarray(u_max))
     region = np.asarray(ev.op.region).reshape(-1)
+    if heated is not None:
+        region = np.concatenate([region, np.asarray(heated.op.region).reshape(-1)])
     bad = np.flatnonzero(region != 0)
     from .operating_point import region_names
 
     seen = tuple(sorted(set(region_names(region).tolist())))
-    example = corner_setting(spec, dict(zip(axes, bits[bad[0]], strict=True))) \
-        if bad.size else None
+    example = corner_of(int(bad[0]), bits[bad[0] % n_vertex]) if bad.size else None
     return WorstCase(axes=axes, bounds=bounds, n_vertices=len(bits), vertex_eval=ev,
                      regions_seen=seen, non_active_corners=int(bad.size),
                      non_active_example=example)

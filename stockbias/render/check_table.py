@@ -34,6 +34,9 @@ def corner_text(corner: dict | None) -> str:
     parts = []
     for axis, item in corner.items():
         setting, value = item["setting"], float(item["value"])
+        if axis == "junction_c":
+            parts.append(f"TJ {value:.3g} °C self-heated")
+            continue
         if axis == "ambient_c":
             parts.append(f"{value:.3g} °C" if setting != "interior" else f"T~{value:.3g} °C")
             continue

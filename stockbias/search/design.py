@@ -1,0 +1,732 @@
+"""`design`: ranked designs from stock that meet every worst-case limit (DESIGN §2).
+
+Data flow
+    stock + job → candidate tables per role (:mod:`.candidates`) → for every network
+    and transistor, the IC-setting roles that can keep IC in the window
+    (:func:`.prepass.enumerate_cores`, ``searchsorted`` intervals, never the full cross
+    product) → best-first over those *cores* in the order of a lexicographic lower
+    bound of the objectives: the free role's admissible set (:func:`.prepass.
+    free_role_bounds`), exact objective keys, every limit at every vertex
+    (:func:`.prepass.vertex_check`), re-verification of the best designs with
+    :func:`stockbias.analysis.check.analyze_stage` (the path ``check`` uses) → an
+    upper bound κ on the K-th best key → stop when the next core's lower bound exceeds κ
+    (proof that no unseen design ranks in the top K) → CP-SAT (:mod:`.model`,
+    :mod:`.solve`) picks the lexicographic top K from what is left, with the stock and
+    BOM constraints → every pick re-verified before it is shown.
+
+What is proven
+    Rejections are exact at a vertex (see :mod:`.prepass`); lower bounds are
+    componentwise lower bounds of the objective vector (so lexicographic lower bounds);
+    κ comes from re-verified, stock-feasible designs only; hence ``optimal`` means no
+    design the search did not return ranks above the returned ones.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..analysis.check import CheckResult, analyze_stage
+from ..errors import InputError
+from ..job import TOPOLOGY_NAMES, Job
+from ..parts import Inventory, Transistor
+from ..topologies import get_network
+from .candidates import RoleCandidates, Shelf, build_shelf, micro, usable_transistors
+from .model import ModelDesign
+from .prepass import (
+    PLANS,
+    Rows,
+    free_role_bounds,
+    materialise,
+    rc_allowed_power,
+    row_cuts,
+    vertex_check,
+)
+from .solve import solve_ranked
+
+__all__ = ["Design", "DesignResult", "design", "objective_key"]
+
+_BIG = np.iinfo(np.int64).max // 4
+_REL = 1e-12
+EXPONENTIAL_MAX_DESIGNS = 300_000
+
+Progress = Callable[[str, float], None]
+
+
+@dataclass(frozen=True)
+class Design:
+    """One ranked design with its re-verification."""
+
+    rank: int
+    topology: str
+    transistor: Transistor
+    check: CheckResult
+    cost: float
+    cost_micro: int
+    part_count: int
+    distinct_values: int
+    bom_lines: int
+    ic_margin: float
+
+    def to_dict(self) -> dict[str, object]:
+        c = self.check.to_dict()
+        parts = {}
+        for role, p in self.check.parts.items():
+            ids: object = p.part_ids[0] if len(p.parts) == 1 else p.part_ids
+            parts[role] = {"part_id": ids, "value_ohm": p.value, "tolerance_pct": 100 * p.tol,
+                           "arrangement": p.arrangement}
+        return {
+            "rank": self.rank, "topology": self.topology,
+            "polarity": self.transistor.polarity, "cost": self.cost,
+            "cost_micro": self.cost_micro, "part_count": self.part_count,
+            "distinct_values": self.distinct_values, "bom_lines": self.bom_lines,
+            "ic_margin": self.ic_margin,
+            "transistor": {"part_id": self.transistor.part_id,
+                           "polarity": self.transistor.polarity},
+            "parts": parts, "absent": [r for r in get_network(self.topology).optional_roles
+                                       if r not in parts],
+            "ok": self.check.ok, "worst_case": c["worst_case"],
+            "constraints": c["constraints"], "nominal": c["nominal"],
+            "warnings": self.check.warnings, "cautions": self.check.cautions,
+        }
+
+
+@dataclass
+class DesignResult:
+    """What :func:`design` returns.  ``status``: optimal | feasible | infeasible | unknown."""
+
+    status: str
+    solve_seconds: float
+    designs: list[Design]
+    objectives: tuple[str, ...]
+    explanation: object | None = None
+    bound: dict[str, float] = field(default_factory=dict)
+    stats: dict[str, object] = field(default_factory=dict)
+    assumptions: list[str] = field(default_factory=list)
+    excluded_transistors: list[dict[str, str]] = field(default_factory=list)
+
+    @property
+    def found(self) -> bool:
+        return bool(self.designs)
+
+    def to_dict(self) -> dict[str, object]:
+        return {
+            "status": self.status, "solve_seconds": self.solve_seconds,
+            "objectives": list(self.objectives),
+            "proven": self.status in ("optimal", "infeasible"),
+            "bound": self.bound,
+            "designs": [d.to_dict() for d in self.designs],
+            "explanation": None if self.explanation is None else self.explanation.to_dict(),
+            "assumptions": self.assumptions, "stats": self.stats,
+            "excluded_transistors": self.excluded_transistors,
+        }
+
+
+def objective_key(objectives: tuple[str, ...], cost: np.ndarray, parts: np.ndarray,
+                  distinct: np.ndarray, bom: np.ndarray, margin_ppm: np.ndarray) -> np.ndarray:
+    """Integer key columns (all minimised) in the job's objective order."""
+    cols = {"cost": cost, "part_count": parts, "distinct_values": distinct, "bom_lines": bom,
+            "ic_margin": -margin_ppm, "changes": np.zeros_like(cost)}
+    return np.stack([np.asarray(cols[o], dtype=np.int64) for o in objectives], axis=-1) \
+        if len(cost) else np.zeros((0, len(objectives)), dtype=np.int64)
+
+
+def margin_ppm(ic_lo: np.ndarray, ic_hi: np.ndarray, ic_min: float, ic_max: float,
+               target: float) -> np.ndarray:
+    """ic_margin in ppm of the target (floor(x·1e6) is monotone, so bounds stay bounds)."""
+    m = np.minimum(ic_lo - ic_min, ic_max - ic_hi) / target
+    return np.floor(np.nan_to_num(m, nan=-1e3) * 1e6 + 1e-6).astype(np.int64)
+
+
+def _lex_le(keys: np.ndarray, kappa: np.ndarray) -> np.ndarray:
+    """Rows of ``keys`` lexicographically ≤ ``kappa``."""
+    res = np.zeros(keys.shape[0], dtype=bool)
+    eq = np.ones(keys.shape[0], dtype=bool)
+    for j in range(keys.shape[1]):
+        res |= eq & (keys[:, j] < kappa[j])
+        eq &= keys[:, j] == kappa[j]
+    return res | eq
+
+
+def _count_distinct(cols: list[np.ndarray]) -> np.ndarray:
+    """Distinct non-negative ids per row across columns (−1 = none)."""
+    if not cols:
+        return np.zeros(0, dtype=np.int64)
+    total = np.zeros(cols[0].shape, dtype=np.int64)
+    for i, x in enumerate(cols):
+        new = x >= 0
+        for y in cols[:i]:
+            new &= x != y
+        total += new
+    return total
+
+
+@dataclass
+class _Block:
+    """One (network, transistor): candidate tables and the rows of the enumerated roles.
+
+    Constant VBE: ``rows`` holds the interval cuts; cores are made per chunk of rows.
+    Exponential: ``idx``/``ic_hi``/``ic_lo`` hold full designs already checked at every
+    vertex (``exact``), one per row.
+    """
+
+    network: str
+    q_index: int
+    transistor: Transistor
+    cands: dict[str, RoleCandidates]
+    core_roles: tuple[str, ...]
+    free: str | None
+    rows: Rows | None = None
+    idx: dict[str, np.ndarray] | None = None
+    ic_hi: np.ndarray | None = None
+    ic_lo: np.ndarray | None = None
+    exact: bool = False
+
+    @property
+    def n_rows(self) -> int:
+        return self.rows.size if self.rows is not None else int(self.ic_hi.size)
+
+    def cores(self, sel: np.ndarray) -> tuple[dict[str, np.ndarray], np.ndarray, np.ndarray]:
+        if self.exact:
+            return {r: v[sel] for r, v in self.idx.items()}, self.ic_hi[sel], self.ic_lo[sel]
+        c = materialise(self.network, self.transistor, self.cands, self.rows, sel)
+        return c.idx, c.ic_hi, c.ic_lo
+
+
+def _sparse(a: np.ndarray, fn) -> list[np.ndarray]:
+    """Sparse table for O(1) range min/max queries."""
+    out = [a]
+    k = 1
+    while 2 * k <= a.size:
+        prev = out[-1]
+        out.append(fn(prev[:-k], prev[k:]))
+        k *= 2
+    return out
+
+
+def _range(table: list[np.ndarray], i0: np.ndarray, i1: np.ndarray, fn, empty) -> np.ndarray:
+    """fn over a[i0:i1] for each row (``empty`` where the range is empty)."""
+    n = i1 - i0
+    ok = n > 0
+    lev = np.zeros_like(n)
+    lev[ok] = np.floor(np.log2(n[ok])).astype(np.int64)
+    out = np.full(n.shape, empty, dtype=table[0].dtype)
+    for level in np.unique(lev[ok]):
+        m = ok & (lev == level)
+        t = table[int(level)]
+        out[m] = fn(t[i0[m]], t[i1[m] - (1 << int(level))])
+    return out
+
+
+@dataclass
+class _Pool:
+    """Designs that passed every vertex, with exact keys."""
+
+    block: list[int] = field(default_factory=list)
+    roles: list[dict[str, int]] = field(default_factory=list)
+    keys: list[np.ndarray] = field(default_factory=list)
+    margin: list[float] = field(default_factory=list)
+    status: list[int] = field(default_factory=list)  # 0 unchecked, 1 every vertex ok, 2 fails
+
+
+class _Search:
+    def __init__(self, job: Job, inventory: Inventory, top: int, deadline: float,
+                 progress: Progress | None):
+        self.job, self.inv, self.top, self.deadline = job, inventory, top, deadline
+        self.progress = progress
+        self.stage = job.stage
+        self.objectives = tuple(job.search.objectives)
+        self.shelf: Shelf = build_shelf(job, inventory)
+        self.pairs = job.build.allow_pairs and self.shelf.with_pairs is not None
+        self.transistors, self.excluded = usable_transistors(job, inventory)
+        topo = self.stage.topology
+        if topo == "any":
+            self.networks = [n for n in TOPOLOGY_NAMES
+                             if n != "dual_supply" or job.supply.negative_volts is not None]
+        else:
+            self.networks = [topo]
+        self.blocks: list[_Block] = []
+        self.pool = _Pool()
+        self.verified: dict[tuple, CheckResult | None] = {}
+        self.rejected_on_verification = 0
+        self._cache: dict[tuple, object] = {}
+        self.stats: dict[str, int] = {"cores": 0, "designs_vertex_checked": 0,
+                                      "designs_kept": 0, "verified": 0}
+
+    # --- candidate generation -------------------------------------------------------
+    def build_blocks(self) -> None:
+        for net_name in self.networks:
+            net = get_network(net_name)
+            cands = {r.name: self.shelf.candidates(r.optional, self.pairs) for r in net.roles}
+            plan = PLANS[net_name]
+            for qi, q in enumerate(self.transistors):
+                if self.job.search.model == "exponential":
+                    self.blocks.append(self._exponential_block(net_name, qi, q, cands))
+                    continue
+                rows = row_cuts(self.job, self.stage, net_name, q, cands)
+                roles = (*plan.enumerated, plan.interval)
+                self.blocks.append(_Block(net_name, qi, q, cands, roles, plan.free, rows=rows))
+                self.stats["rows"] = self.stats.get("rows", 0) + rows.size
+
+    def _exponential_block(self, net_name: str, qi: int, q: Transistor,
+                           cands: dict[str, RoleCandidates]) -> _Block:
+        """Exponential model: the full cross product, every vertex (no closed-form cut)."""
+        roles = tuple(cands)
+        sizes = [len(cands[r]) for r in roles]
+        total = int(np.prod(sizes))
+        if total > EXPONENTIAL_MAX_DESIGNS:
+            raise InputError(
+                f"the exponential model is searched without closed-form pruning; {net_name} "
+                f"with this shelf has {total} assignments per transistor (limit "
+                f"{EXPONENTIAL_MAX_DESIGNS}); search with model = \"constant_vbe\" and check "
+                "the result with the exponential model", column="model", text="exponential")
+        mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
+        idx = {r: m.reshape(-1) for r, m in zip(roles, mesh, strict=True)}
+        chk = vertex_check(self.job, self.stage, net_name, q,
+                           {r: (cands[r], idx[r]) for r in roles})
+        self.stats["designs_vertex_checked"] += total
+        ok = chk["ok"]
+        idx = {r: v[ok] for r, v in idx.items()}
+        self.stats["cores"] += int(ok.sum())
+        return _Block(net_name, qi, q, cands, roles, None, idx=idx, ic_hi=chk["ic_max"][ok],
+                      ic_lo=chk["ic_min"][ok], exact=True)
+
+    def row_bounds(self, b: _Block) -> tuple[np.ndarray, np.ndarray]:
+        """(row ids with any core, LB key per row): a componentwise lower bound of every
+        design the row can lead to (so a lexicographic lower bound)."""
+        t = self.stage.target
+        if b.exact:
+            sel = np.arange(b.n_rows)
+            return sel, self._keys(b, b.idx, b.core_roles, b.ic_lo, b.ic_hi, lower=True)
+        rows = b.rows
+        plan = PLANS[b.network]
+        sel = np.flatnonzero(rows.i1 > rows.i0)
+        i0, i1 = rows.i0[sel], rows.i1[sel]
+        xc = b.cands[plan.interval]
+        tabs = self._tables(b)
+        cost = np.full(sel.size, micro(b.transistor.unit_cost), dtype=np.int64)
+        parts = np.ones(sel.size, dtype=np.int64)
+        vals, lines = [], []
+        for r in plan.enumerated:
+            c, i = b.cands[r], rows.grid[r][sel]
+            cost += c.cost[i]
+            parts += c.parts[i]
+            vals += [c.value_a[i], c.value_b[i]]
+            lines += [c.line_a[i], c.line_b[i]]
+        cost += _range(tabs["cost"], i0, i1, np.minimum, 0)
+        parts += _range(tabs["parts"], i0, i1, np.minimum, 0)
+        if b.free is not None:
+            fc = b.cands[b.free]
+            cost += int(fc.cost.min())
+            parts += int(fc.parts.min())
+        distinct = _count_distinct(vals)
+        if not self.pairs:
+            # the design adds a value unless the interval role (or the free role) can repeat
+            # one; the interval role can only repeat one in its cut, which we test exactly
+            match = np.zeros(sel.size, dtype=bool)
+            for v in vals[::2]:
+                has = v >= 0
+                vv = self.shelf.values[np.where(has, v, 0)]
+                p0 = np.searchsorted(xc.value, vv, "left")
+                p1 = np.searchsorted(xc.value, vv, "right")
+                match |= has & (np.maximum(i0, p0) < np.minimum(i1, p1))
+            absent = xc.arrangement[i0] < 0
+            distinct = distinct + (~match & ~absent)
+        bom = _count_distinct(lines) + 1
+        hi_x = _range(tabs["low_max"], i0, i1, np.maximum, 0.0)
+        lo_x = _range(tabs["high_min"], i0, i1, np.minimum, np.inf)
+        ic_hi = np.full(sel.size, -np.inf)
+        for n_, d0 in rows.hi_terms:
+            ic_hi = np.maximum(ic_hi, rows.alpha_hi * n_[sel] / (d0[sel] + hi_x) + rows.icbo_hi)
+        ic_lo = np.full(sel.size, np.inf)
+        for n_, d0 in rows.lo_terms:
+            ic_lo = np.minimum(ic_lo, rows.alpha_lo * n_[sel] / (d0[sel] + lo_x) + rows.icbo_lo)
+        mppm = margin_ppm(ic_lo, ic_hi, t.ic_min, t.ic_max, t.ic)
+        return sel, objective_key(self.objectives, cost, parts, distinct, bom, mppm)
+
+    def _tables(self, b: _Block) -> dict[str, list[np.ndarray]]:
+        key = (b.network, "tables")
+        if key not in self._cache:
+            xc = b.cands[PLANS[b.network].interval]
+            self._cache[key] = {"cost": _sparse(xc.cost, np.minimum),
+                                "parts": _sparse(xc.parts, np.minimum),
+                                "low_max": _sparse(xc.low, np.maximum),
+                                "high_min": _sparse(xc.high, np.minimum)}
+        return self._cache[key]
+
+    def _keys(self, b: _Block, idx: dict[str, np.ndarray], roles: tuple[str, ...],
+              ic_lo: np.ndarray, ic_hi: np.ndarray, lower: bool = False) -> np.ndarray:
+        t = self.stage.target
+        n = ic_lo.size
+        cost = np.full(n, micro(b.transistor.unit_cost), dtype=np.int64)
+        parts = np.ones(n, dtype=np.int64)
+        vals, lines = [], []
+        for r in roles:
+            c, i = b.cands[r], idx[r]
+            cost += c.cost[i]
+            parts += c.parts[i]
+            vals += [c.value_a[i], c.value_b[i]]
+            lines += [c.line_a[i], c.line_b[i]]
+        mppm = margin_ppm(ic_lo, ic_hi, t.ic_min, t.ic_max, t.ic)
+        return objective_key(self.objectives, cost, parts, _count_distinct(vals),
+                             _count_distinct(lines) + 1, mppm)
+
+    # --- expansion of a chunk of cores into full designs ---------------------------
+    def expand(self, b: _Block, sel: np.ndarray, kappa: np.ndarray) -> None:
+        """Rows → cores → full designs with exact keys ≤ κ that pass every vertex."""
+        t = self.stage.target
+        idx, ic_hi, ic_lo = b.cores(sel)
+        self.stats["cores"] += int(ic_hi.size)
+        if ic_hi.size == 0:
+            return
+        if not b.exact:
+            lb = self._keys(b, idx, b.core_roles, ic_lo, ic_hi)
+            if b.free is not None:
+                fc = b.cands[b.free]
+                j = [self.objectives.index(o) for o in ("cost", "part_count")
+                     if o in self.objectives]
+                add = {"cost": int(fc.cost.min()), "part_count": int(fc.parts.min())}
+                for o, col in zip([o for o in ("cost", "part_count") if o in self.objectives],
+                                  j, strict=True):
+                    lb[:, col] += add[o]
+            ok = _lex_le(lb, kappa)
+            idx = {r: v[ok] for r, v in idx.items()}
+            ic_hi, ic_lo = ic_hi[ok], ic_lo[ok]
+        core_row = np.arange(ic_hi.size)
+        if b.free is not None:
+            fc = b.cands[b.free]
+            h, low_need, ic_top = free_role_bounds(self.job, self.stage, b.network,
+                                                   b.transistor, b.cands, idx)
+            f_hi = float(np.min(fc.high / fc.value))
+            f_lo = float(np.max(fc.low / fc.value))
+            with np.errstate(invalid="ignore", divide="ignore"):
+                j1 = np.searchsorted(fc.value, np.where(np.isfinite(h), h / f_hi, h)
+                                     * (1 + _REL), "right")
+                j0 = np.searchsorted(fc.value, low_need / f_lo * (1 - _REL), "left")
+            counts = np.maximum(j1 - j0, 0)
+            total = int(counts.sum())
+            row = np.repeat(core_row, counts)
+            fj = np.repeat(j0, counts) + np.arange(total) - np.repeat(np.cumsum(counts)
+                                                                      - counts, counts)
+            allowed = rc_allowed_power(self.job, self.stage, fc.rating[fj])
+            keep = ((fc.high[fj] <= h[row] * (1 + _REL))
+                    & (fc.low[fj] >= low_need[row] * (1 - _REL))
+                    & (ic_top[row] ** 2 * fc.high[fj] <= allowed * (1 + 1e-9)))
+            row, fj = row[keep], fj[keep]
+            idx = {r: v[row] for r, v in idx.items()}
+            idx[b.free] = fj
+            ic_hi, ic_lo = ic_hi[row], ic_lo[row]
+        roles = (*b.core_roles, *((b.free,) if b.free else ()))
+        n = ic_hi.size
+        if n == 0:
+            return
+        cost = np.full(n, micro(b.transistor.unit_cost), dtype=np.int64)
+        parts = np.ones(n, dtype=np.int64)
+        vals, lines = [], []
+        for r in roles:
+            c, i = b.cands[r], idx[r]
+            cost += c.cost[i]
+            parts += c.parts[i]
+            vals += [c.value_a[i], c.value_b[i]]
+            lines += [c.line_a[i], c.line_b[i]]
+        distinct = _count_distinct(vals)
+        bom = _count_distinct(lines) + 1
+        mppm = margin_ppm(ic_lo, ic_hi, t.ic_min, t.ic_max, t.ic)
+        key = objective_key(self.objectives, cost, parts, distinct, bom, mppm)
+        keep = _lex_le(key, kappa)
+        k_block = self.blocks.index(b)
+        for i in np.flatnonzero(keep):
+            self.pool.block.append(k_block)
+            self.pool.roles.append({r: int(idx[r][i]) for r in roles})
+            self.pool.keys.append(key[i].copy())
+            self.pool.margin.append(float(mppm[i]) / 1e6)
+            self.pool.status.append(1 if b.exact else 0)
+        self.stats["designs_kept"] += int(keep.sum())
+
+    def vertex_verify(self, ks: list[int]) -> None:
+        """Check pool designs at every vertex; exact margins replace the corner bounds."""
+        t = self.stage.target
+        todo = [k for k in ks if self.pool.status[k] == 0]
+        by_block: dict[int, list[int]] = {}
+        for k in todo:
+            by_block.setdefault(self.pool.block[k], []).append(k)
+        col = self.objectives.index("ic_margin") if "ic_margin" in self.objectives else None
+        for bi, group in by_block.items():
+            b = self.blocks[bi]
+            roles = tuple(self.pool.roles[group[0]])
+            arr = {r: (b.cands[r], np.array([self.pool.roles[k][r] for k in group]))
+                   for r in roles}
+            chk = vertex_check(self.job, self.stage, b.network, b.transistor, arr)
+            self.stats["designs_vertex_checked"] += len(group)
+            mppm = margin_ppm(chk["ic_min"], chk["ic_max"], t.ic_min, t.ic_max, t.ic)
+            for j, k in enumerate(group):
+                self.pool.status[k] = 1 if chk["ok"][j] else 2
+                self.pool.margin[k] = float(mppm[j]) / 1e6
+                if col is not None:
+                    self.pool.keys[k][col] = -mppm[j]
+
+    # --- verification ---------------------------------------------------------------
+    def resolved(self, k: int):
+        b = self.blocks[self.pool.block[k]]
+        parts = {}
+        for role, i in self.pool.roles[k].items():
+            p = self.shelf.resolved(role, b.cands[role], i)
+            if p is not None:
+                parts[role] = p
+        return b, parts
+
+    def stock_ok(self, k: int) -> bool:
+        _b, parts = self.resolved(k)
+        count: dict[str, int] = {}
+        for p in parts.values():
+            for part in p.parts:
+                count[part.part_id] = count.get(part.part_id, 0) + 1
+        need = self.job.build.quantity
+        return all(self.inv.find_resistor(pid).qty >= c * need for pid, c in count.items())
+
+    def verify(self, k: int) -> CheckResult | None:
+        ck = (self.pool.block[k], tuple(sorted(self.pool.roles[k].items())))
+        if ck not in self.verified:
+            b, parts = self.resolved(k)
+            samples = 2000 if self.stage.target.yield_min is not None else 0
+            res = analyze_stage(self.job, self.stage, parts, b.transistor, samples=samples,
+                                seed=self.job.search.seed, topology=b.network)
+            self.stats["verified"] += 1
+            if not res.ok:
+                self.rejected_on_verification += 1
+            self.verified[ck] = res if res.ok else None
+        return self.verified[ck]
+
+    def kappa(self) -> np.ndarray:
+        """Key of the K-th best re-verified, stock-feasible design of the pool (∞ if fewer).
+
+        Designs are checked lazily in key order: at every vertex first (which can only
+        raise a key, the margin being exact afterwards), then by ``analyze_stage``.
+        """
+        inf = np.full(len(self.objectives), _BIG, dtype=np.int64)
+        if not self.pool.keys:
+            return inf
+        while True:
+            keys = np.stack(self.pool.keys)
+            live = np.flatnonzero(np.asarray(self.pool.status) != 2)
+            order = live[np.lexsort(keys[live].T[::-1])]
+            head = [int(k) for k in order[:4 * self.top + 16]]
+            unchecked = [k for k in head if self.pool.status[k] == 0]
+            if unchecked:
+                self.vertex_verify(unchecked)
+                continue
+            good = 0
+            for k in order:
+                k = int(k)
+                if self.pool.status[k] == 0:
+                    break                      # past the checked head: check more first
+                if not self.stock_ok(k) or self.verify(k) is None:
+                    continue
+                good += 1
+                if good >= self.top:
+                    return keys[k]
+                if time.monotonic() > self.deadline:
+                    return inf
+            else:
+                return inf
+            self.vertex_verify([int(k) for k in order if self.pool.status[int(k)] == 0]
+                               [:4 * self.top + 16])
+
+    # --- the whole search ------------------------------------------------------------
+    def run(self) -> tuple[str, dict[str, float]]:
+        self.build_blocks()
+        bids, rids, keys = [], [], []
+        for k, b in enumerate(self.blocks):
+            sel, key = self.row_bounds(b)
+            bids.append(np.full(sel.size, k))
+            rids.append(sel)
+            keys.append(key)
+        m = len(self.objectives)
+        bid = np.concatenate(bids) if bids else np.zeros(0, dtype=np.int64)
+        rid = np.concatenate(rids) if rids else np.zeros(0, dtype=np.int64)
+        key = np.concatenate(keys) if keys else np.zeros((0, m), dtype=np.int64)
+        comp = _composite(key)
+        done = np.zeros(bid.size, dtype=bool)
+        kappa = np.full(m, _BIG, dtype=np.int64)
+        batch = 4096
+        complete = True
+        bound: dict[str, float] = {}
+        while True:
+            ids = np.flatnonzero(~done & _lex_le(key, kappa))
+            if ids.size == 0:
+                break
+            finite = bool(np.all(kappa < _BIG))
+            if not finite and ids.size > batch:
+                ids = ids[np.argpartition(comp[ids], batch)[:batch]]
+            ids = ids[np.lexsort((ids, comp[ids]))]
+            chunk, pos, restart = 256, 0, False
+            while pos < ids.size:
+                if time.monotonic() > self.deadline:
+                    complete = False
+                    bound[self.objectives[0]] = float(key[ids[pos], 0])
+                    break
+                part = ids[pos:pos + chunk]
+                part = part[_lex_le(key[part], kappa)]
+                if part.size == 0:
+                    break
+                for k in np.unique(bid[part]):
+                    self.expand(self.blocks[int(k)], rid[part[bid[part] == k]], kappa)
+                done[ids[pos:pos + chunk]] = True
+                pos += chunk
+                chunk = min(chunk * 2, 65536)
+                new = self.kappa()
+                if self.progress is not None:
+                    self.progress("searching", float(done.mean()) if done.size else 1.0)
+                if not finite and np.all(new < _BIG):
+                    kappa, restart = new, True
+                    break
+                kappa = new
+            if not complete:
+                break
+            if not restart:
+                done[ids] = True
+                batch *= 4
+        return ("complete" if complete else "timeout"), bound
+
+
+def _composite(key: np.ndarray) -> np.ndarray:
+    """One sortable number per row in the lexicographic order of ``key`` (float64 ties are
+    broken afterwards by a stable sort on the row id; an order only, never a proof)."""
+    if key.size == 0:
+        return np.zeros(key.shape[0])
+    comp = np.zeros(key.shape[0])
+    for j in range(key.shape[1]):
+        col = key[:, j].astype(float)
+        lo, hi = col.min(), col.max()
+        span = hi - lo + 1.0
+        comp = comp * span + (col - lo)
+    return comp
+
+
+def design(job: Job, inventory: Inventory, *, top: int | None = None,
+           time_limit_s: float | None = None, progress: Progress | None = None
+           ) -> DesignResult:
+    """Ranked designs for a one-stage job from the stock (DESIGN §2, §3).
+
+    Parameters
+    ----------
+    job : Job
+        One stage; its topology (or ``"any"``), model, objectives, build quantity.
+    inventory : Inventory
+    top : int, optional
+        How many designs (default: the job's ``top``).
+    time_limit_s : float, optional
+        Wall-clock limit for the whole search, s (default: the job's).
+    progress : callable(stage: str, fraction: float), optional
+
+    Returns
+    -------
+    DesignResult
+    """
+    if job.is_board:
+        raise InputError("design takes a one-stage job; this file is a board of "
+                         f"{len(job.stages)} stages", file=job.path, column="stage")
+    t0 = time.monotonic()
+    top = job.search.top if top is None else int(top)
+    limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
+    deadline = t0 + limit
+    s = _Search(job, inventory, top, deadline, progress)
+    done, bound = s.run()
+    pool_keys = np.stack(s.pool.keys) if s.pool.keys else np.zeros((0, len(s.objectives)))
+    kappa = s.kappa()
+    if len(pool_keys):
+        s.vertex_verify([int(k) for k in np.flatnonzero(_lex_le(pool_keys, kappa))])
+        pool_keys = np.stack(s.pool.keys)
+        keep = np.flatnonzero(_lex_le(pool_keys, kappa) & (np.asarray(s.pool.status) == 1))
+    else:
+        keep = np.zeros(0, dtype=np.int64)
+    mdesigns: list[ModelDesign] = []
+    cand_ids: dict[tuple[str, tuple], int] = {}
+    topo_ids = {n: i for i, n in enumerate(s.networks)}
+    for k in keep:
+        b = s.blocks[s.pool.block[k]]
+        roles, pieces, values, rcost = {}, {}, {}, {}
+        for role, i in s.pool.roles[k].items():
+            c = b.cands[role]
+            if c.arrangement[i] < 0:
+                continue
+            ident = (int(c.arrangement[i]), int(c.line_a[i]), int(c.line_b[i]))
+            cid = cand_ids.setdefault((role, ident), 1 + sum(1 for x in cand_ids if x[0] == role))
+            roles[role] = cid
+            pieces[role] = tuple(x for x in (int(c.line_a[i]), int(c.line_b[i])) if x >= 0)
+            values[role] = tuple(x for x in (int(c.value_a[i]), int(c.value_b[i])) if x >= 0)
+            rcost[role] = int(c.cost[i])
+        mdesigns.append(ModelDesign(topo_ids[b.network], b.q_index, roles, pieces, values,
+                                    round(s.pool.margin[k] * 1e6),
+                                    micro(b.transistor.unit_cost), rcost))
+    line_qty = [r.qty for r in s.shelf.lines]
+
+    def accept(i: int) -> bool:
+        return s.verify(int(keep[i])) is not None
+
+    ranked, status, _rej = solve_ranked(mdesigns, s.objectives, line_qty, job.build.quantity,
+                                        top, job.search.seed, max(deadline, time.monotonic()
+                                                                   + 1.0), accept)
+    if done != "complete" and status == "optimal":
+        status = "feasible"
+    if done != "complete" and status == "infeasible":
+        status = "unknown"
+    designs: list[Design] = []
+    for rank, r in enumerate(ranked, start=1):
+        k = int(keep[r.design])
+        res = s.verify(k)
+        assert res is not None
+        b = s.blocks[s.pool.block[k]]
+        parts = res.parts
+        vals = {part.value_ohm for p in parts.values() for part in p.parts}
+        lines = {part.part_id for p in parts.values() for part in p.parts}
+        cost = b.transistor.unit_cost + sum(p.unit_cost for p in parts.values())
+        designs.append(Design(
+            rank=rank, topology=b.network, transistor=b.transistor, check=res,
+            cost=cost, cost_micro=micro(b.transistor.unit_cost)
+            + sum(micro(part.unit_cost) for p in parts.values() for part in p.parts),
+            part_count=1 + sum(len(p.parts) for p in parts.values()),
+            distinct_values=len(vals), bom_lines=len(lines) + 1, ic_margin=s.pool.margin[k]))
+    elapsed = time.monotonic() - t0
+    stats = dict(s.stats)
+    stats.update({"networks": s.networks, "transistors": [q.part_id for q in s.transistors],
+                  "resistor_lines": len(s.shelf.lines),
+                  "candidates_per_role": len(s.shelf.with_pairs if s.pairs else s.shelf.single),
+                  "model_designs": len(mdesigns),
+                  "rejected_on_verification": s.rejected_on_verification})
+    result = DesignResult(status=status, solve_seconds=elapsed, designs=designs,
+                          objectives=s.objectives, bound=bound, stats=stats,
+                          excluded_transistors=[{"part_id": q.part_id, "reason": why}
+                                                for q, why in s.excluded])
+    result.assumptions = _assumptions(job, designs)
+    if not designs:
+        from .explain import explain
+
+        result.explanation = explain(job, inventory, s, status)
+        result.solve_seconds = time.monotonic() - t0
+    return result
+
+
+def _assumptions(job: Job, designs: list[Design]) -> list[str]:
+    out = []
+    if designs:
+        seen: list[str] = []
+        for d in designs:
+            for a in d.check.assumptions:
+                if a not in seen:
+                    seen.append(a)
+        out += seen
+    if job.stage.target.yield_min is not None:
+        out.append("the search requires every worst-case corner to pass, which implies the "
+                   "yield target; designs that meet the yield only statistically are not "
+                   "searched")
+    out.append("ic_margin is compared in steps of 1 ppm of the target current")
+    return out
+
+
+def _finite(x: float) -> float | None:
+    return x if math.isfinite(x) else None

@@ -1,0 +1,414 @@
+"""Vectorised worst-case pre-pass: which partial and full assignments can possibly work.
+
+Soundness rule
+    Every rejection made here is *exact at a vertex*: a candidate is dropped only
+    when the stage, evaluated at one named vertex of the tolerance box (a point that
+    :func:`stockbias.analysis.worst_case.worst_case` also evaluates), either leaves
+    the active region or breaks a limit there.  The closed-form constant-VBE active
+    solution is used at that vertex; where it says IC is out of the window, the
+    real solution there is either that active point (the window fails) or not active
+    (the active-region limit fails).  So no feasible design is ever rejected, whether
+    or not the monotonicity below holds for a given part; monotonicity only decides
+    *which* vertices to look at, i.e. how much is pruned.
+
+Monotonicity used to pick the vertices (constant VBE, active region; tested in
+``tests/test_search_prepass.py`` by sampling the box)
+    For all four networks IE = N/(D0 + X) with X the interval role (divider RE,
+    collector_feedback RC, dual_supply RE, fixed_base RE) and IC = α·IE + ICBO, so IC
+    falls with X.  IC rises with β (α and IE both rise when N > 0), with ICBO, with
+    the ambient (β rises with XTB ≥ 0, VBE falls, ICBO rises) and falls with VBE.  It
+    rises with VCC (divider, collector_feedback, fixed_base; dual_supply: with |VEE|,
+    not VCC).  Divider: IC falls with R1 and rises with R2 (DESIGN §2);
+    collector_feedback: falls with RE; RB of collector_feedback, dual_supply and
+    fixed_base has a sign that depends on ICBO·(β+1)·(series R) against the drive
+    voltage, so both of its ends are evaluated.  VCE = VRAIL_C − IC·RC − VE falls with
+    RC; its direction in VCC and in X is ambiguous, so both ends are evaluated.
+
+Interval of the last role
+    For each assignment of the enumerated roles and each transistor, IC ≤ ic_max at
+    the IC-max vertex gives X_low ≥ A = N/IE_hi − D0, and IC ≥ ic_min at the IC-min
+    vertex gives X_high ≤ B; the candidates with nominal values in the superset
+    [A / max(low/value), B / min(high/value)] are cut by ``searchsorted`` from the
+    sorted table and then filtered exactly.  The full cross product of the roles is
+    never formed.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..analysis import device
+from ..analysis.constraints import evaluate_limits, stage_limits
+from ..analysis.ratings import allowed_resistor_power
+from ..analysis.stage import DeviceSpec, ResistorSpec, StageSpec, evaluate
+from ..analysis.worst_case import vertex_points
+from ..job import Job, Stage
+from ..parts import Transistor
+from ..topologies import get_network
+from .candidates import RoleCandidates
+
+__all__ = [
+    "PLANS",
+    "Corners",
+    "Plan",
+    "Rows",
+    "corners",
+    "enumerate_cores",
+    "free_role_bounds",
+    "ie_terms",
+    "materialise",
+    "row_cuts",
+    "vertex_check",
+]
+
+_REL = 1e-12  # relative slack in the keeping direction (never reject on rounding)
+
+
+@dataclass(frozen=True)
+class Plan:
+    """How the pre-pass walks a network: enumerated roles, interval role, free role.
+
+    ``ic_dir``: sign of ∂IC/∂R for each enumerated role (+1, −1, or 0: evaluate both ends).
+    """
+
+    enumerated: tuple[str, ...]
+    interval: str
+    free: str | None
+    ic_dir: dict[str, int]
+
+
+PLANS = {
+    "divider": Plan(("R1", "R2"), "RE", "RC", {"R1": -1, "R2": +1}),
+    "collector_feedback": Plan(("RB", "RE"), "RC", None, {"RB": 0, "RE": -1}),
+    "dual_supply": Plan(("RB",), "RE", "RC", {"RB": 0}),
+    "fixed_base": Plan(("RB",), "RE", "RC", {"RB": 0}),
+}
+
+
+@dataclass(frozen=True)
+class Corners:
+    """Device and supply values at the IC-max ("hi") and IC-min ("lo") vertices, NPN frame.
+
+    vcc, vee : V (vee a magnitude, 0 for single supply); beta, vbe (V), icbo (A); temp_c.
+    """
+
+    vcc_hi: float
+    vcc_lo: float
+    vee_hi: float
+    vee_lo: float
+    beta_hi: float
+    beta_lo: float
+    vbe_hi: float
+    vbe_lo: float
+    icbo_hi: float
+    icbo_lo: float
+    vce_sat: float
+
+
+def corners(job: Job, q: Transistor) -> Corners:
+    """The two IC-extreme vertices of a transistor's box (constant-VBE model)."""
+    env, s = job.environment, job.supply
+    hot, cold = env.ambient_max_c, env.ambient_min_c
+    tk = device.CELSIUS_TO_KELVIN
+    vee = abs(s.negative_volts) if s.negative_volts is not None else 0.0
+    tv = s.vee_tolerance_pct / 100
+    return Corners(
+        vcc_hi=s.volts * (1 + s.tolerance_pct / 100), vcc_lo=s.volts * (1 - s.tolerance_pct / 100),
+        vee_hi=vee * (1 + tv), vee_lo=vee * (1 - tv),
+        beta_hi=float(device.beta_at(q.hfe_max, hot + tk, xtb=q.xtb)),
+        beta_lo=float(device.beta_at(q.hfe_min, cold + tk, xtb=q.xtb)),
+        vbe_hi=float(device.vbe_at(q.vbe_min, hot)), vbe_lo=float(device.vbe_at(q.vbe_max, cold)),
+        icbo_hi=float(device.icbo_at(q.icbo_a, hot)), icbo_lo=0.0, vce_sat=q.vce_sat)
+
+
+def ie_terms(network: str, r: dict[str, np.ndarray], vcc, vee, beta, vbe, icbo
+             ) -> tuple[np.ndarray, np.ndarray]:
+    """(N, D0) with IE = N / (D0 + X) in the active region, constant VBE, NPN frame.
+
+    ``r`` holds the enumerated roles (ohm, 0 = absent); X is the plan's interval role.
+    vcc, vee : V (vee a magnitude); beta; vbe : V; icbo : A.
+    """
+    b1 = beta + 1.0
+    if network == "divider":
+        r1, r2 = r["R1"], r["R2"]
+        vbb, rbb = vcc * r2 / (r1 + r2), r1 * r2 / (r1 + r2)
+        return vbb - vbe + rbb * icbo, rbb / b1
+    if network == "collector_feedback":
+        rb = r["RB"]
+        return vcc - vbe + rb * icbo, r["RE"] + rb / b1
+    if network == "dual_supply":
+        rb = r["RB"]
+        return vee - vbe + rb * icbo, rb / b1
+    if network == "fixed_base":
+        rb = r["RB"]
+        return vcc - vbe + rb * icbo, rb / b1
+    raise KeyError(network)
+
+
+@dataclass(frozen=True)
+class Cores:
+    """Assignments of the IC-setting roles that survive the window, for one transistor.
+
+    ``idx``: role → candidate index arrays (enumerated roles and the interval role);
+    ``ic_hi``/``ic_lo``: IC at the IC-max / IC-min vertices (A; the true worst case is at
+    least as wide, so the margin from them is an upper bound on the true margin).
+    """
+
+    idx: dict[str, np.ndarray]
+    ic_hi: np.ndarray
+    ic_lo: np.ndarray
+    examined: int
+    row: np.ndarray | None = None
+
+
+def _ends(plan: Plan, cands: dict[str, RoleCandidates], grid: dict[str, np.ndarray],
+          up: bool) -> list[dict[str, np.ndarray]]:
+    """Resistance settings of the enumerated roles at the IC-max (up) or IC-min vertex."""
+    settings: list[dict[str, np.ndarray]] = [{}]
+    for role in plan.enumerated:
+        c = cands[role]
+        lo, hi = c.low[grid[role]], c.high[grid[role]]
+        d = plan.ic_dir[role]
+        if d == 0:
+            settings = [{**s, role: v} for s in settings for v in (lo, hi)]
+        else:
+            pick = hi if (d > 0) == up else lo
+            settings = [{**s, role: pick} for s in settings]
+    return settings
+
+
+@dataclass(frozen=True)
+class Rows:
+    """Assignments of the enumerated roles (one transistor) with the interval role's cut.
+
+    ``grid``: role → candidate index per row; ``a_thr``/``b_thr``: X_low ≥ A and X_high ≤ B
+    (ohm); ``i0``/``i1``: the superset index range in the sorted interval-role table.
+    """
+
+    grid: dict[str, np.ndarray]
+    a_thr: np.ndarray
+    b_thr: np.ndarray
+    i0: np.ndarray
+    i1: np.ndarray
+    hi_terms: list[tuple[np.ndarray, np.ndarray]]
+    lo_terms: list[tuple[np.ndarray, np.ndarray]]
+    alpha_hi: float
+    alpha_lo: float
+    icbo_hi: float
+    icbo_lo: float
+
+    @property
+    def size(self) -> int:
+        return int(self.a_thr.size)
+
+
+def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
+             cands: dict[str, RoleCandidates]) -> Rows:
+    """The interval of the last IC-setting role for every row of the enumerated roles."""
+    plan = PLANS[network]
+    cn = corners(job, q)
+    t = stage.target
+    sizes = [len(cands[r]) for r in plan.enumerated]
+    mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
+    grid = {r: m.reshape(-1) for r, m in zip(plan.enumerated, mesh, strict=True)}
+    m = grid[plan.enumerated[0]].size
+    alpha_hi = cn.beta_hi / (cn.beta_hi + 1)
+    alpha_lo = cn.beta_lo / (cn.beta_lo + 1)
+    ie_max = (t.ic_max - cn.icbo_hi) / alpha_hi          # largest IE allowed at IC-max vertex
+    ie_min = (t.ic_min - cn.icbo_lo) / alpha_lo          # smallest IE needed at IC-min vertex
+    a_thr = np.full(m, -np.inf)
+    hi_terms = []
+    for s in _ends(plan, cands, grid, up=True):
+        n_, d0 = ie_terms(network, s, cn.vcc_hi, cn.vee_hi, cn.beta_hi, cn.vbe_hi, cn.icbo_hi)
+        hi_terms.append((n_, d0))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            thr = np.where(n_ > 0, n_ / ie_max - d0, np.inf) if ie_max > 0 else np.full(m, np.inf)
+        a_thr = np.maximum(a_thr, thr)
+    b_thr = np.full(m, np.inf)
+    lo_terms = []
+    for s in _ends(plan, cands, grid, up=False):
+        n_, d0 = ie_terms(network, s, cn.vcc_lo, cn.vee_lo, cn.beta_lo, cn.vbe_lo, cn.icbo_lo)
+        lo_terms.append((n_, d0))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            thr = np.where(n_ > 0, n_ / ie_min - d0 if ie_min > 0 else np.inf, -np.inf)
+        b_thr = np.minimum(b_thr, thr)
+    xc = cands[plan.interval]
+    present = xc.value > 0
+    f_lo = float(np.max(xc.low[present] / xc.value[present])) if present.any() else 1.0
+    f_hi = float(np.min(xc.high[present] / xc.value[present])) if present.any() else 1.0
+    with np.errstate(invalid="ignore"):
+        i0 = np.searchsorted(xc.value, np.where(np.isfinite(a_thr), a_thr / f_lo, a_thr)
+                             * (1 - _REL), "left")
+        i1 = np.searchsorted(xc.value, np.where(np.isfinite(b_thr), b_thr / f_hi, b_thr)
+                             * (1 + _REL), "right")
+    return Rows(grid, a_thr, b_thr, i0, np.maximum(i1, i0), hi_terms, lo_terms, alpha_hi,
+                alpha_lo, cn.icbo_hi, cn.icbo_lo)
+
+
+def materialise(network: str, q: Transistor, cands: dict[str, RoleCandidates], rows: Rows,
+                sel: np.ndarray | None = None) -> Cores:
+    """Cores of the selected rows: each row × each interval-role candidate that passes."""
+    plan = PLANS[network]
+    sel = np.arange(rows.size) if sel is None else np.asarray(sel)
+    xc = cands[plan.interval]
+    i0, i1 = rows.i0[sel], rows.i1[sel]
+    counts = i1 - i0
+    total = int(counts.sum())
+    rloc = np.repeat(np.arange(sel.size), counts)
+    offs = np.arange(total) - np.repeat(np.cumsum(counts) - counts, counts)
+    xi = np.repeat(i0, counts) + offs
+    row = sel[rloc]
+    x_lo, x_hi = xc.low[xi], xc.high[xi]
+    keep = (x_lo >= rows.a_thr[row] * (1 - _REL) - 1e-300) & \
+        (x_hi <= rows.b_thr[row] * (1 + _REL))
+    row, xi, x_lo, x_hi = row[keep], xi[keep], x_lo[keep], x_hi[keep]
+    ic_hi = np.full(row.size, -np.inf)
+    for n_, d0 in rows.hi_terms:
+        ic_hi = np.maximum(ic_hi, rows.alpha_hi * n_[row] / (d0[row] + x_lo) + rows.icbo_hi)
+    ic_lo = np.full(row.size, np.inf)
+    for n_, d0 in rows.lo_terms:
+        ic_lo = np.minimum(ic_lo, rows.alpha_lo * n_[row] / (d0[row] + x_hi) + rows.icbo_lo)
+    ok = ic_hi <= q.ic_max * (1 + _REL)                   # IC rating at the IC-max vertex
+    idx = {r: rows.grid[r][row[ok]] for r in plan.enumerated}
+    idx[plan.interval] = xi[ok]
+    return Cores(idx=idx, ic_hi=ic_hi[ok], ic_lo=ic_lo[ok], examined=int(sel.size),
+                 row=row[ok])
+
+
+def enumerate_cores(job: Job, stage: Stage, network: str, q: Transistor,
+                    cands: dict[str, RoleCandidates]) -> Cores:
+    """Every (enumerated roles × interval role) assignment whose IC can stay in the window.
+
+    The enumerated roles are crossed (they are few); the interval role is cut per row
+    by ``searchsorted`` and then filtered exactly (see the module notes).
+    """
+    return materialise(network, q, cands, row_cuts(job, stage, network, q, cands))
+
+
+def free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor,
+                     cands: dict[str, RoleCandidates], idx: dict[str, np.ndarray]
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """For each core: the largest RC high end and the smallest RC low end a vertex allows.
+
+    H: at every checked vertex (IC-max device corner, both VCC ends, both ends of the
+    interval role and of ambiguous roles) VCE = VRAIL_C − VE − IC·RC must stay at or above
+    max(VCE(sat), vce_min, VCE(sat) + swing); L: IC·(RC‖RL) ≥ swing at the IC-min vertex.
+    Also returns IC at the IC-max vertex with the interval role at its low end (A), for the
+    RC dissipation check.
+    """
+    plan = PLANS[network]
+    cn = corners(job, q)
+    t = stage.target
+    need = max(cn.vce_sat, t.vce_min, cn.vce_sat + (t.swing_pk or 0.0))
+    n = idx[plan.interval].size
+    h = np.full(n, np.inf)
+    ic_top = np.zeros(n)
+    xc = cands[plan.interval]
+    settings: list[dict[str, np.ndarray]] = [{}]
+    for role in plan.enumerated:
+        c = cands[role]
+        lo, hi = c.low[idx[role]], c.high[idx[role]]
+        d = plan.ic_dir[role]
+        settings = [{**s, role: v} for s in settings
+                    for v in ((lo, hi) if d == 0 else ((hi,) if d > 0 else (lo,)))]
+    alpha = cn.beta_hi / (cn.beta_hi + 1)
+    for s in settings:
+        for vcc in (cn.vcc_hi, cn.vcc_lo):
+            n_, d0 = ie_terms(network, s, vcc, cn.vee_hi, cn.beta_hi, cn.vbe_hi, cn.icbo_hi)
+            for x in (xc.low[idx[plan.interval]], xc.high[idx[plan.interval]]):
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    ie = n_ / (d0 + x)
+                    ic = alpha * ie + cn.icbo_hi
+                    ve = ie * x - cn.vee_hi                 # NPN frame, RAIL_E = −|VEE| or 0
+                    hh = np.where(ic > 0, (vcc - ve - need) / ic, -np.inf)
+                h = np.minimum(h, hh)
+                ic_top = np.maximum(ic_top, ic)
+    low_need = np.zeros(n)
+    if t.swing_pk:
+        ic_min = np.full(n, np.inf)
+        lo_s = [{}]
+        for role in plan.enumerated:
+            c = cands[role]
+            lo, hi = c.low[idx[role]], c.high[idx[role]]
+            d = plan.ic_dir[role]
+            lo_s = [{**s, role: v} for s in lo_s
+                    for v in ((lo, hi) if d == 0 else ((lo,) if d > 0 else (hi,)))]
+        for s in lo_s:
+            n_, d0 = ie_terms(network, s, cn.vcc_lo, cn.vee_lo, cn.beta_lo, cn.vbe_lo, 0.0)
+            ic_min = np.minimum(ic_min, cn.beta_lo / (cn.beta_lo + 1) * n_
+                                / (d0 + xc.high[idx[plan.interval]]))
+        g = ic_min / t.swing_pk - 1.0 / job.small_signal.load
+        with np.errstate(divide="ignore"):
+            low_need = np.where(g > 0, 1.0 / g, np.inf)
+    return h, low_need, ic_top
+
+
+def rc_allowed_power(job: Job, stage: Stage, rating: np.ndarray) -> np.ndarray:
+    """Allowed dissipation of a resistor of this rating at the hottest ambient, W."""
+    lim = stage.limits
+    return allowed_resistor_power(rating, job.environment.ambient_max_c, lim.resistor_derating,
+                                  lim.derating_knee_c, lim.derating_zero_c)
+
+
+def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
+                 roles: dict[str, tuple[RoleCandidates, np.ndarray]],
+                 chunk: int = 2048) -> dict[str, np.ndarray]:
+    """Every limit of :func:`stage_limits` at every vertex, for arrays of full designs.
+
+    ``roles``: role → (candidate table, index array), all index arrays the same length.
+    Returns ``ok`` (bool), ``ic_min``/``ic_max`` (vertex bounds, A), ``vce_min`` (V), and the
+    margins of every limit (``m_<name>``).  Vertex bounds of the dissipations are lower
+    bounds of the refined bounds that ``check`` reports, so ``ok`` False is a proof of
+    failure, and ``ok`` True is confirmed by re-verification.
+    """
+    net = get_network(network)
+    n = next(iter(roles.values()))[1].size
+    out: dict[str, list[np.ndarray]] = {}
+    dev = DeviceSpec.from_transistor(q)
+    for s0 in range(0, n, chunk):
+        sl = slice(s0, min(n, s0 + chunk))
+        res, ratings = {}, {}
+        for role, (c, ix) in roles.items():
+            i = ix[sl]
+            res[role] = ResistorSpec(c.value[i], c.tol[i], c.drift[i])
+            ratings[role] = c.rating[i]
+        spec = StageSpec(network=net, resistors=res, device=dev, vcc=job.supply.volts,
+                         vcc_tol=job.supply.tolerance_pct / 100, vee=job.supply.negative_volts,
+                         vee_tol=job.supply.vee_tolerance_pct / 100,
+                         ambient_min_c=job.environment.ambient_min_c,
+                         ambient_max_c=job.environment.ambient_max_c, model=job.search.model,
+                         load=job.small_signal.load, re_bypassed=job.small_signal.re_bypassed)
+        point, _bits = vertex_points(spec)
+        ev = evaluate(spec, point)
+        qv = ev.quantities
+        low: dict[str, np.ndarray] = {}
+        high: dict[str, np.ndarray] = {}
+        with np.errstate(all="ignore"):
+            import warnings
+
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                for name, arr in qv.items():
+                    a = np.asarray(arr, dtype=float)
+                    if a.ndim == 0:
+                        continue
+                    a = np.broadcast_to(a, ev.op.shape)
+                    low[name] = np.nanmin(a, axis=-1)
+                    high[name] = np.nanmax(a, axis=-1)
+        nonactive = np.sum(np.asarray(ev.op.region) != 0, axis=-1).astype(float)
+        low["non_active_corners"] = high["non_active_corners"] = nonactive
+        low["vceo_needed"] = high["vceo_needed"] = np.full(nonactive.shape,
+                                                           job.supply.max_ce_voltage)
+        limits = stage_limits(job, stage, spec, ratings)
+        margins = evaluate_limits(limits, low, high)
+        ok = np.ones(nonactive.shape, dtype=bool)
+        for name, mg in margins.items():
+            ok &= mg >= 0
+            out.setdefault(f"m_{name}", []).append(mg)
+        out.setdefault("ok", []).append(ok)
+        out.setdefault("ic_min", []).append(low["ic"])
+        out.setdefault("ic_max", []).append(high["ic"])
+        out.setdefault("vce_min", []).append(low["vce"])
+    return {k: np.concatenate(v) if v else np.zeros(0) for k, v in out.items()}
