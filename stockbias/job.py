@@ -302,7 +302,8 @@ class _Parser:
 
     def target(self, t: dict[str, Any], section: str, occurrence: int = 0) -> Target:
         self.check_keys(t, section, set(_SECTIONS["target"]), occurrence)
-        q = {k: self.quantity(t, section, k, occurrence=occurrence) for k in _SECTIONS["target"]}
+        q: dict[str, Any] = {k: self.quantity(t, section, k, occurrence=occurrence)
+                             for k in _SECTIONS["target"]}
         has_window = q["ic"] is not None or q["ic_window_pct"] is not None
         has_bounds = q["ic_min"] is not None or q["ic_max"] is not None
         if has_window and has_bounds:
@@ -356,8 +357,8 @@ class _Parser:
                occurrence: int = 0) -> Limits:
         self.check_keys(t, section, set(_SECTIONS["limits"]), occurrence)
         base = base or Limits()
-        q = {k: self.quantity(t, section, k, getattr(base, k), occurrence)
-             for k in _SECTIONS["limits"]}
+        q: dict[str, Any] = {k: self.quantity(t, section, k, getattr(base, k), occurrence)
+                             for k in _SECTIONS["limits"]}
         if q["supply_power_max"] is not None and q["supply_power_max"] <= 0:
             raise self.error("supply_power_max must be positive", section, "supply_power_max",
                              t["supply_power_max"], occurrence)
@@ -368,7 +369,7 @@ class _Parser:
         if q["derating_knee_c"] >= q["derating_zero_c"]:
             raise self.error("derating_knee_c must be below derating_zero_c", section,
                              "derating_knee_c", t.get("derating_knee_c"), occurrence)
-        return Limits(**q)  # type: ignore[arg-type]
+        return Limits(**q)
 
     def environment(self, doc: dict[str, Any]) -> Environment:
         t = self.table(doc, "environment")

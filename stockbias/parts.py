@@ -249,7 +249,8 @@ class Inventory:
 
     def part(self, part_id: str) -> Resistor | Transistor:
         """The row with this stock code; KeyError if there is none."""
-        for row in (*self.resistors, *self.transistors):
+        rows: tuple[Resistor | Transistor, ...] = (*self.resistors, *self.transistors)
+        for row in rows:
             if row.part_id == part_id:
                 return row
         raise KeyError(part_id)

@@ -71,7 +71,8 @@ def summarise(inv: Inventory) -> StockSummary:
         resistance_min=min(values) if values else None,
         resistance_max=max(values) if values else None,
         series_of_value=series, series_counts=counts,
-        zero_qty=[p.part_id for p in (*inv.resistors, *inv.transistors) if p.qty == 0],
+        zero_qty=[r.part_id for r in inv.resistors if r.qty == 0]
+        + [t.part_id for t in inv.transistors if t.qty == 0],
         links=[r.part_id for r in inv.resistors if r.is_link],
         assumptions={t.part_id: t.assumptions() for t in inv.transistors if t.assumptions()},
         extra_columns=list(inv.extra_columns),

@@ -10,6 +10,7 @@ in the quantity's unit.  The margin is positive when the constraint passes.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 import numpy as np
@@ -53,7 +54,7 @@ class ConstraintResult:
 
 
 def stage_limits(job: Job, stage: Stage, spec: StageSpec,
-                 resistor_ratings: dict[str, float | np.ndarray]) -> list[Limit]:
+                 resistor_ratings: Mapping[str, float | np.ndarray]) -> list[Limit]:
     """Every constraint of one stage.
 
     Parameters

@@ -33,22 +33,20 @@ class MonteCarloResult:
     seed: int
 
     def to_dict(self) -> dict[str, object]:
-        d = self.yield_.to_dict()
+        d: dict[str, object] = dict(self.yield_.to_dict())
         d["seed"] = self.seed
         d["failures_by_constraint"] = dict(self.failing)
         return d
 
 
-def _environment_corners(spec: StageSpec) -> list[dict[str, float]]:
-    vcc = (spec.vcc * (1 - spec.vcc_tol), spec.vcc * (1 + spec.vcc_tol))
-    amb = (spec.ambient_min_c, spec.ambient_max_c)
+def _environment_corners(spec: StageSpec) -> list[dict[str, float | None]]:
+    """Both supply extremes (and negative-supply extremes) × both ambient extremes."""
+    vcc = sorted({spec.vcc * (1 - spec.vcc_tol), spec.vcc * (1 + spec.vcc_tol)})
+    amb = sorted({spec.ambient_min_c, spec.ambient_max_c})
+    vee: list[float | None] = [None]
     if spec.network.supply == "dual" and spec.vee is not None:
-        vee = (spec.vee * (1 - spec.vee_tol), spec.vee * (1 + spec.vee_tol))
-    else:
-        vee = (None,)
-    return [{"vcc": a, "vee": b, "ambient": c}
-            for a, b, c in itertools.product(sorted(set(vcc)), sorted(set(vee), key=str),
-                                             sorted(set(amb)))]
+        vee = [*sorted({spec.vee * (1 - spec.vee_tol), spec.vee * (1 + spec.vee_tol)})]
+    return [{"vcc": a, "vee": b, "ambient": c} for a, b, c in itertools.product(vcc, vee, amb)]
 
 
 def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int,

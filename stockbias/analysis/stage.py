@@ -411,7 +411,7 @@ def evaluate(spec: StageSpec, point: StagePoint, *, small_signal: bool = True,
     rpi = r_pi(beta, gm)
     vcb = np.maximum(op.vce - op.vbe, 0.0)
     ro = r_o(ic_pos, np.asarray(d.vaf_v, dtype=float), vcb)
-    re_u = 0.0
+    re_u: float | np.ndarray = 0.0
     if not spec.re_bypassed and "RE" in point.r:
         re_u = point.r["RE"]
     rc = point.r["RC"]

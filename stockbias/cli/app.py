@@ -31,10 +31,11 @@ class _OneLineErrors(TyperGroup):
 
     def main(self, args: Sequence[str] | None = None, prog_name: str | None = None,
              complete_var: str | None = None, standalone_mode: bool = True,
-             **extra: Any) -> Any:
+             windows_expand_args: bool = True, **extra: Any) -> Any:
         try:
             rv = super().main(args=args, prog_name=prog_name, complete_var=complete_var,
-                              standalone_mode=False, **extra)
+                              standalone_mode=False, windows_expand_args=windows_expand_args,
+                              **extra)
         except UsageError as exc:
             where = f" ({exc.ctx.command_path})" if exc.ctx is not None else ""
             typer.echo(f"stockbias: usage error{where}: {_flatten(exc.format_message())}",

@@ -34,7 +34,8 @@ def check(
     summary = summarise(inv)
     if json_out:
         payload = {"file": str(file), "valid": True,
-                   "parts": [p.to_dict() for p in (*inv.resistors, *inv.transistors)],
+                   "parts": [r.to_dict() for r in inv.resistors]
+                   + [t.to_dict() for t in inv.transistors],
                    "problems": [],
                    "warnings": [{"line": w[0], "column": w[1], "text": w[2], "message": w[3]}
                                 for w in inv.warnings],

@@ -102,7 +102,8 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
     nom = result.nominal
     region = str(nom["region"])
     console.print(f"[bold]Nominal Q-point[/bold] ({nom['temperature_c']:g} °C, β "
-                  f"{float(nom['beta']):.3g}, nominal values and supply): region {region.upper()}")
+                  f"{float(nom['beta']):.3g}, nominal values and supply): "  # type: ignore[arg-type]
+                  f"region {region.upper()}")
     line = "  ".join(f"{_LABELS[k]} {_q(float(nom[k]), _UNITS[k])}"  # type: ignore[arg-type]
                      for k in ("ic", "ib", "vce", "vb", "vc", "ve", "pd", "supply_power"))
     console.print("  " + line)
