@@ -71,10 +71,11 @@ app = typer.Typer(
 
 
 def _register() -> None:
-    from . import check_cmd, demo_cmd, stock_cmd
+    from . import check_cmd, demo_cmd, design_cmd, stock_cmd
 
     app.command("demo")(demo_cmd.demo)
     app.command("check")(check_cmd.check)
+    app.command("design")(design_cmd.design)
     app.add_typer(stock_cmd.app, name="stock")
 
 
