@@ -608,8 +608,8 @@ def _composite(key: np.ndarray) -> np.ndarray:
 
 
 def design(job: Job, inventory: Inventory, *, top: int | None = None,
-           time_limit_s: float | None = None, progress: Progress | None = None
-           ) -> DesignResult:
+           time_limit_s: float | None = None, progress: Progress | None = None,
+           _explain: bool = True) -> DesignResult:
     """Ranked designs for a one-stage job from the stock (DESIGN §2, §3).
 
     Parameters
@@ -703,7 +703,7 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
                           excluded_transistors=[{"part_id": q.part_id, "reason": why}
                                                 for q, why in s.excluded])
     result.assumptions = _assumptions(job, designs)
-    if not designs:
+    if not designs and _explain:
         from .explain import explain
 
         result.explanation = explain(job, inventory, s, status)

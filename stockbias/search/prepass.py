@@ -35,6 +35,8 @@ Interval of the last role
 
 from __future__ import annotations
 
+import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -42,7 +44,13 @@ import numpy as np
 from ..analysis import device
 from ..analysis.constraints import evaluate_limits, stage_limits
 from ..analysis.ratings import allowed_resistor_power
-from ..analysis.stage import DeviceSpec, ResistorSpec, StageSpec, evaluate
+from ..analysis.stage import (
+    DeviceSpec,
+    ResistorSpec,
+    StageSpec,
+    evaluate,
+    self_heated_temperature,
+)
 from ..analysis.worst_case import vertex_points
 from ..job import Job, Stage
 from ..parts import Transistor
@@ -381,23 +389,25 @@ def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
                          ambient_max_c=job.environment.ambient_max_c, model=job.search.model,
                          load=job.small_signal.load, re_bypassed=job.small_signal.re_bypassed)
         point, _bits = vertex_points(spec)
-        ev = evaluate(spec, point)
-        qv = ev.quantities
+        evs = [evaluate(spec, point)]
+        if not math.isnan(float(np.asarray(dev.theta_ja, dtype=float))):
+            # as check does: the device also at its self-heated junction temperature
+            evs.append(evaluate(spec, point,
+                                device_temp_c=self_heated_temperature(spec, point)))
         low: dict[str, np.ndarray] = {}
         high: dict[str, np.ndarray] = {}
-        with np.errstate(all="ignore"):
-            import warnings
-
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", RuntimeWarning)
-                for name, arr in qv.items():
-                    a = np.asarray(arr, dtype=float)
-                    if a.ndim == 0:
-                        continue
-                    a = np.broadcast_to(a, ev.op.shape)
-                    low[name] = np.nanmin(a, axis=-1)
-                    high[name] = np.nanmax(a, axis=-1)
-        nonactive = np.sum(np.asarray(ev.op.region) != 0, axis=-1).astype(float)
+        with np.errstate(all="ignore"), warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            for name in evs[0].quantities:
+                parts = [np.broadcast_to(np.asarray(e.quantities[name], dtype=float),
+                                         e.op.shape) for e in evs]
+                if parts[0].ndim == 0:
+                    continue
+                a = np.concatenate(parts, axis=-1)
+                low[name] = np.nanmin(a, axis=-1)
+                high[name] = np.nanmax(a, axis=-1)
+        nonactive = sum(np.sum(np.asarray(e.op.region) != 0, axis=-1) for e in evs)
+        nonactive = np.asarray(nonactive, dtype=float)
         low["non_active_corners"] = high["non_active_corners"] = nonactive
         low["vceo_needed"] = high["vceo_needed"] = np.full(nonactive.shape,
                                                            job.supply.max_ce_voltage)

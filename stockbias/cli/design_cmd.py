@@ -1,0 +1,71 @@
+"""`stockbias design JOB --inventory FILE`: ranked designs from the stock."""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from ..errors import InputError
+from ..render.console import make_console
+from ..render.json_out import dumps
+from .common import InventoryOpt, JobArg, JsonOpt, load
+
+
+def design(
+    job_file: JobArg,
+    inventory: InventoryOpt,
+    top: Annotated[int | None, typer.Option("--top", min=1, max=1000,
+                                            help="How many designs (default: the job's).")
+                   ] = None,
+    time_limit: Annotated[float | None, typer.Option(
+        "--time-limit", min=0.1, max=86400.0,
+        help="Seconds for the whole search (default: the job's).")] = None,
+    json_out: JsonOpt = False,
+    save: Annotated[Path | None, typer.Option("--save", dir_okay=False,
+                                              help="Also write the JSON result to FILE.")
+                    ] = None,
+) -> None:
+    """Search the stock for the best designs that meet every worst-case limit."""
+    from ..search.design import design as run_design
+
+    job, inv = load(job_file, inventory)
+    assert inv is not None
+    console = make_console(stderr=True)
+    progress = None
+    bar = None
+    if not json_out and console.is_terminal:
+        from rich.progress import Progress
+
+        bar = Progress(console=console, transient=True)
+        task = bar.add_task("searching the shelf", total=1.0)
+        started = time.monotonic()
+
+        def progress(stage: str, fraction: float) -> None:
+            if time.monotonic() - started > 1.0 and not bar.live.is_started:
+                bar.start()
+            bar.update(task, completed=fraction, description=stage)
+    try:
+        result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress)
+    finally:
+        if bar is not None and bar.live.is_started:
+            bar.stop()
+    payload = result.to_dict()
+    payload["job"] = str(job_file)
+    payload["inventory"] = str(inventory)
+    text = dumps(payload)
+    if save is not None:
+        try:
+            save.write_text(text + "\n", encoding="utf-8")
+        except OSError as exc:
+            raise InputError(f"cannot write the result: {exc.strerror}", file=str(save)) from None
+    if json_out:
+        typer.echo(text)
+    else:
+        from ..render.design_table import render_design
+
+        render_design(make_console(), job, result)
+    if not result.designs:
+        raise typer.Exit(1)
