@@ -7,11 +7,12 @@ from typing import Annotated
 
 import typer
 
-from ..errors import StockFileError
+from ..errors import InputError, StockFileError
 from ..render.console import make_console
 from ..render.json_out import dumps
 from ..stock_io import read_inventory
 from ..stock_summary import summarise
+from .export_cmd import FromOpt, RankOpt, TransistorOpt, ValuesOpt
 
 app = typer.Typer(help="Check and look after a stock file.", no_args_is_help=True)
 
@@ -45,3 +46,52 @@ def check(
     from ..render.stock_table import render_stock_summary
 
     render_stock_summary(make_console(), inv, summary)
+
+
+@app.command("reserve")
+def reserve(
+    file: Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True,
+                                         writable=True, help="The stock CSV file to change.")],
+    job_file: Annotated[Path, typer.Option("--job", "-j", exists=True, dir_okay=False,
+                                           readable=True, help="The job (TOML) file.")],
+    rank: RankOpt = None,
+    from_file: FromOpt = None,
+    values: ValuesOpt = None,
+    transistor: TransistorOpt = None,
+    quantity: Annotated[int | None, typer.Option(
+        "--quantity", "-q", min=1, help="Boards to build (default: the job's [build] "
+        "quantity).")] = None,
+    dry_run: Annotated[bool, typer.Option("--dry-run", help="Show what would be taken; "
+                                          "write nothing.")] = False,
+    json_out: Annotated[bool, typer.Option("--json",
+                                           help="Print only a JSON object on stdout.")] = False,
+) -> None:
+    """Take the pieces for a build off the stock file (atomic, with a timestamped backup)."""
+    from ..job import load_job
+    from ..render.pick_list import render_reservation
+    from ..selection import bench_needs, resolve_selection
+    from ..stock_write import reserve_stock
+    from .export_cmd import select
+
+    job = load_job(job_file)
+    boards = job.build.quantity if quantity is None else quantity
+    selection = select(job, read_inventory(file), rank, from_file, values, transistor)
+
+    def takes(inv):  # run on the file as read under the lock
+        parts, t = resolve_selection(job, selection, inv)
+        needs = bench_needs(parts, t, boards)
+        off = [n for n in needs if not n.part_id]
+        if off:
+            raise InputError("reserve takes stock parts only, and "
+                             f"{', '.join(n.roles[0] for n in off)} is not a stock part; "
+                             "nothing written", column="--values",
+                             text=selection.assignment_text())
+        return {n.part_id: n.quantity for n in needs}
+
+    res = reserve_stock(file, takes, dry_run=dry_run, build_label=f" for {boards} board(s)")
+    if json_out:
+        payload = res.to_dict()
+        payload.update({"build_quantity": boards, "selection": selection.to_dict()})
+        typer.echo(dumps(payload))
+        return
+    render_reservation(make_console(), res, boards)

@@ -1,0 +1,95 @@
+"""The pick list for a build (by stock location) and the record of a reservation.
+
+Lines are sorted by location, then part id, so one walk along the drawers
+pulls everything; values that are not in stock come last, marked.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from collections.abc import Sequence
+from pathlib import Path
+
+from rich.console import Console
+from rich.table import Table
+
+from ..errors import InputError
+from ..selection import Need
+from ..stock_write import Reservation
+
+__all__ = ["PICK_LIST_COLUMNS", "pick_list_csv", "pick_order", "render_pick_list",
+           "render_reservation", "write_pick_list"]
+
+PICK_LIST_COLUMNS = ("location", "part_id", "kind", "value", "roles", "per_board", "pull",
+                     "in_stock", "remaining")
+
+
+def pick_order(needs: Sequence[Need]) -> list[Need]:
+    """Stock lines by location then part id; off-stock values last."""
+    return sorted(needs, key=lambda n: (n.part_id == "", n.location == "", n.location.lower(),
+                                        n.part_id.lower(), n.roles))
+
+
+def _row(n: Need) -> list[str]:
+    return [n.location, n.part_id, n.kind, n.description, " ".join(n.roles), str(n.per_board),
+            str(n.quantity), "" if n.in_stock is None else str(n.in_stock),
+            "" if n.remaining is None else str(n.remaining)]
+
+
+def pick_list_csv(needs: Sequence[Need]) -> str:
+    """The pick list as CSV text (header :data:`PICK_LIST_COLUMNS`, ``\\n`` line ends)."""
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow(PICK_LIST_COLUMNS)
+    for n in pick_order(needs):
+        writer.writerow(_row(n))
+    return buf.getvalue()
+
+
+def write_pick_list(path: str | Path, needs: Sequence[Need]) -> None:
+    """Write the pick list CSV (UTF-8)."""
+    try:
+        Path(path).write_text(pick_list_csv(needs), encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"cannot write the pick list: {exc.strerror}", file=str(path),
+                         column="--pick-list") from None
+
+
+def render_pick_list(console: Console, needs: Sequence[Need], build_quantity: int,
+                     title: str | None = None) -> None:
+    """The pick list as a terminal table; short lines in red."""
+    table = Table(title=title or f"Pick list for {build_quantity} board(s), by location",
+                  title_justify="left")
+    for col, justify in (("location", "left"), ("part id", "left"), ("value", "left"),
+                         ("roles", "left"), ("per board", "right"), ("pull", "right"),
+                         ("in stock", "right"), ("left after", "right")):
+        table.add_column(col, justify=justify)  # type: ignore[arg-type]
+    for n in pick_order(needs):
+        left = "" if n.remaining is None else str(n.remaining)
+        if n.short:
+            left = f"[bold red]{left or 'not in stock'}[/bold red]"
+        table.add_row(n.location, n.part_id or "-", n.description, " ".join(n.roles),
+                      str(n.per_board), str(n.quantity),
+                      "" if n.in_stock is None else str(n.in_stock), left)
+    console.print(table)
+    short = [n for n in needs if n.short]
+    if short:
+        console.print("[bold red]short[/bold red]: " + "; ".join(
+            f"{n.part_id or n.description} needs {n.quantity}, "
+            f"{'none in stock' if n.in_stock is None else f'{n.in_stock} in stock'}"
+            for n in short))
+
+
+def render_reservation(console: Console, res: Reservation, build_quantity: int) -> None:
+    """What a reservation took (or, in a dry run, would take)."""
+    verb = "Reserved" if res.written else "Would reserve (dry run, nothing written)"
+    table = Table(title=f"{verb} for {build_quantity} board(s) in {res.path}",
+                  title_justify="left")
+    for col in ("part id", "line", "before", "taken", "after"):
+        table.add_column(col, justify="left" if col == "part id" else "right")
+    for c in res.changes:
+        table.add_row(c.part_id, str(c.line), str(c.before), str(c.taken), str(c.after))
+    console.print(table)
+    if res.backup:
+        console.print(f"Backup of the previous file: {res.backup}")

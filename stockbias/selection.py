@@ -1,0 +1,391 @@
+"""Which design the bench commands act on: a search rank, a saved result, or given values.
+
+``export``, ``stock reserve`` and the pick list all work on one chosen stage.
+It is named in one of three ways on the command line:
+
+* ``--rank N``: run the design search on the job and take the N-th design;
+* ``--from RESULT.json``: a result saved by ``design --save`` (or its
+  ``--json`` output), design ``--rank N`` within it (default 1);
+* ``--values ROLE=...,... --transistor ID``: parts given by hand.
+
+Each becomes one :class:`Selection` (topology, transistor part id and the
+``ROLE=`` assignment text that :func:`stockbias.analysis.check.analyze`
+takes; a pair is written ``A+B`` or ``A|B``).  :func:`bench_needs` counts
+what a resolved selection takes from the shelf for a build.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Any
+
+from .assign import ResolvedResistor, parse_assignments, resolve_resistor
+from .errors import InputError, UnmetError
+from .job import TOPOLOGY_NAMES, Job
+from .parts import Inventory, Transistor
+from .topologies import get_network
+from .units import format_quantity
+
+__all__ = [
+    "Need",
+    "ResultFileError",
+    "Selection",
+    "bench_needs",
+    "choose",
+    "from_design",
+    "from_result_file",
+    "from_search",
+    "from_values",
+    "resolve_selection",
+]
+
+_ARRANGEMENT_SIGN = {"series": "+", "parallel": "|"}
+
+
+class ResultFileError(InputError):
+    """A saved design result that is not in the shape ``design --save`` writes."""
+
+    field_label = "key"
+
+
+@dataclass(frozen=True)
+class Selection:
+    """One chosen stage.
+
+    Attributes
+    ----------
+    topology : str
+        Bias network name.
+    transistor_id : str
+        Stock part id of the transistor.
+    values : dict
+        role → assignment text (part id, value, ``A+B`` or ``A|B``).
+    source : str
+        Where the choice came from, for reports (``"design rank 2 of r.json"``).
+    """
+
+    topology: str
+    transistor_id: str
+    values: dict[str, str]
+    source: str
+
+    def job_for(self, job: Job) -> Job:
+        """The job with its stage set to this selection's topology."""
+        if job.stage.topology == self.topology:
+            return job
+        return job.with_topology(self.topology)
+
+    def assignment_text(self) -> str:
+        """``R1=A,R2=B+C,...`` as one would type it after ``--values``."""
+        return ",".join(f"{role}={text}" for role, text in self.values.items())
+
+    def to_dict(self) -> dict[str, object]:
+        return {"topology": self.topology, "transistor": self.transistor_id,
+                "values": dict(self.values), "source": self.source}
+
+
+def from_values(job: Job, values: str | list[str], transistor: str | None,
+                source: str = "--values") -> Selection:
+    """A selection from ``--values`` text and ``--transistor``."""
+    if not transistor:
+        raise InputError("--values needs --transistor ID (the transistor's stock part id)",
+                         column="--transistor")
+    assignment = parse_assignments(values, source)
+    if not assignment:
+        raise InputError("--values is empty; give ROLE=VALUE_OR_PART_ID pairs",
+                         column="--values")
+    topology = job.stage.topology
+    if topology == "any":
+        raise InputError("the job's topology is 'any': with --values the stage needs one "
+                         "topology; set [search] topology in the job", file=job.path,
+                         column="search.topology", text="any")
+    return Selection(topology, transistor, assignment, source)
+
+
+def _design_values(design: Mapping[str, Any], where: str, file: str) -> dict[str, str]:
+    parts = design.get("parts")
+    if not isinstance(parts, dict) or not parts:
+        raise ResultFileError("a design needs a 'parts' object mapping roles to parts",
+                              file=file, column=f"{where}.parts")
+    out: dict[str, str] = {}
+    for role, part in parts.items():
+        key = f"{where}.parts.{role}"
+        if not isinstance(part, dict):
+            raise ResultFileError("each part is an object with part_id and value_ohm",
+                                  file=file, column=key, text=json.dumps(part))
+        pid = part.get("part_id")
+        arrangement = part.get("arrangement", "single" if not isinstance(pid, list) else None)
+        if isinstance(pid, str) and pid.strip():
+            if arrangement not in ("single", None):
+                raise ResultFileError("a series or parallel pair needs a list of two part ids",
+                                      file=file, column=f"{key}.part_id", text=pid)
+            out[str(role)] = pid.strip()
+        elif isinstance(pid, list):
+            if len(pid) != 2 or not all(isinstance(p, str) and p.strip() for p in pid):
+                raise ResultFileError("a pair is a list of two part ids", file=file,
+                                      column=f"{key}.part_id", text=json.dumps(pid))
+            if arrangement not in _ARRANGEMENT_SIGN:
+                raise ResultFileError("a pair's arrangement must be 'series' or 'parallel'",
+                                      file=file, column=f"{key}.arrangement",
+                                      text=json.dumps(arrangement))
+            out[str(role)] = _ARRANGEMENT_SIGN[arrangement].join(p.strip() for p in pid)
+        elif pid is None:  # a value that is not a stock part
+            value = part.get("value_ohm")
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or \
+                    not math.isfinite(value) or value <= 0:
+                raise ResultFileError("a part without part_id needs a positive value_ohm",
+                                      file=file, column=f"{key}.value_ohm",
+                                      text=json.dumps(value))
+            out[str(role)] = f"{float(value):.12g}"
+        else:
+            raise ResultFileError("part_id must be a part id, a list of two, or null",
+                                  file=file, column=f"{key}.part_id", text=json.dumps(pid))
+    return out
+
+
+def from_design(design: Mapping[str, Any], source: str, *, file: str = "<result>",
+                where: str = "design") -> Selection:
+    """A selection from one design object of a saved result (see the module notes)."""
+    if not isinstance(design, dict):
+        raise ResultFileError("a design must be a JSON object", file=file, column=where)
+    topology = design.get("topology")
+    if topology not in TOPOLOGY_NAMES:
+        raise ResultFileError(f"unknown topology; expected one of {', '.join(TOPOLOGY_NAMES)}",
+                              file=file, column=f"{where}.topology", text=json.dumps(topology))
+    tr = design.get("transistor")
+    tid = tr.get("part_id") if isinstance(tr, dict) else None
+    if not isinstance(tid, str) or not tid.strip():
+        raise ResultFileError("a design needs transistor.part_id", file=file,
+                              column=f"{where}.transistor.part_id", text=json.dumps(tid))
+    values = _design_values(design, where, file)
+    return Selection(str(topology), tid.strip(), values, source)
+
+
+def from_result_file(path: str | Path, rank: int = 1) -> Selection:
+    """Design ``rank`` of a result saved by ``design --save`` (or its ``--json`` output)."""
+    path = Path(path)
+    file = str(path)
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except OSError as exc:
+        raise ResultFileError(f"cannot read the result file: {exc.strerror}", file=file) \
+            from None
+    except UnicodeDecodeError:
+        raise ResultFileError("result file is not UTF-8 text", file=file) from None
+    except json.JSONDecodeError as exc:
+        raise ResultFileError(f"not valid JSON: {exc.msg}", file=file, line=exc.lineno) \
+            from None
+    if not isinstance(doc, dict):
+        raise ResultFileError("expected a JSON object with a 'designs' list (as written by "
+                              "design --save)", file=file)
+    designs = doc.get("designs")
+    if not isinstance(designs, list):
+        raise ResultFileError("expected a 'designs' list (as written by design --save)",
+                              file=file, column="designs")
+    if not designs:
+        status = doc.get("status")
+        why = f" (search status {status})" if isinstance(status, str) else ""
+        raise ResultFileError(f"the result holds no designs{why}", file=file, column="designs")
+    if rank < 1:
+        raise InputError("--rank counts from 1", column="--rank", text=str(rank))
+    index = next((i for i, d in enumerate(designs)
+                  if isinstance(d, dict) and d.get("rank") == rank), None)
+    if index is None:
+        if any(isinstance(d, dict) and "rank" in d for d in designs) or rank > len(designs):
+            raise ResultFileError(f"no design of rank {rank}; the file holds "
+                                  f"{len(designs)} design(s)", file=file, column="designs",
+                                  text=str(rank))
+        index = rank - 1
+    return from_design(designs[index], f"design rank {rank} of {file}", file=file,
+                       where=f"designs[{index}]")
+
+
+def from_search(job: Job, inventory: Inventory, rank: int, *,
+                time_limit_s: float | None = None) -> Selection:
+    """Run the design search and take design ``rank`` (1 = best)."""
+    if rank < 1:
+        raise InputError("--rank counts from 1", column="--rank", text=str(rank))
+    try:
+        from .search.design import design
+    except ImportError:
+        raise InputError("the design search is not available in this installation; use "
+                         "--from RESULT.json or --values ... --transistor ID",
+                         column="--rank", text=str(rank)) from None
+    result = design(job, inventory, top=max(rank, job.search.top), time_limit_s=time_limit_s)
+    data = result.to_dict()
+    designs = data.get("designs") or []
+    if not designs:
+        raise UnmetError(f"the search found no design that meets the job (status "
+                         f"{data.get('status')}); nothing to act on", file=job.path)
+    if rank > len(designs):
+        raise InputError(f"--rank {rank} but the search found {len(designs)} design(s)",
+                         column="--rank", text=str(rank))
+    return from_design(designs[rank - 1], f"design rank {rank} of a search on {job.path}",
+                       file=job.path, where=f"designs[{rank - 1}]")
+
+
+def choose(job: Job, inventory: Inventory, *, rank: int | None = None,
+           from_file: str | Path | None = None, values: list[str] | None = None,
+           transistor: str | None = None) -> Selection:
+    """The command-line rule: exactly one of ``--rank``, ``--from``, ``--values``."""
+    given = [name for name, v in (("--from", from_file), ("--values", values)) if v]
+    if len(given) > 1:
+        raise InputError("give either --from RESULT.json or --values, not both",
+                         column="--values")
+    if transistor and not values:
+        raise InputError("--transistor goes with --values", column="--transistor",
+                         text=transistor)
+    if values:
+        if rank is not None:
+            raise InputError("--rank picks a design from a search or a result file; it "
+                             "does not go with --values", column="--rank", text=str(rank))
+        return from_values(job, values, transistor)
+    if from_file is not None:
+        return from_result_file(from_file, 1 if rank is None else rank)
+    if rank is not None:
+        return from_search(job, inventory, rank)
+    raise InputError("say which design: --rank N (search), --from RESULT.json, or "
+                     "--values ROLE=...,... --transistor ID", column="--rank")
+
+
+def resolve_selection(job: Job, selection: Selection, inventory: Inventory,
+                      tolerance_pct: float | None = None
+                      ) -> tuple[dict[str, ResolvedResistor], Transistor]:
+    """The selection's resistors resolved against the stock, and its transistor row."""
+    network = get_network(selection.topology)
+    unknown = sorted(set(selection.values) - set(network.role_names))
+    if unknown:
+        raise InputError(f"{network.name} has no role {unknown[0]}; its roles are "
+                         f"{', '.join(network.role_names)}", column="--values", text=unknown[0])
+    missing = [r for r in network.required_roles if r not in selection.values]
+    if missing:
+        raise InputError(f"{network.name} needs a value for {', '.join(missing)}",
+                         column="--values", text=selection.assignment_text())
+    t = inventory.find_transistor(selection.transistor_id)
+    if t is None:
+        ids = ", ".join(x.part_id for x in inventory.transistors) or "none"
+        raise InputError(f"no transistor with that part id in {inventory.path}; transistors: "
+                         f"{ids}", column="--transistor", text=selection.transistor_id)
+    tol = job.build.default_tolerance_pct if tolerance_pct is None else tolerance_pct
+    parts = {role: resolve_resistor(role, text, inventory, tol)
+             for role, text in selection.values.items()}
+    return parts, t
+
+
+@dataclass(frozen=True)
+class Need:
+    """What one stock line (or one off-stock value) gives to a build.
+
+    Attributes
+    ----------
+    part_id : str
+        Stock part id; ``""`` for a value that is not in stock.
+    kind : {"resistor", "transistor"}
+    description : str
+        Value and rating in words (``"4.7 kΩ ±5 % 0.25 W"``).
+    roles : tuple of str
+        The roles it fills (``("R1", "R2")``; a pair's part appears under its role).
+    per_board : int
+        Pieces on one board.
+    quantity : int
+        Pieces for the build (per_board × build quantity).
+    line : int
+        Physical line in the stock file (0 off stock).
+    location : str
+        Where it is kept.
+    in_stock : int or None
+        Pieces on the shelf now (None off stock).
+    """
+
+    part_id: str
+    kind: str
+    description: str
+    roles: tuple[str, ...]
+    per_board: int
+    quantity: int
+    line: int = 0
+    location: str = ""
+    in_stock: int | None = None
+
+    @property
+    def remaining(self) -> int | None:
+        return None if self.in_stock is None else self.in_stock - self.quantity
+
+    @property
+    def short(self) -> bool:
+        return self.in_stock is None or self.quantity > self.in_stock
+
+    def to_dict(self) -> dict[str, object]:
+        return {"part_id": self.part_id or None, "kind": self.kind,
+                "description": self.description, "roles": list(self.roles),
+                "per_board": self.per_board, "quantity": self.quantity, "line": self.line,
+                "location": self.location, "in_stock": self.in_stock,
+                "remaining": self.remaining}
+
+
+def _resistor_words(value: float, tol_pct: float, power: float | None) -> str:
+    text = f"{format_quantity(value, 'ohm')} ±{tol_pct:g} %"
+    return text if power is None else f"{text} {format_quantity(power, 'W')}"
+
+
+def bench_needs(parts: Mapping[str, ResolvedResistor], transistor: Transistor,
+                build_quantity: int) -> list[Need]:
+    """Pieces each stock line gives to ``build_quantity`` boards, in order of first use.
+
+    A part used in two roles (or twice in a pair) is one line with both counted;
+    a value that is not in stock is its own line with ``part_id`` ``""``.
+    """
+    if build_quantity < 1:
+        raise ValueError(f"build quantity must be at least 1, got {build_quantity}")
+    order: list[str] = []
+    count: dict[str, int] = {}
+    roles: dict[str, list[str]] = {}
+    rows: dict[str, Any] = {}
+    off: list[Need] = []
+    for role, p in parts.items():
+        if p.off_stock and not p.parts:
+            off.append(Need("", "resistor", _resistor_words(p.value, 100 * p.tol, None) +
+                            " (not in stock)", (role,), 1, build_quantity))
+            continue
+        if p.off_stock:  # a pair with one half off the shelf
+            off.append(Need("", "resistor", f"the other half of {role}'s {p.arrangement} pair "
+                            "(not in stock)", (role,), 1, build_quantity))
+        for part in p.parts:
+            if part.part_id not in count:
+                order.append(part.part_id)
+                count[part.part_id] = 0
+                roles[part.part_id] = []
+                rows[part.part_id] = part
+            count[part.part_id] += 1
+            if role not in roles[part.part_id]:
+                roles[part.part_id].append(role)
+    out = [Need(transistor.part_id, "transistor",
+                f"{transistor.polarity} hFE {transistor.hfe_min:g}–{transistor.hfe_max:g}, "
+                f"VCEO {format_quantity(transistor.vceo_max, 'V')}", ("Q",), 1,
+                build_quantity, transistor.line, transistor.location, transistor.qty)]
+    for pid in order:
+        r = rows[pid]
+        out.append(Need(pid, "resistor", _resistor_words(r.value_ohm, r.tolerance_pct, r.power_w),
+                        tuple(roles[pid]), count[pid], count[pid] * build_quantity, r.line,
+                        r.location, r.qty))
+    return [*out, *off]
+
+
+def with_quantity(needs: list[Need], inventory: Inventory) -> list[Need]:
+    """The same needs with the shelf counts of another read of the stock file."""
+    out = []
+    for n in needs:
+        if not n.part_id:
+            out.append(n)
+            continue
+        try:
+            row = inventory.part(n.part_id)
+        except KeyError:
+            raise InputError(f"part {n.part_id} is no longer in the stock file",
+                             file=inventory.path, column="part_id", text=n.part_id) from None
+        out.append(replace(n, line=row.line, location=row.location, in_stock=row.qty))
+    return out
