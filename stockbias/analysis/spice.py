@@ -22,7 +22,7 @@ import re
 import shutil
 import subprocess
 import tempfile
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 
 from stockbias.analysis.device import TNOM_DEFAULT_C, XTB_DEFAULT
@@ -33,7 +33,9 @@ __all__ = [
     "MODEL_CARD_DEFAULTS",
     "SimulatorError",
     "ngspice_version",
+    "read_raw_plots",
     "run_ngspice",
+    "run_ngspice_plots",
     "spice_operating_point",
     "write_netlist",
 ]
@@ -81,6 +83,12 @@ def write_netlist(
     model_card: Mapping[str, float],
     temp_c: float,
     title: str = "stockbias stage",
+    *,
+    comments: Sequence[str] = (),
+    role_parts: Mapping[str, tuple[str, Sequence[tuple[float, str]]]] | None = None,
+    leakage: tuple[float, float] | None = None,
+    card_comments: Sequence[str] = (),
+    analyses: Sequence[str] = (".op",),
 ) -> str:
     """SPICE netlist of one stage for a DC operating point.
 
@@ -104,6 +112,21 @@ def write_netlist(
         Circuit temperature, °C.
     title : str
         Title line.
+    comments : sequence of str, optional
+        Comment lines put after the title (``* `` is added).
+    role_parts : Mapping, optional
+        role → (arrangement, [(ohm, label), ...]) to write a role as its stock
+        parts: ``"single"`` (one part), ``"series"`` or ``"parallel"`` (two);
+        each label becomes an inline comment.  Roles not named here are
+        written from ``resistances``.
+    leakage : (float, float), optional
+        (collector–base leakage at 25 °C, ampere; doubling step, °C): a
+        behavioural current source from collector to base inside the ammeters
+        that follows the circuit temperature (``temper``).
+    card_comments : sequence of str, optional
+        Comment lines put just above the ``.model`` line.
+    analyses : sequence of str
+        Analysis lines (default ``.op`` alone).
 
     Returns
     -------
@@ -117,6 +140,7 @@ def write_netlist(
     rails = rail_voltages(net, pol, vcc, vee)
     nodes = dict(_NODE_NAMES)
     lines = [" ".join(str(title).split()) or "stockbias stage"]
+    lines += [f"* {c}".rstrip() for c in comments]
     lines.append(f"* network {net.name}, {pol}; values in ohm, volt, ampere")
     for rail, node in _RAIL_NODE.items():
         v = float(rails[rail])
@@ -128,6 +152,9 @@ def write_netlist(
     for role in net.roles:
         value = resistances.get(role.name)
         a, b = nodes[role.node_a], nodes[role.node_b]
+        if role_parts is not None and role.name in role_parts:
+            lines += _part_lines(role.name, a, b, *role_parts[role.name])
+            continue
         if value is None or float(value) == 0.0:
             if not role.optional:
                 raise ValueError(f"network {net.name}: role {role.name} is required")
@@ -143,6 +170,15 @@ def write_netlist(
         "V_IB b qb DC 0",
         f"Q1 qc qb e {substrate} QSTAGE",
     ]
+    if leakage is not None and leakage[0] > 0:
+        icbo25, doubling = leakage
+        ends = "qc qb" if pol == "NPN" else "qb qc"
+        lines += [
+            f"* collector-base leakage: {_num(icbo25)} A at 25 C, doubling every "
+            f"{_num(doubling)} C",
+            f"B_ICBO {ends} I = {_num(icbo25)} * pow(2, (temper - 25) / {_num(doubling)})",
+        ]
+    lines += [f"* {c}".rstrip() for c in card_comments]
     params = [
         f"IS={_num(card['is_a'])}",
         f"BF={_num(card['bf'])}",
@@ -165,10 +201,30 @@ def write_netlist(
         "* tight tolerances: this netlist is a cross-check",
         ".options reltol=1e-6 abstol=1e-15 vntol=1e-9",
         f".temp {_num(temp_c)}",
-        ".op",
+        *analyses,
         ".end",
     ]
     return "\n".join(lines) + "\n"
+
+
+def _part_lines(role: str, a: str, b: str, arrangement: str,
+                parts: Sequence[tuple[float, str]]) -> list[str]:
+    """Element lines of one role written as its stock part(s)."""
+    for value, _ in parts:
+        if not (float(value) > 0 and math.isfinite(float(value))):
+            raise ValueError(f"role {role}: resistance must be finite and > 0 (ohm)")
+    if arrangement == "single" and len(parts) == 1:
+        value, label = parts[0]
+        return [f"R_{role} {a} {b} {_num(value)}" + (f" ; {label}" if label else "")]
+    if arrangement not in ("series", "parallel") or len(parts) != 2:
+        raise ValueError(f"role {role}: a pair is 'series' or 'parallel' with two parts")
+    (va, la), (vb, lb) = parts
+    mid = f"{role.lower()}_mid" if arrangement == "series" else b
+    out = [f"* {role}: {arrangement} pair"]
+    out.append(f"R_{role}a {a} {mid} {_num(va)}" + (f" ; {la}" if la else ""))
+    out.append(f"R_{role}b {mid if arrangement == 'series' else a} {b} {_num(vb)}"
+               + (f" ; {lb}" if lb else ""))
+    return out
 
 
 def _ngspice() -> str:
@@ -210,6 +266,80 @@ def _parse_ascii_raw(text: str) -> dict[str, float]:
     return {name: float(v) for name, v in zip(names, values, strict=True)}
 
 
+def read_raw_plots(text: str) -> list[tuple[str, dict[str, list[float]]]]:
+    """Every plot of an ASCII rawfile: (plot name, vector name → values).
+
+    ngspice writes one plot per analysis (a ``.dc`` sweep before the ``.op``,
+    whatever their order in the netlist); real vectors only.
+    """
+    plots: list[tuple[str, dict[str, list[float]]]] = []
+    lines = text.splitlines()
+    i = 0
+    while i < len(lines):
+        if not lines[i].startswith("Plotname:"):
+            i += 1
+            continue
+        name = lines[i].split(":", 1)[1].strip()
+        n_vars = n_points = None
+        j = i + 1
+        while j < len(lines) and lines[j].strip() not in ("Variables:",):
+            key, _, value = lines[j].partition(":")
+            if key.strip() == "No. Variables":
+                n_vars = int(value)
+            elif key.strip() == "No. Points":
+                n_points = int(value)
+            j += 1
+        if n_vars is None or n_points is None or j >= len(lines):
+            raise SimulatorError(f"ngspice rawfile: plot '{name}' has no header")
+        names = [lines[j + 1 + k].split()[1].lower() for k in range(n_vars)]
+        j += 1 + n_vars
+        if j >= len(lines) or lines[j].strip() != "Values:":
+            raise SimulatorError(f"ngspice rawfile: plot '{name}' has no values")
+        tokens: list[str] = []
+        j += 1
+        need = n_points * (n_vars + 1)
+        while j < len(lines) and len(tokens) < need:
+            tokens.extend(lines[j].split())
+            j += 1
+        if len(tokens) < need:
+            raise SimulatorError(f"ngspice rawfile: plot '{name}' is truncated")
+        vectors: dict[str, list[float]] = {v: [] for v in names}
+        for p in range(n_points):
+            row = tokens[p * (n_vars + 1) + 1:(p + 1) * (n_vars + 1)]
+            for v, x in zip(names, row, strict=True):
+                vectors[v].append(float(x))
+        plots.append((name, vectors))
+        i = j
+    return plots
+
+
+def _run_raw(netlist: str) -> str:
+    """Run ngspice in batch mode on ``netlist``; the ASCII rawfile's text."""
+    exe = _ngspice()
+    with tempfile.TemporaryDirectory(prefix="stockbias-spice-") as tmp:
+        work = Path(tmp)
+        (work / "stage.cir").write_text(netlist)
+        env = {**os.environ, "SPICE_ASCIIRAWFILE": "1", "HOME": tmp}
+        try:
+            proc = subprocess.run(
+                [exe, "-b", "-r", "stage.raw", "stage.cir"],
+                cwd=work, env=env, capture_output=True, text=True,
+                timeout=_TIMEOUT_S, check=False,
+            )
+        except subprocess.TimeoutExpired:
+            raise SimulatorError(f"ngspice did not finish within {_TIMEOUT_S:g} s") from None
+        raw = work / "stage.raw"
+        if not raw.exists():
+            tail = " | ".join((proc.stderr or proc.stdout).strip().splitlines()[-3:])
+            raise SimulatorError(f"ngspice wrote no result (exit {proc.returncode}): {tail}")
+        return raw.read_text()
+
+
+def run_ngspice_plots(netlist: str) -> list[tuple[str, dict[str, list[float]]]]:
+    """Run every analysis of ``netlist`` in ngspice; each plot as :func:`read_raw_plots`."""
+    return read_raw_plots(_run_raw(netlist))
+
+
 def run_ngspice(netlist: str) -> dict[str, float]:
     """Run a DC operating point in ngspice (batch mode) and read every vector.
 
@@ -230,24 +360,7 @@ def run_ngspice(netlist: str) -> dict[str, float]:
     SimulatorError
         When ngspice is missing, times out or writes no result.
     """
-    exe = _ngspice()
-    with tempfile.TemporaryDirectory(prefix="stockbias-spice-") as tmp:
-        work = Path(tmp)
-        (work / "stage.cir").write_text(netlist)
-        env = {**os.environ, "SPICE_ASCIIRAWFILE": "1", "HOME": tmp}
-        try:
-            proc = subprocess.run(
-                [exe, "-b", "-r", "stage.raw", "stage.cir"],
-                cwd=work, env=env, capture_output=True, text=True,
-                timeout=_TIMEOUT_S, check=False,
-            )
-        except subprocess.TimeoutExpired:
-            raise SimulatorError(f"ngspice did not finish within {_TIMEOUT_S:g} s") from None
-        raw = work / "stage.raw"
-        if not raw.exists():
-            tail = " | ".join((proc.stderr or proc.stdout).strip().splitlines()[-3:])
-            raise SimulatorError(f"ngspice wrote no result (exit {proc.returncode}): {tail}")
-        return _parse_ascii_raw(raw.read_text())
+    return _parse_ascii_raw(_run_raw(netlist))
 
 
 def spice_operating_point(

@@ -77,6 +77,8 @@ def _register() -> None:
     app.command("check")(check_cmd.check)
     app.command("design")(design_cmd.design)
     app.add_typer(stock_cmd.app, name="stock")
+    from . import export_cmd
+    app.command("export")(export_cmd.export)
 
 
 _register()

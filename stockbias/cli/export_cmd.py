@@ -7,9 +7,13 @@ from typing import Annotated
 
 import typer
 
+from ..errors import InputError
 from ..job import Job
 from ..parts import Inventory
+from ..render.console import make_console
 from ..selection import Selection, choose
+from ..units import format_quantity
+from .common import InventoryOpt, JobArg, JsonOpt, load
 
 __all__ = ["FromOpt", "RankOpt", "TransistorOpt", "ValuesOpt", "export", "select"]
 
@@ -32,5 +36,73 @@ def select(job: Job, inventory: Inventory, rank: int | None, from_file: Path | N
                   transistor=transistor)
 
 
-def export() -> None:  # replaced below once the netlist writer exists
-    raise NotImplementedError
+def export(
+    job_file: JobArg,
+    inventory: InventoryOpt,
+    netlist: Annotated[Path | None, typer.Option(
+        "--netlist", "-n", dir_okay=False, help="Write the SPICE netlist here ('-': stdout).")]
+    = None,
+    pick_list: Annotated[Path | None, typer.Option(
+        "--pick-list", dir_okay=False, help="Write the pick list for the build (CSV).")] = None,
+    rank: RankOpt = None,
+    from_file: FromOpt = None,
+    values: ValuesOpt = None,
+    transistor: TransistorOpt = None,
+    json_out: JsonOpt = False,
+) -> None:
+    """Export the chosen stage: a SPICE netlist to verify it, a pick list to build it."""
+    from ..render.json_out import dumps
+    from ..render.netlist import export_netlist
+    from ..render.pick_list import render_pick_list, write_pick_list
+    from ..selection import bench_needs, resolve_selection
+
+    if netlist is None and pick_list is None:
+        raise InputError("say what to export: --netlist OUT.cir and/or --pick-list OUT.csv",
+                         column="--netlist")
+    if json_out and netlist is not None and str(netlist) == "-":
+        raise InputError("--json and --netlist - both want stdout; write the netlist to a "
+                         "file", column="--netlist", text="-")
+    job, inv = load(job_file, inventory)
+    assert inv is not None
+    sel = select(job, inv, rank, from_file, values, transistor)
+    job = sel.job_for(job)
+    parts, t = resolve_selection(job, sel, inv)
+    payload: dict[str, object] = {"selection": sel.to_dict()}
+    console = make_console(stderr=netlist is not None and str(netlist) == "-")
+    if netlist is not None:
+        exported = export_netlist(job, parts, t, topology=sel.topology, source=sel.source)
+        if str(netlist) == "-":
+            typer.echo(exported.text, nl=False)
+        else:
+            _write(netlist, exported.text, "--netlist")
+        payload["netlist"] = {"file": None if str(netlist) == "-" else str(netlist),
+                              "model_card": exported.card, "temperature_c":
+                              exported.temperature_c, "expected": exported.expected,
+                              "sweep_c": exported.sweep_c}
+        if not json_out:
+            sweep = "" if exported.sweep_c is None else (
+                f" and a TEMP sweep {exported.sweep_c[0]:g}…{exported.sweep_c[1]:g} °C")
+            where = "stdout" if str(netlist) == "-" else str(netlist)
+            console.print(f"Netlist written to {where}: {sel.topology}, {t.polarity} "
+                          f"{t.part_id}, .op at {exported.temperature_c:g} °C{sweep}; "
+                          f"expected IC {format_quantity(exported.expected['ic'], 'A')}, "
+                          f"VCE {format_quantity(exported.expected['vce'], 'V')} "
+                          "(exponential model)")
+    if pick_list is not None:
+        needs = bench_needs(parts, t, job.build.quantity)
+        write_pick_list(pick_list, needs)
+        payload["pick_list"] = {"file": str(pick_list), "build_quantity": job.build.quantity,
+                                "lines": [n.to_dict() for n in needs]}
+        if not json_out:
+            render_pick_list(console, needs, job.build.quantity)
+            console.print(f"Pick list written to {pick_list}")
+    if json_out:
+        typer.echo(dumps(payload))
+
+
+def _write(path: Path, text: str, option: str) -> None:
+    try:
+        path.write_text(text, encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"cannot write the file: {exc.strerror}", file=str(path),
+                         column=option) from None

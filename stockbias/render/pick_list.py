@@ -64,7 +64,8 @@ def render_pick_list(console: Console, needs: Sequence[Need], build_quantity: in
     for col, justify in (("location", "left"), ("part id", "left"), ("value", "left"),
                          ("roles", "left"), ("per board", "right"), ("pull", "right"),
                          ("in stock", "right"), ("left after", "right")):
-        table.add_column(col, justify=justify)  # type: ignore[arg-type]
+        table.add_column(col, justify=justify,  # type: ignore[arg-type]
+                         no_wrap=col in ("location", "part id", "value"))
     for n in pick_order(needs):
         left = "" if n.remaining is None else str(n.remaining)
         if n.short:
