@@ -1,17 +1,35 @@
-"""`stockbias demo`: the main job on a bundled shelf."""
+"""`stockbias demo`: the main job on a bundled shelf and job."""
 
 from __future__ import annotations
 
+from ..job import load_job
 from ..render.console import make_console
-from ..render.stock_table import render_stock_summary
 from ..samples import sample_path
 from ..stock_io import read_inventory
-from ..stock_summary import summarise
 
 
 def demo() -> None:
-    """Run stockbias on the bundled workshop shelf and job."""
+    """Design a line-driver stage from the bundled workshop drawers and show the ranking."""
+    from ..render.design_table import render_design
+    from ..search.design import design
+
     console = make_console()
-    inv = read_inventory(sample_path("workshop_drawers.csv"))
-    console.rule("stockbias demo: the Kestrel Row workshop drawers")
-    render_stock_summary(console, inv, summarise(inv))
+    shelf = sample_path("workshop_drawers.csv")
+    job_path = sample_path("line_driver_job.toml")
+    inv = read_inventory(shelf)
+    job = load_job(job_path)
+    console.rule("stockbias demo")
+    console.print(f"Shelf: {shelf.name} ({len(inv.resistors)} resistor lines, "
+                  f"{len(inv.transistors)} transistors); job: {job_path.name}")
+    console.print(f"Equivalent command: stockbias design inventory_samples/{job_path.name} "
+                  f"--inventory inventory_samples/{shelf.name}")
+    result = design(job, inv)
+    render_design(console, job, result)
+    if result.designs:
+        from ..selection import from_design
+
+        best = from_design(result.designs[0].to_dict(), "demo rank 1")
+        console.print("Next: the full worst-case report of the best design: "
+                      f"stockbias check inventory_samples/{job_path.name} --inventory "
+                      f"inventory_samples/{shelf.name} --values {best.assignment_text()} "
+                      f"--transistor {best.transistor_id}")
