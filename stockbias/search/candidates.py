@@ -106,7 +106,7 @@ class Shelf:
         base = self.with_pairs if pairs and self.with_pairs is not None else self.single
         if not optional:
             return base
-        absent = _table([0.0], [0.0], [0.0], [0.0], [0.0], [0.0], [0], [0], [-1], [-1], [-1],
+        absent = _table([0.0], [0.0], [0.0], [0.0], [0.0], [0.0], [0.0], [0], [0], [-1], [-1], [-1],
                         [-1], [ABSENT])
         return _concat(absent, base)
 

@@ -447,7 +447,7 @@ class _Search:
             self.pool.status.append(1 if b.exact else 0)
         self.stats["designs_kept"] += int(keep.sum())
 
-    def vertex_verify(self, ks: list[int]) -> None:
+    def vertex_verify(self, ks: list[int], keys: np.ndarray | None = None) -> None:
         """Check pool designs at every vertex; exact margins replace the corner bounds."""
         t = self.stage.target
         todo = [k for k in ks if self.pool.status[k] == 0]
@@ -468,6 +468,8 @@ class _Search:
                 self.pool.margin[k] = float(mppm[j]) / 1e6
                 if col is not None:
                     self.pool.keys[k][col] = -mppm[j]
+                    if keys is not None:
+                        keys[k, col] = -mppm[j]
 
     # --- verification ---------------------------------------------------------------
     def resolved(self, k: int):
@@ -510,20 +512,19 @@ class _Search:
         inf = np.full(len(self.objectives), _BIG, dtype=np.int64)
         if not self.pool.keys:
             return inf
+        limit = 4 * self.top + 16
+        keys = np.stack(self.pool.keys)
         while True:
-            keys = np.stack(self.pool.keys)
             live = np.flatnonzero(np.asarray(self.pool.status) != 2)
             order = live[np.lexsort(keys[live].T[::-1])]
-            head = [int(k) for k in order[:4 * self.top + 16]]
+            head = [int(k) for k in order[:limit]]
             unchecked = [k for k in head if self.pool.status[k] == 0]
             if unchecked:
-                self.vertex_verify(unchecked)
+                self.vertex_verify(unchecked, keys)
+                limit *= 2
                 continue
             good = 0
-            for k in order:
-                k = int(k)
-                if self.pool.status[k] == 0:
-                    break                      # past the checked head: check more first
+            for k in head:
                 if not self.stock_ok(k) or self.verify(k) is None:
                     continue
                 good += 1
@@ -531,10 +532,9 @@ class _Search:
                     return keys[k]
                 if time.monotonic() > self.deadline:
                     return inf
-            else:
+            if limit >= order.size:
                 return inf
-            self.vertex_verify([int(k) for k in order if self.pool.status[int(k)] == 0]
-                               [:4 * self.top + 16])
+            limit *= 4
 
     # --- the whole search ------------------------------------------------------------
     def run(self) -> tuple[str, dict[str, float]]:

@@ -115,16 +115,26 @@ class Corners:
     vce_sat: float
 
 
-def corners(job: Job, q: Transistor) -> Corners:
-    """The two IC-extreme vertices of a transistor's box (constant-VBE model)."""
+def corners(job: Job, q: Transistor, network: str = "divider") -> Corners:
+    """The two IC-extreme vertices of a transistor's box (constant-VBE model).
+
+    ``vcc`` is the collector-side rail and ``vee`` the emitter-side rail magnitude in the
+    NPN frame: for a PNP ``dual_supply`` stage the emitter sits on +VCC and the collector
+    on VEE, so the two swap.
+    """
     env, s = job.environment, job.supply
     hot, cold = env.ambient_max_c, env.ambient_min_c
     tk = device.CELSIUS_TO_KELVIN
-    vee = abs(s.negative_volts) if s.negative_volts is not None else 0.0
+    dual = network == "dual_supply"
+    vee = abs(s.negative_volts) if (dual and s.negative_volts is not None) else 0.0
     tv = s.vee_tolerance_pct / 100
+    tc = s.tolerance_pct / 100
+    rail_c = (s.volts * (1 + tc), s.volts * (1 - tc))
+    rail_e = (vee * (1 + tv), vee * (1 - tv))
+    if dual and q.polarity == "PNP":
+        rail_c, rail_e = rail_e, rail_c
     return Corners(
-        vcc_hi=s.volts * (1 + s.tolerance_pct / 100), vcc_lo=s.volts * (1 - s.tolerance_pct / 100),
-        vee_hi=vee * (1 + tv), vee_lo=vee * (1 - tv),
+        vcc_hi=rail_c[0], vcc_lo=rail_c[1], vee_hi=rail_e[0], vee_lo=rail_e[1],
         beta_hi=float(device.beta_at(q.hfe_max, hot + tk, xtb=q.xtb)),
         beta_lo=float(device.beta_at(q.hfe_min, cold + tk, xtb=q.xtb)),
         vbe_hi=float(device.vbe_at(q.vbe_min, hot)), vbe_lo=float(device.vbe_at(q.vbe_max, cold)),
@@ -216,7 +226,7 @@ def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
              cands: dict[str, RoleCandidates]) -> Rows:
     """The interval of the last IC-setting role for every row of the enumerated roles."""
     plan = PLANS[network]
-    cn = corners(job, q)
+    cn = corners(job, q, network)
     t = stage.target
     sizes = [len(cands[r]) for r in plan.enumerated]
     mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
@@ -307,7 +317,7 @@ def free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor,
     RC dissipation check.
     """
     plan = PLANS[network]
-    cn = corners(job, q)
+    cn = corners(job, q, network)
     t = stage.target
     need = max(cn.vce_sat, t.vce_min, cn.vce_sat + (t.swing_pk or 0.0))
     n = idx[plan.interval].size

@@ -1,0 +1,248 @@
+"""The search's optimum equals an exhaustive search written here with the same model.
+
+Generated small shelves (8–20 resistor lines, 2–4 transistors, seeded): some
+infeasible, some where the best design repeats a value, some with quantity limits
+that bind.  The reference enumerates EVERY assignment of stock lines to roles ×
+transistor, evaluates each at every vertex of the tolerance box with the analysis
+engine (no search code), applies the stock rule (uses × build quantity ≤ qty) and
+the objective order, and confirms the best ones with ``analyze_stage`` (the path
+``check`` uses).  Source of the expected values: this exhaustive enumeration.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import warnings
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from stockbias.analysis.check import analyze_stage
+from stockbias.analysis.constraints import evaluate_limits, stage_limits
+from stockbias.analysis.stage import DeviceSpec, ResistorSpec, StageSpec, evaluate
+from stockbias.analysis.worst_case import vertex_points
+from stockbias.assign import ResolvedResistor
+from stockbias.eseries import series_values
+from stockbias.job import Job, parse_job
+from stockbias.parts import Inventory, Resistor, Transistor
+from stockbias.search.design import design
+from stockbias.topologies import get_network
+
+JOB = """
+[supply]
+volts = {vcc}
+tolerance_pct = 5
+{vee}
+[target]
+ic = "{ic}"
+ic_window_pct = {window}
+vce_min = "{vce_min}"
+[limits]
+supply_power_max = "{pmax}"
+[environment]
+ambient_min_c = {tmin}
+ambient_max_c = {tmax}
+[build]
+quantity = {build}
+[search]
+topology = "{topology}"
+objectives = {objectives}
+top = 3
+"""
+
+NARROW = ("collector_feedback", "fixed_base")
+
+OBJECTIVE_SETS = [
+    ["cost", "part_count", "distinct_values", "ic_margin"],
+    ["distinct_values", "cost", "ic_margin"],
+    ["bom_lines", "ic_margin", "cost"],
+    ["ic_margin", "cost"],
+]
+
+# (seed, topology, lines, transistors, window %, build, objectives index, temperature range)
+CASES = [
+    (1, "divider", 9, 2, 25, 5, 0, (25, 25)),
+    (2, "divider", 9, 2, 30, 10, 1, (0, 50)),
+    (3, "divider", 8, 4, 4, 5, 0, (25, 25)),        # window too tight: infeasible
+    (4, "divider", 10, 2, 30, 20, 0, (25, 25)),     # stock binds (a line used twice)
+    (5, "collector_feedback", 16, 3, 45, 5, 0, (0, 60)),
+    (6, "collector_feedback", 18, 2, 50, 10, 2, (25, 25)),
+    (7, "fixed_base", 18, 3, 60, 5, 3, (25, 25)),
+    (8, "fixed_base", 20, 4, 35, 5, 0, (10, 40)),
+    (9, "dual_supply", 14, 3, 20, 5, 1, (25, 25)),
+    (10, "dual_supply", 18, 2, 25, 10, 0, (0, 50)),
+    (11, "divider", 9, 3, 22, 5, 1, (25, 25)),      # duplicate values on the shelf
+    (12, "any", 8, 2, 30, 5, 0, (25, 25)),
+    (13, "collector_feedback", 12, 2, 3, 5, 0, (25, 25)),   # infeasible
+    (14, "divider", 10, 2, 28, 10, 2, (25, 25)),
+]
+
+
+def _shelf(seed: int, n_lines: int, n_q: int, build: int, narrow: bool = False) -> Inventory:
+    rng = np.random.default_rng(seed)
+    pool = series_values("E24", 1e3, 1e6) if narrow else series_values("E12", 100.0, 100e3)
+    values = rng.choice(pool, size=n_lines, replace=seed != 11)
+    resistors = []
+    for i, v in enumerate(sorted(values)):
+        tol = float(rng.choice([1.0, 2.0, 5.0]))
+        qty = int(rng.choice([build, 2 * build, 3 * build])) if seed != 4 else build
+        resistors.append(Resistor(part_id=f"R{i:02d}", value_ohm=float(v), tolerance_pct=tol,
+                                  power_w=0.25, tempco_ppm=float(rng.choice([0.0, 100.0])),
+                                  qty=qty, unit_cost=float(rng.choice([0.01, 0.02, 0.05])),
+                                  line=i + 2))
+    transistors = []
+    for j in range(n_q):
+        lo = float(rng.choice([80, 100, 150]))
+        transistors.append(Transistor(
+            part_id=f"Q{j}", polarity="NPN" if j % 2 == 0 else "PNP", hfe_min=lo,
+            hfe_max=lo * float(rng.choice([1.3, 2.0, 3.0])), vceo_max=40.0, ic_max=0.1,
+            pd_max_w=0.5, vbe_min=0.6, vbe_max=0.72, qty=100,
+            unit_cost=float(rng.choice([0.03, 0.05])), line=100 + j))
+    return Inventory(path=f"<shelf {seed}>", resistors=tuple(resistors),
+                     transistors=tuple(transistors))
+
+
+def _job(seed, topology, window, build, objectives, temps) -> Job:
+    dual = topology in ("dual_supply", "any")
+    text = JOB.format(vcc=12, vee="negative_volts = -6" if dual else "", ic="1 mA",
+                      window=window, vce_min="2 V", pmax="80 mW", tmin=temps[0], tmax=temps[1],
+                      build=build, topology=topology,
+                      objectives="[" + ", ".join(f'"{o}"' for o in objectives) + "]")
+    return parse_job(text, f"<job {seed}>")
+
+
+def _spec(job: Job, network: str, q: Transistor, arrays: dict) -> StageSpec:
+    env = job.environment
+    return StageSpec(network=get_network(network), resistors=arrays,
+                     device=DeviceSpec.from_transistor(q), vcc=job.supply.volts,
+                     vcc_tol=job.supply.tolerance_pct / 100, vee=job.supply.negative_volts,
+                     vee_tol=job.supply.vee_tolerance_pct / 100,
+                     ambient_min_c=env.ambient_min_c, ambient_max_c=env.ambient_max_c,
+                     model=job.search.model, load=job.small_signal.load,
+                     re_bypassed=job.small_signal.re_bypassed)
+
+
+def _exhaustive(job: Job, inv: Inventory, top: int):
+    """Every assignment, every vertex; then analyze_stage on the best until `top` pass."""
+    st = job.stage
+    t = st.target
+    span = max(abs(job.environment.ambient_min_c - 25), abs(job.environment.ambient_max_c - 25))
+    lines = [r for r in inv.resistors if r.qty >= job.build.quantity]
+    nets = ["divider", "collector_feedback", "fixed_base", "dual_supply"] \
+        if st.topology == "any" else [st.topology]
+    found = []
+    for net_name in nets:
+        net = get_network(net_name)
+        choices = [list(range(len(lines))) + ([None] if role.optional else [])
+                   for role in net.roles]
+        combos = list(itertools.product(*choices))
+        for q in inv.transistors:
+            arrays = {}
+            for k, role in enumerate(net.roles):
+                idx = [c[k] for c in combos]
+                v = np.array([0.0 if i is None else lines[i].value_ohm for i in idx])
+                tol = np.array([0.0 if i is None else lines[i].tolerance_pct / 100 for i in idx])
+                dr = np.array([0.0 if i is None else (lines[i].tempco_ppm or 0) * 1e-6 * span
+                               for i in idx])
+                arrays[role.name] = ResistorSpec(v, tol, dr)
+            spec = _spec(job, net_name, q, arrays)
+            point, _ = vertex_points(spec)
+            ev = evaluate(spec, point)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                low = {k: np.nanmin(np.broadcast_to(v, ev.op.shape), -1)
+                       for k, v in ev.quantities.items() if np.ndim(v)}
+                high = {k: np.nanmax(np.broadcast_to(v, ev.op.shape), -1)
+                        for k, v in ev.quantities.items() if np.ndim(v)}
+            na = np.sum(ev.op.region != 0, axis=-1).astype(float)
+            low["non_active_corners"] = high["non_active_corners"] = na
+            low["vceo_needed"] = high["vceo_needed"] = np.full(na.shape,
+                                                               job.supply.max_ce_voltage)
+            ratings = {role.name: np.array([0.0 if c[k] is None else lines[c[k]].power_w
+                                            for c in combos])
+                       for k, role in enumerate(net.roles)}
+            margins = evaluate_limits(stage_limits(job, st, spec, ratings), low, high)
+            ok = np.all(np.stack([m >= 0 for m in margins.values()]), axis=0)
+            icm = np.minimum(low["ic"] - t.ic_min, t.ic_max - high["ic"]) / t.ic
+            for i in np.flatnonzero(ok):
+                used = [lines[x] for x in combos[i] if x is not None]
+                counts = {}
+                for r in used:
+                    counts[r.part_id] = counts.get(r.part_id, 0) + 1
+                if any(r.qty < counts[r.part_id] * job.build.quantity for r in used):
+                    continue
+                cost = round(q.unit_cost * 1e6) + sum(round(r.unit_cost * 1e6) for r in used)
+                vals = {"cost": cost, "part_count": 1 + len(used),
+                        "distinct_values": len({r.value_ohm for r in used}),
+                        "bom_lines": 1 + len({r.part_id for r in used}),
+                        "ic_margin": -math.floor(icm[i] * 1e6 + 1e-6)}
+                key = tuple(vals[o] for o in job.search.objectives)
+                found.append((key, net_name, q, [(role.name, combos[i][k])
+                                                 for k, role in enumerate(net.roles)]))
+    found.sort(key=lambda x: x[0])
+    best = []
+    for key, net_name, q, assign in found:
+        parts = {role: _resolved(role, lines[i]) for role, i in assign if i is not None}
+        if analyze_stage(job, st, parts, q, samples=0, topology=net_name).ok:
+            best.append(key)
+            if len(best) == top:
+                break
+    return best
+
+
+def _resolved(role: str, r: Resistor) -> ResolvedResistor:
+    return ResolvedResistor(role=role, value=r.value_ohm, tol=r.tolerance_pct / 100,
+                            tempco_ppm=r.tempco_ppm or 0.0, rating=r.power_w, parts=(r,))
+
+
+def _search_keys(job: Job, result) -> list[tuple]:
+    out = []
+    for d in result.designs:
+        vals = {"cost": d.cost_micro, "part_count": d.part_count,
+                "distinct_values": d.distinct_values, "bom_lines": d.bom_lines,
+                "ic_margin": -math.floor(d.ic_margin * 1e6 + 1e-6)}
+        out.append(tuple(vals[o] for o in job.search.objectives))
+    return out
+
+
+@pytest.mark.parametrize("case", CASES, ids=[f"seed{c[0]}-{c[1]}" for c in CASES])
+def test_optimum_matches_exhaustive(case):
+    seed, topology, n_lines, n_q, window, build, obj, temps = case
+    inv = _shelf(seed, n_lines, n_q, build, topology in NARROW)
+    job = _job(seed, topology, window, build, OBJECTIVE_SETS[obj], temps)
+    expected = _exhaustive(job, inv, 3)
+    result = design(job, inv, top=3)
+    got = _search_keys(job, result)
+    # source: the exhaustive enumeration above (exact integer keys)
+    assert got == expected, (result.status, result.stats)
+    if expected:
+        assert result.status == "optimal"
+        assert all(d.check.ok for d in result.designs)
+        assert result.stats["rejected_on_verification"] == 0
+    else:
+        assert result.status == "infeasible"
+        assert result.explanation is not None
+
+
+def test_cases_cover_the_kinds_the_brief_names():
+    """At least one infeasible shelf, one whose best design repeats a value, one where
+    stock binds (source: the brief's list of kinds)."""
+    kinds = set()
+    for case in CASES:
+        seed, topology, n_lines, n_q, window, build, obj, temps = case
+        inv = _shelf(seed, n_lines, n_q, build, topology in NARROW)
+        job = _job(seed, topology, window, build, OBJECTIVE_SETS[obj], temps)
+        r = design(job, inv, top=1)
+        if not r.designs:
+            kinds.add("infeasible")
+            continue
+        d = r.designs[0]
+        if d.distinct_values < d.part_count - 1:
+            kinds.add("repeats")
+        relaxed = replace(job, build=replace(job.build, quantity=1))
+        r1 = design(relaxed, replace(inv), top=1)
+        if r1.designs and _search_keys(relaxed, r1)[0] != _search_keys(job, r)[0]:
+            kinds.add("stock_binds")
+    assert {"infeasible", "repeats", "stock_binds"} <= kinds
