@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # Set up stockbias in ./.venv on a Debian 12+ machine with Python 3.11+.
 #   bash scripts/setup.sh          the tool itself
-#   bash scripts/setup.sh --test   the tool, the test extras and the system packages tests use (ngspice)
+#   bash scripts/setup.sh --test   the tool, the test extras and the system packages tests use (ngspice, chromium)
 # System packages are installed with apt-get only where missing (as root, or through sudo).
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -34,6 +34,10 @@ fi
 if [ "$want_tests" -eq 1 ] && ! command -v ngspice >/dev/null 2>&1; then
   echo "installing ngspice, the reference simulator the tests compare against (apt-get)" >&2
   apt_install ngspice
+fi
+if [ "$want_tests" -eq 1 ] && ! command -v chromium >/dev/null 2>&1; then
+  echo "installing chromium, the headless browser the HTML report test renders with (apt-get)" >&2
+  apt_install chromium
 fi
 
 if [ ! -x .venv/bin/python ]; then

@@ -2,12 +2,17 @@
 
 from __future__ import annotations
 
+import shlex
+import sys
+from pathlib import Path
 from typing import Annotated
 
 import typer
 
-from ..analysis.check import analyze
+from ..analysis.check import CheckResult, analyze
 from ..assign import parse_assignments
+from ..job import Job
+from ..parts import Inventory
 from ..render.console import make_console
 from ..render.json_out import dumps
 from .common import InventoryOpt, JobArg, JsonOpt, load
@@ -30,6 +35,14 @@ def check(
         help="Tolerance, %, for values that are not stock parts (default: the job's).")] = None,
     stage: Annotated[str | None, typer.Option("--stage",
                                               help="Stage name in a board file.")] = None,
+    plot: Annotated[Path | None, typer.Option(
+        "--plot", file_okay=False, help="Write the plots (PNG and SVG) into this folder.")]
+    = None,
+    report: Annotated[Path | None, typer.Option(
+        "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
+    pick_list: Annotated[Path | None, typer.Option(
+        "--pick-list", dir_okay=False, help="Write the pick list for the job's build "
+        "quantity here (CSV).")] = None,
 ) -> None:
     """Analyse a stage with given parts at every worst-case corner; exit 1 if a limit fails."""
     job, inv = load(job_file, inventory)
@@ -42,5 +55,33 @@ def check(
         from ..render.check_table import render_check
 
         render_check(make_console(), job, result)
+    _bench_outputs(job, inv, result, plot, report, pick_list, json_out)
     if not result.ok:
         raise typer.Exit(1)
+
+
+def _bench_outputs(job: Job, inv: Inventory | None, result: CheckResult, plot: Path | None,
+                   report: Path | None, pick_list: Path | None, json_out: bool) -> None:
+    """Plots, report and pick list; the files written are named (on stderr with --json)."""
+    console = make_console(stderr=json_out)
+    if plot is not None:
+        from ..render.plots import write_check_plots
+
+        paths = write_check_plots(result, job, plot)
+        console.print("Plots written: " + ", ".join(str(p) for p in paths))
+    if report is not None:
+        from ..render.report import render_report
+
+        render_report(report, title=f"Check of stage '{result.stage}'", job=job, inventory=inv,
+                      checks=[(f"Check: {result.topology} with {result.transistor.part_id}",
+                               result)], command=shlex.join(["stockbias", *sys.argv[1:]]))
+        console.print(f"Report written: {report}")
+    if pick_list is not None:
+        from ..render.pick_list import render_pick_list, write_pick_list
+        from ..selection import bench_needs
+
+        needs = bench_needs(result.parts, result.transistor, job.build.quantity)
+        write_pick_list(pick_list, needs)
+        if not json_out:
+            render_pick_list(console, needs, job.build.quantity)
+        console.print(f"Pick list written: {pick_list}")

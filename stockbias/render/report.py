@@ -1,0 +1,346 @@
+"""One self-contained HTML report: the job, the stock file, the design(s), the analysis, the plots.
+
+The file stands alone: CSS inline, plots embedded as base64 PNG data URIs, no
+scripts and nothing fetched from the network, so it can be mailed, archived
+or printed.  Every piece of text from the user's files is escaped.
+:func:`render_report` is the entry point every command uses (``check``
+today; ``design``, ``substitute`` and ``consolidate`` pass their ranked
+designs and their own checks).
+"""
+
+from __future__ import annotations
+
+import base64
+import dataclasses
+import html
+import math
+from collections.abc import Mapping, Sequence
+from datetime import datetime
+from pathlib import Path
+from typing import Any
+
+from ..analysis.check import CheckResult
+from ..errors import InputError
+from ..job import Job
+from ..parts import Inventory
+from ..units import format_quantity
+from .check_table import corner_text
+
+__all__ = ["CAUTION_FOOTER", "render_report", "render_report_html"]
+
+CAUTION_FOOTER = ("The cautions above are reminders, not a safety review: follow local "
+                  "electrical codes and licensed practice wherever power, heat or mains "
+                  "supplies are involved.")
+
+_CSS = """
+body { font-family: "DejaVu Sans", Arial, sans-serif; font-size: 10.5pt; color: #111;
+       max-width: 1100px; margin: 1.5em auto; padding: 0 1em; }
+h1 { font-size: 16pt; margin-bottom: 0.2em; } h2 { font-size: 13pt; margin-top: 1.6em;
+  border-bottom: 1px solid #999; } h3 { font-size: 11pt; margin-bottom: 0.3em; }
+table { border-collapse: collapse; margin: 0.4em 0 1em; }
+th, td { border: 1px solid #bbb; padding: 2px 6px; text-align: left; vertical-align: top; }
+th { background: #eee; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+.fail { color: #a00; font-weight: bold; } .ok { color: #060; }
+.badge { display: inline-block; padding: 1px 8px; border: 2px solid; font-weight: bold; }
+.caution { border-left: 4px solid #c80; padding: 0.2em 0.6em; background: #fff7e6; }
+.small { color: #555; font-size: 9pt; } img { max-width: 100%; height: auto; }
+figure { margin: 0.6em 0 1.2em; } figcaption { font-size: 9pt; color: #333; }
+code { font-family: "DejaVu Sans Mono", monospace; font-size: 9.5pt; }
+@media print { h2 { page-break-after: avoid; } figure, table { page-break-inside: avoid; } }
+"""
+
+_UNITS = {"ic": "A", "ib": "A", "ie": "A", "vb": "V", "vc": "V", "ve": "V", "vce": "V",
+          "supply_power": "W", "pd": "W", "tj": "°C", "gain": "", "rin": "ohm", "gm": ""}
+_LABELS = {"ic": "IC", "ib": "IB", "ie": "IE", "vb": "VB", "vc": "VC", "ve": "VE", "vce": "VCE",
+           "supply_power": "supply power", "pd": "PD (transistor)", "tj": "TJ",
+           "gain": "gain (V/V)", "rin": "input resistance", "gm": "gm (A/V)"}
+
+
+def _version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("stockbias")
+    except PackageNotFoundError:
+        return "(version unknown)"
+
+
+def _e(value: object) -> str:
+    return html.escape(str(value), quote=True)
+
+
+def _q(value: object, unit: str) -> str:
+    if value is None or isinstance(value, bool) or not isinstance(value, (int, float)):
+        return "n/a" if value is None else str(value)
+    if unit in ("", "corners", "V/V"):
+        return f"{float(value):.4g}"
+    return format_quantity(float(value), unit, digits=4)
+
+
+def _table(header: Sequence[str], rows: Sequence[Sequence[str]],
+           numeric: Sequence[int] = ()) -> str:
+    """An HTML table; cells are already escaped HTML."""
+    head = "".join(f"<th>{_e(h)}</th>" for h in header)
+    body = []
+    for row in rows:
+        cells = "".join(f'<td class="num">{c}</td>' if i in numeric else f"<td>{c}</td>"
+                        for i, c in enumerate(row))
+        body.append(f"<tr>{cells}</tr>")
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+
+
+def _list(items: Sequence[str], cls: str = "") -> str:
+    if not items:
+        return "<p class=\"small\">none</p>"
+    attr = f' class="{cls}"' if cls else ""
+    return "<ul>" + "".join(f"<li{attr}>{_e(i)}</li>" for i in items) + "</ul>"
+
+
+def _figure(png: bytes, caption: str) -> str:
+    data = base64.b64encode(png).decode("ascii")
+    return (f'<figure><img alt="{_e(caption)}" src="data:image/png;base64,{data}">'
+            f"<figcaption>{_e(caption)}</figcaption></figure>")
+
+
+def _value_text(value: object) -> str:
+    if isinstance(value, float):
+        return "none" if math.isinf(value) else f"{value:.6g}"
+    if isinstance(value, (tuple, list)):
+        return ", ".join(str(v) for v in value)
+    return "not set" if value is None else str(value)
+
+
+_SETTING_UNITS = {"volts": "V", "negative_volts": "V", "load": "ohm", "ic_min": "A",
+                  "ic_max": "A", "vce_min": "V", "swing_pk": "V", "supply_power_max": "W",
+                  "time_limit_s": "s"}
+
+
+def _setting(key: str, value: object) -> str:
+    unit = _SETTING_UNITS.get(key)
+    if unit and isinstance(value, float) and math.isfinite(value):
+        return format_quantity(value, unit, digits=4)
+    return _value_text(value)
+
+
+def _job_section(job: Job) -> str:
+    rows = []
+    for section in ("supply", "environment", "small_signal", "build", "search"):
+        for key, value in dataclasses.asdict(getattr(job, section)).items():
+            rows.append([_e(f"[{section}] {key}"), _e(_setting(key, value))])
+    for stage in job.stages:
+        for part in ("target", "limits"):
+            for key, value in dataclasses.asdict(getattr(stage, part)).items():
+                rows.append([_e(f"stage '{stage.name}' {part}.{key}"),
+                             _e(_setting(key, value))])
+        rows.append([_e(f"stage '{stage.name}' topology"), _e(stage.topology)])
+    return (f"<h2>Job</h2><p>File <code>{_e(job.path)}</code>, {len(job.stages)} stage(s). "
+            "Settings as read (°C and percent where the key says so):</p>"
+            + _table(["setting", "value"], rows))
+
+
+def _stock_section(inv: Inventory) -> str:
+    return (f"<h2>Stock file</h2><p><code>{_e(inv.path)}</code><br>SHA-256 "
+            f"<code>{_e(inv.sha256)}</code><br>{len(inv.resistors)} resistor lines, "
+            f"{len(inv.transistors)} transistor lines"
+            + (f"; columns kept but not used: {_e(', '.join(inv.extra_columns))}"
+               if inv.extra_columns else "") + "</p>")
+
+
+def _designs_section(designs: Sequence[Mapping[str, Any]]) -> str:
+    rows = []
+    for d in designs:
+        parts = []
+        for role, p in (d.get("parts") or {}).items():
+            pid = p.get("part_id") if isinstance(p, Mapping) else None
+            if isinstance(pid, list):
+                sep = "+" if p.get("arrangement") == "series" else "|"
+                pid = sep.join(str(x) for x in pid)
+            value = p.get("value_ohm") if isinstance(p, Mapping) else None
+            parts.append(f"{role} = {_q(value, 'ohm')} ({pid or 'not in stock'})")
+        tr = d.get("transistor") or {}
+        ok = d.get("ok")
+        mark = "" if ok is None else ('<span class="ok">ok</span>' if ok
+                                      else '<span class="fail">FAIL</span>')
+        cost = d.get("cost")
+        rows.append([_e(d.get("rank", "")), _e(d.get("topology", "")),
+                     _e(tr.get("part_id", "") if isinstance(tr, Mapping) else ""),
+                     _e("; ".join(parts)),
+                     _e(f"{cost:.4g}" if isinstance(cost, (int, float)) else ""),
+                     _e(d.get("part_count", "")), mark])
+    html_out = "<h2>Ranked designs</h2>" + _table(
+        ["rank", "topology", "transistor", "parts", "cost per board", "parts per board",
+         "check"], rows, numeric=(0, 4, 5))
+    try:
+        from .plots import design_margin_figure, figure_bytes
+
+        png = figure_bytes(design_margin_figure(designs), "png")
+        html_out += _figure(png, "Cost per board against the worst-case IC margin")
+    except InputError:
+        pass  # no design carries IC margins: nothing to plot
+    return html_out
+
+
+def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
+    t = r.transistor
+    badge = ('<span class="badge ok">PASS</span>' if r.ok
+             else f'<span class="badge fail">FAIL: {len(r.failing)} of '
+                  f'{len(r.constraints)} constraints</span>')
+    out = [f"<h2>{_e(heading)}</h2>",
+           f"<p>{badge} Stage <b>{_e(r.stage)}</b>: {_e(r.topology)}, {_e(t.polarity)} "
+           f"<b>{_e(t.part_id)}</b> (hFE {t.hfe_min:g}–{t.hfe_max:g}, VCEO "
+           f"{_e(_q(t.vceo_max, 'V'))}, PD {_e(_q(t.pd_max_w, 'W'))}), {_e(r.model)} model.</p>"]
+    rows = []
+    for role, p in r.parts.items():
+        sep = "+" if p.arrangement == "series" else "|"
+        ids = sep.join(p.part_ids) or "not in stock"
+        locations = ", ".join(x.location for x in p.parts if x.location)
+        rows.append([_e(role), _e(_q(p.value, "ohm")), _e(f"±{100 * p.tol:.3g} %"),
+                     _e(ids), _e(p.arrangement), _e(_q(p.rating, "W")), _e(locations)])
+    rows.append(["Q", "", "", _e(t.part_id), "", _e(_q(t.pd_max_w, "W")), _e(t.location)])
+    out.append("<h3>Parts</h3>" + _table(
+        ["role", "value", "tolerance", "part id(s)", "arrangement", "rating", "location"],
+        rows, numeric=(1,)))
+
+    nom = r.nominal
+    rows = [[_e(_LABELS[k]), _e(_q(nom.get(k), _UNITS[k]))]
+            for k in ("ic", "ib", "vce", "vb", "vc", "ve", "pd", "supply_power", "gain", "rin")
+            if k in nom]
+    out.append(f"<h3>Nominal Q-point</h3><p>{_e(nom.get('temperature_c'))} °C, β "
+               f"{_e(_q(nom.get('beta'), ''))}, nominal values and supply; region "
+               f"<b>{_e(nom.get('region'))}</b></p>"
+               + _table(["quantity", "value"], rows, numeric=(1,)))
+
+    rows = []
+    for c in sorted(r.constraints, key=lambda c: (c.ok, c.name)):
+        mark = '<span class="ok">ok</span>' if c.ok else '<span class="fail">FAIL</span>'
+        margin = _q(c.margin, c.unit) if math.isfinite(c.margin) else \
+            "fails (undefined where not active)"
+        rows.append([mark, _e(c.name), _e(c.description), _e(_q(c.limit, c.unit)),
+                     _e(_q(c.worst, c.unit) if c.worst == c.worst else "n/a"), _e(margin),
+                     _e(corner_text(c.corner))])
+    out.append("<h3>Constraints at the worst corner (failures first)</h3>" + _table(
+        ["", "constraint", "what", "limit", "worst", "margin", "at corner"], rows,
+        numeric=(3, 4, 5)))
+
+    wc = r.worst
+    rows = []
+    for q in [*_LABELS, *(f"p_{role}" for role in r.parts)]:
+        b = wc.bounds.get(q)
+        if b is None:
+            continue
+        unit = _UNITS.get(q, "W")
+        rows.append([_e(_LABELS.get(q, f"P {q[2:]}")), _e(_q(b.min, unit)),
+                     _e(_q(b.max, unit)), _e(corner_text(b.corner_min)),
+                     _e(corner_text(b.corner_max))])
+    out.append(f"<h3>Worst case over {wc.n_vertices} corners</h3>"
+               "<p class=\"small\">A corner names each parameter's setting: + its high end, − "
+               "its low end, ~ a value inside the range.</p>"
+               + _table(["quantity", "min", "max", "corner of min", "corner of max"], rows,
+                        numeric=(1, 2)))
+    if wc.non_active_corners:
+        out.append(f"<p class=\"fail\">{wc.non_active_corners} of {wc.n_vertices} corners "
+                   f"are not in the active region ({_e(', '.join(wc.regions_seen))}).</p>")
+    mc = r.monte_carlo
+    if mc is not None:
+        y = mc.yield_
+        fails = ", ".join(f"{k} {v}" for k, v in mc.failing.items()) or "none"
+        out.append(f"<h3>Monte Carlo</h3><p>{y.samples} boards (seed {mc.seed}), each at every "
+                   f"supply × ambient extreme: yield <b>{100 * y.yield_:.2f} %</b> (95 % "
+                   f"interval {100 * y.low:.2f}–{100 * y.high:.2f} %); failing boards by "
+                   f"constraint: {_e(fails)}</p>")
+    if plots:
+        from .plots import figure_bytes, ic_histogram_figure, qpoint_figure
+
+        out.append("<h3>Plots</h3>")
+        out.append(_figure(figure_bytes(qpoint_figure(r, job), "png"),
+                           "Output characteristic: DC load lines, Q-points at the worst-case "
+                           "corners and of the Monte Carlo boards, and the limits"))
+        if mc is not None:
+            out.append(_figure(figure_bytes(ic_histogram_figure(r, job), "png"),
+                               "Monte Carlo collector current against the target window"))
+    out.append("<h3>Assumptions</h3>" + _list(r.assumptions))
+    out.append("<h3>Warnings</h3>" + _list(r.warnings))
+    out.append("<h3>Cautions</h3>" + _list(r.cautions, "caution"))
+    return "".join(out)
+
+
+def render_report_html(*, title: str, job: Job | None = None,
+                       inventory: Inventory | None = None,
+                       checks: Sequence[tuple[str, CheckResult]] = (),
+                       designs: Sequence[Mapping[str, Any]] | None = None,
+                       notes: Sequence[str] = (), command: str = "", plots: bool = True,
+                       generated: datetime | None = None) -> str:
+    """The report as one HTML document (see :func:`render_report`)."""
+    when = (generated or datetime.now()).strftime("%Y-%m-%d %H:%M")
+    body = [f"<h1>{_e(title)}</h1>",
+            f"<p class=\"small\">stockbias {_e(_version())}, {_e(when)}"
+            + (f"; command <code>{_e(command)}</code>" if command else "") + "</p>"]
+    cautions: list[str] = []
+    for _, r in checks:
+        cautions += [c for c in r.cautions if c not in cautions]
+    if cautions:
+        body.append("<h2>Cautions</h2>" + _list(cautions, "caution"))
+    if notes:
+        body.append("<h2>Notes</h2>" + _list(list(notes)))
+    if job is not None:
+        body.append(_job_section(job))
+    if inventory is not None:
+        body.append(_stock_section(inventory))
+    if designs is not None:
+        body.append(_designs_section(designs) if designs else
+                    "<h2>Ranked designs</h2><p class=\"fail\">No design meets the job.</p>")
+    for heading, r in checks:
+        if job is None:
+            raise ValueError("a report with checks needs the job")
+        body.append(_check_section(heading, job, r, plots))
+    body.append(f"<hr><p class=\"small\">{_e(CAUTION_FOOTER)}</p>")
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            f"<title>{_e(title)}</title><style>{_CSS}</style></head><body>"
+            + "\n".join(body) + "</body></html>\n")
+
+
+def render_report(path: str | Path, *, title: str, job: Job | None = None,
+                  inventory: Inventory | None = None,
+                  checks: Sequence[tuple[str, CheckResult]] = (),
+                  designs: Sequence[Mapping[str, Any]] | None = None,
+                  notes: Sequence[str] = (), command: str = "", plots: bool = True) -> Path:
+    """Write the HTML report.
+
+    Parameters
+    ----------
+    path : str or Path
+        Output file (``.html``).
+    title : str
+        Heading of the report.
+    job : Job, optional
+        The job (its file name and every setting are listed).
+    inventory : Inventory, optional
+        The stock file used (name and SHA-256).
+    checks : sequence of (heading, CheckResult)
+        Analysed stages, each with parts, nominal point, constraints, worst case,
+        Monte Carlo, plots, assumptions, warnings and cautions.
+    designs : sequence of dict, optional
+        Ranked designs as ``design`` returns them in JSON (a table, and the cost
+        against margin plot).
+    notes : sequence of str
+        Extra lines shown near the top.
+    command : str
+        The command line that made the report.
+    plots : bool
+        Embed the plots of each check.
+
+    Returns
+    -------
+    Path
+        The file written.
+    """
+    text = render_report_html(title=title, job=job, inventory=inventory, checks=checks,
+                              designs=designs, notes=notes, command=command, plots=plots)
+    path = Path(path)
+    try:
+        path.write_text(text, encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"cannot write the report: {exc.strerror}", file=str(path),
+                         column="--report") from None
+    return path

@@ -1,0 +1,106 @@
+"""Plots: the files exist, are valid PNG and SVG and carry real content (pixels not tested)."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+from stockbias.analysis.check import analyze
+from stockbias.cli.app import app
+from stockbias.errors import InputError
+from stockbias.job import load_job
+from stockbias.render.plots import (
+    design_margin_figure,
+    ic_histogram_figure,
+    write_check_plots,
+    write_design_plots,
+)
+from stockbias.stock_io import read_inventory
+
+ROOT = Path(__file__).resolve().parent.parent
+SAMPLES = ROOT / "inventory_samples"
+SHELF = SAMPLES / "workshop_drawers.csv"
+JOB = SAMPLES / "line_driver_job.toml"
+VALUES = {"R1": "CF-47K", "R2": "CF-10K", "RC": "CF-3K3", "RE": "CF-1K0"}
+PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
+runner = CliRunner()
+
+
+def assert_plot_files(paths: list[Path]) -> None:
+    for path in paths:
+        data = path.read_bytes()
+        assert len(data) > 10_000, path  # a drawn figure, not an empty canvas
+        if path.suffix == ".png":
+            assert data.startswith(PNG_MAGIC)
+        else:
+            root = ET.fromstring(data)
+            assert root.tag.endswith("svg")
+
+
+@pytest.fixture(scope="module")
+def result():
+    return analyze(load_job(JOB), VALUES, "QN-GP40", read_inventory(SHELF), samples=2000)
+
+
+def test_check_plots_png_and_svg(tmp_path: Path, result) -> None:
+    paths = write_check_plots(result, load_job(JOB), tmp_path / "plots")
+    assert sorted(p.name for p in paths) == ["ic_histogram.png", "ic_histogram.svg",
+                                             "qpoints.png", "qpoints.svg"]
+    assert_plot_files(paths)
+    svg = (tmp_path / "plots" / "qpoints.svg").read_text()
+    assert "<script" not in svg
+
+
+def test_histogram_needs_monte_carlo() -> None:
+    res = analyze(load_job(JOB), VALUES, "QN-GP40", read_inventory(SHELF), samples=0)
+    with pytest.raises(InputError, match="needs Monte Carlo boards"):
+        ic_histogram_figure(res, load_job(JOB))
+
+
+def test_design_plot_from_a_hand_made_list(tmp_path: Path) -> None:
+    designs = [
+        {"rank": 1, "topology": "divider", "cost": 0.07,
+         "constraints": [{"name": "ic_min", "margin": 1.2e-4}, {"name": "ic_max", "margin": 3e-5}]},
+        {"rank": 2, "topology": "collector_feedback", "cost": 0.09,
+         "constraints": [{"name": "ic_min", "margin": 2.5e-4}, {"name": "ic_max", "margin": 2e-4}]},
+        {"rank": 3, "topology": "divider", "cost": 0.11,
+         "constraints": [{"name": "ic_min", "margin": -1e-5}, {"name": "ic_max", "margin": 4e-4}]},
+    ]
+    paths = write_design_plots(designs, tmp_path)
+    assert [p.name for p in paths] == ["design_cost_margin.png", "design_cost_margin.svg"]
+    assert_plot_files(paths)
+    with pytest.raises(InputError, match="no design with a cost and an IC margin"):
+        design_margin_figure([{"rank": 1, "cost": 0.1}])
+
+
+def test_cli_check_plot_names_the_files(tmp_path: Path) -> None:
+    out = tmp_path / "figs"
+    result = runner.invoke(app, ["check", str(JOB), "-i", str(SHELF), "-v",
+                                 ",".join(f"{k}={v}" for k, v in VALUES.items()), "-t",
+                                 "QN-GP40", "--samples", "500", "--plot", str(out)])
+    assert result.exit_code == 1  # this design fails its window (tests/test_check.py)
+    assert f"Plots written: {out / 'qpoints.png'}" in result.stdout
+    assert_plot_files(sorted(out.iterdir()))
+
+
+def test_cli_plot_into_a_file_is_refused(tmp_path: Path) -> None:
+    blocker = tmp_path / "afile"
+    blocker.write_text("x")
+    result = runner.invoke(app, ["check", str(JOB), "-i", str(SHELF), "-v",
+                                 ",".join(f"{k}={v}" for k, v in VALUES.items()), "-t",
+                                 "QN-GP40", "--samples", "0", "--plot", str(blocker)])
+    assert result.exit_code == 2
+    assert len(result.stderr.strip().splitlines()) == 1 and "afile" in result.stderr
+
+
+def test_importing_the_package_does_not_import_matplotlib() -> None:
+    code = ("import sys, stockbias, stockbias.render.plots, stockbias.render.report, "
+            "stockbias.cli.app; print('matplotlib' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, cwd=ROOT)
+    assert out.stdout.strip() == "False"
