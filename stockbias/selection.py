@@ -19,7 +19,7 @@ from __future__ import annotations
 import json
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -217,7 +217,7 @@ def from_search(job: Job, inventory: Inventory, rank: int, *,
                          column="--rank", text=str(rank)) from None
     result = design(job, inventory, top=max(rank, job.search.top), time_limit_s=time_limit_s)
     data = result.to_dict()
-    designs = data.get("designs") or []
+    designs: list[Any] = list(data.get("designs") or [])  # type: ignore[call-overload]
     if not designs:
         raise UnmetError(f"the search found no design that meets the job (status "
                          f"{data.get('status')}); nothing to act on", file=job.path)
@@ -374,18 +374,3 @@ def bench_needs(parts: Mapping[str, ResolvedResistor], transistor: Transistor,
                         r.location, r.qty))
     return [*out, *off]
 
-
-def with_quantity(needs: list[Need], inventory: Inventory) -> list[Need]:
-    """The same needs with the shelf counts of another read of the stock file."""
-    out = []
-    for n in needs:
-        if not n.part_id:
-            out.append(n)
-            continue
-        try:
-            row = inventory.part(n.part_id)
-        except KeyError:
-            raise InputError(f"part {n.part_id} is no longer in the stock file",
-                             file=inventory.path, column="part_id", text=n.part_id) from None
-        out.append(replace(n, line=row.line, location=row.location, in_stock=row.qty))
-    return out

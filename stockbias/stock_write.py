@@ -43,7 +43,7 @@ from datetime import datetime
 from pathlib import Path
 
 from .errors import InputError
-from .parts import Inventory
+from .parts import Inventory, Resistor, Transistor
 from .stock_io import read_inventory
 
 __all__ = [
@@ -285,8 +285,10 @@ def _short_message(short: list[tuple[str, int, int, int]], build: str) -> str:
 
 
 def _same_apart_from_qty(old: Inventory, new: Inventory, expected: Mapping[str, int]) -> bool:
-    before = {p.part_id: p.to_dict() for p in (*old.resistors, *old.transistors)}
-    after = {p.part_id: p.to_dict() for p in (*new.resistors, *new.transistors)}
+    rows_old: list[Resistor | Transistor] = [*old.resistors, *old.transistors]
+    rows_new: list[Resistor | Transistor] = [*new.resistors, *new.transistors]
+    before = {p.part_id: p.to_dict() for p in rows_old}
+    after = {p.part_id: p.to_dict() for p in rows_new}
     if before.keys() != after.keys():
         return False
     for pid, row in before.items():

@@ -38,8 +38,9 @@ __all__ = [
 CHECK_PLOTS = ("qpoints", "ic_histogram")
 DESIGN_PLOTS = ("design_cost_margin",)
 _MC_POINTS = 4000  # Monte Carlo points drawn on the output characteristic (a fixed subsample)
-_STYLE = {"font.size": 10, "axes.titlesize": 11, "axes.labelsize": 10, "legend.fontsize": 8,
-          "svg.hashsalt": "stockbias", "svg.fonttype": "path"}
+_STYLE: dict[str, Any] = {"font.size": 10, "axes.titlesize": 11, "axes.labelsize": 10,
+                          "legend.fontsize": 8, "svg.hashsalt": "stockbias",
+                          "svg.fonttype": "path"}
 
 
 def _figure(width: float = 7.5, height: float = 5.2) -> Any:
@@ -82,7 +83,7 @@ def qpoint_figure(result: CheckResult, job: Job) -> Any:
     import matplotlib as mpl
 
     t = result.transistor
-    with mpl.rc_context(_STYLE):
+    with mpl.rc_context(_STYLE):  # type: ignore[arg-type]
         fig = _figure(8.0, 7.0)
         ax = fig.add_subplot()
         lo, nominal, hi = _supply_span(job, result.topology)
@@ -170,7 +171,7 @@ def ic_histogram_figure(result: CheckResult, job: Job) -> Any:
         raise InputError("the IC histogram needs Monte Carlo boards (--samples more than 0)",
                          column="--samples", text="0")
     tgt = job.stage.target
-    with mpl.rc_context(_STYLE):
+    with mpl.rc_context(_STYLE):  # type: ignore[arg-type]
         fig = _figure(7.5, 4.6)
         ax = fig.add_subplot()
         ic = _flat(mc.ic) * 1e3
@@ -227,7 +228,7 @@ def design_margin_figure(designs: Sequence[Mapping[str, Any]], title: str = "") 
               if isinstance(d.get("cost"), (int, float)) and (m := _ic_margin(d)) is not None]
     if not points:
         raise InputError("no design with a cost and an IC margin to plot", column="designs")
-    with mpl.rc_context(_STYLE):
+    with mpl.rc_context(_STYLE):  # type: ignore[arg-type]
         fig = _figure(7.0, 4.8)
         ax = fig.add_subplot()
         markers = {"divider": "o", "collector_feedback": "s", "dual_supply": "D",
@@ -254,7 +255,7 @@ def figure_bytes(fig: Any, fmt: str = "png") -> bytes:
     import matplotlib as mpl
 
     buf = io.BytesIO()
-    with mpl.rc_context(_STYLE):
+    with mpl.rc_context(_STYLE):  # type: ignore[arg-type]
         fig.savefig(buf, format=fmt, metadata={"Date": None} if fmt == "svg" else None)
     return buf.getvalue()
 
