@@ -194,7 +194,7 @@ def ic_histogram_figure(result: CheckResult, job: Job) -> Any:
         ax.set_xlabel("collector current IC (mA)")
         ax.set_ylabel("count (board × corner)")
         ax.set_title(f"IC spread, {result.topology} with {result.transistor.part_id}\n"
-                     f"boards inside the IC window at every corner {100 * inside.mean():.2f} %; "
+                     f"boards inside the IC window at every corner {100 * inside.mean():.2f} %\n"
                      f"yield over all constraints {100 * y.yield_:.2f} % "
                      f"(95 % interval {100 * y.low:.2f}–{100 * y.high:.2f} %)")
         ax.grid(True, axis="y", color="0.9", lw=0.6)
