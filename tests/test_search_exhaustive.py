@@ -70,7 +70,7 @@ CASES = [
     (5, "collector_feedback", 16, 3, 45, 5, 0, (0, 60)),
     (6, "collector_feedback", 18, 2, 50, 10, 2, (25, 25)),
     (7, "fixed_base", 18, 3, 60, 5, 3, (25, 25)),
-    (8, "fixed_base", 20, 4, 35, 5, 0, (10, 40)),
+    (8, "fixed_base", 20, 3, 35, 5, 0, (10, 40)),
     (9, "dual_supply", 14, 3, 20, 5, 1, (25, 25)),
     (10, "dual_supply", 18, 2, 25, 10, 0, (0, 50)),
     (11, "divider", 9, 3, 22, 5, 1, (25, 25)),      # duplicate values on the shelf

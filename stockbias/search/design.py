@@ -518,10 +518,10 @@ class _Search:
             live = np.flatnonzero(np.asarray(self.pool.status) != 2)
             order = live[np.lexsort(keys[live].T[::-1])]
             head = [int(k) for k in order[:limit]]
-            unchecked = [k for k in head if self.pool.status[k] == 0]
-            if unchecked:
-                self.vertex_verify(unchecked, keys)
-                limit *= 2
+            if any(self.pool.status[k] == 0 for k in head):
+                # check the next `limit` unchecked designs in key order, in one batch
+                batch = [int(k) for k in order if self.pool.status[int(k)] == 0][:limit]
+                self.vertex_verify(batch, keys)
                 continue
             good = 0
             for k in head:
