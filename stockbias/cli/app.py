@@ -71,14 +71,14 @@ app = typer.Typer(
 
 
 def _register() -> None:
-    from . import check_cmd, demo_cmd, design_cmd, stock_cmd
+    from . import check_cmd, demo_cmd, design_cmd, export_cmd, stock_cmd, substitute_cmd
 
     app.command("demo")(demo_cmd.demo)
     app.command("check")(check_cmd.check)
     app.command("design")(design_cmd.design)
-    app.add_typer(stock_cmd.app, name="stock")
-    from . import export_cmd
+    app.command("substitute")(substitute_cmd.substitute)
     app.command("export")(export_cmd.export)
+    app.add_typer(stock_cmd.app, name="stock")
 
 
 _register()

@@ -1,0 +1,46 @@
+"""`stockbias substitute JOB`: which stock transistors can take this stage, with what rework."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+import typer
+
+from ..assign import parse_assignments
+from ..render.console import make_console
+from ..render.json_out import dumps
+from .common import InventoryOpt, JobArg, JsonOpt, load
+
+
+def substitute(
+    job_file: JobArg,
+    inventory: InventoryOpt,
+    values: Annotated[list[str], typer.Option(
+        "--values", "-v", help="The stage's current parts: ROLE=VALUE_OR_PART_ID[,...]; "
+        "A+B series, A|B parallel. Repeatable.")],
+    transistor: Annotated[str, typer.Option("--transistor", "-t",
+                                            help="Part id of the specified transistor.")],
+    json_out: JsonOpt = False,
+    max_changes: Annotated[int | None, typer.Option(
+        "--max-changes", min=0, max=8, help="Most resistors a rework may change.")] = None,
+    time_limit: Annotated[float | None, typer.Option(
+        "--time-limit", min=0.1, max=86400.0, help="Seconds for the rework searches.")] = None,
+    samples: Annotated[int, typer.Option("--samples", min=0, max=1_000_000,
+                                         help="Monte Carlo boards per reported check.")] = 2000,
+    seed: Annotated[int, typer.Option("--seed", help="Monte Carlo seed.")] = 0,
+) -> None:
+    """Judge every stock transistor for an existing stage: drop-in, least rework, or ruled out."""
+    from ..search.substitute import substitute as run
+
+    job, inv = load(job_file, inventory)
+    assert inv is not None
+    result = run(job, parse_assignments(values), transistor, inv, max_changes=max_changes,
+                 time_limit_s=time_limit, samples=samples, seed=seed)
+    if json_out:
+        typer.echo(dumps(result.to_dict()))
+    else:
+        from ..render.substitute_table import render_substitute
+
+        render_substitute(make_console(), job, result)
+    if not any(c.fixed for c in result.candidates):
+        raise typer.Exit(1)

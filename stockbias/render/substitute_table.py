@@ -1,0 +1,68 @@
+"""Terminal rendering of `substitute`: drop-ins first, then by rework, ruled-out parts named."""
+
+from __future__ import annotations
+
+from rich.console import Console
+from rich.table import Table
+
+from ..job import Job
+from ..search.substitute import SubstituteResult
+from ..units import format_quantity
+
+__all__ = ["render_substitute"]
+
+
+def render_substitute(console: Console, job: Job, result: SubstituteResult) -> None:
+    """Print the ranked substitution candidates."""
+    values = ", ".join(f"{role} = {format_quantity(p.value, 'ohm')}"
+                       + (f" ({'+'.join(p.part_ids)})" if p.part_ids else "")
+                       for role, p in result.values.items())
+    t = job.stage.target
+    console.print(f"[bold]Substitutes for {result.current.part_id}[/bold] in stage "
+                  f"'{result.stage}' ({result.topology}): {values}; IC "
+                  f"{format_quantity(t.ic_min, 'A')}–{format_quantity(t.ic_max, 'A')}, "
+                  f"VCE ≥ {format_quantity(t.vce_min, 'V')}, build of {job.build.quantity}")
+    table = Table(title="Stock transistors, best first", title_justify="left")
+    for col in ("#", "transistor", "verdict", "least rework from stock", "added cost/board",
+                "IC margin", "why"):
+        table.add_column(col)
+    for rank, c in enumerate(result.candidates, start=1):
+        q = c.transistor
+        name = f"{q.part_id} ({q.polarity}, hFE {q.hfe_min:g}–{q.hfe_max:g})"
+        margin = ""
+        if c.check is not None and (c.drop_in or c.changes):
+            by = {x.name: x for x in c.check.constraints}
+            m = min(by["ic_min"].margin, by["ic_max"].margin)
+            margin = format_quantity(m, "A")
+        if c.ruled_out:
+            table.add_row(str(rank), name, "[red]ruled out[/red]", "", "", "", c.ruled_out)
+        elif c.drop_in:
+            table.add_row(str(rank), name, "[green]drop-in[/green]", "none", "0", margin,
+                          "passes every limit as it stands")
+        elif c.changes:
+            change = ", ".join(f"{role} → {format_quantity(p.value, 'ohm')} "
+                               f"({'+'.join(p.part_ids)})" for role, p in c.changes.items())
+            fails = ", ".join(x.name for x in c.drop_in_check.failing) \
+                if c.drop_in_check else ""
+            why = f"as it stands fails {fails}"
+            if not c.proven:
+                why += "; time limit: fewer changes not ruled out"
+            table.add_row(str(rank), name, f"[yellow]{len(c.changes)} change"
+                          f"{'s' if len(c.changes) > 1 else ''}[/yellow]", change,
+                          f"{c.added_cost:g}", margin, why)
+        else:
+            fails = ", ".join(x.name for x in c.drop_in_check.failing) \
+                if c.drop_in_check else ""
+            table.add_row(str(rank), name, "[red]no fix[/red]", "", "", "",
+                          f"fails {fails}; {c.note}")
+    console.print(table)
+    console.print("IC margin: the smallest distance of the worst-case IC to the window. Every "
+                  "verdict is the full worst-case check (the same as `stockbias check`); a "
+                  "rework is the fewest resistor changes, then the lowest added cost, then the "
+                  "largest margin.")
+    for c in result.candidates:
+        for w in (c.check.warnings if c.check is not None else []):
+            console.print(f"[yellow]warning[/yellow] ({c.transistor.part_id}): {w}")
+    cautions = {w for c in result.candidates if c.check is not None for w in c.check.cautions}
+    for w in sorted(cautions):
+        console.print(f"[bold yellow]caution[/bold yellow]: {w}")

@@ -1,0 +1,428 @@
+"""`substitute`: can another stock transistor take this stage, and with how little rework?
+
+For an existing stage (its values and its specified transistor) every stock
+transistor is judged:
+
+1. ruled out by a rating that no resistor change can mend (polarity, VCEO
+   against the largest voltage the supplies can impose, IC max against the
+   window, the dissipation it may take at the hottest ambient against
+   IC min × VCE min), with the rating named;
+2. otherwise checked as a drop-in with exactly the `check` analysis;
+3. if it fails, the least rework from stock: fewest resistors changed first,
+   then the cost of the new parts, then the IC margin.  For k = 1, 2, … changed
+   roles, every subset of k roles is searched over every stock line that holds a
+   build's worth, with the other roles held at their current parts.
+
+The search screens all combinations at once over every vertex of the
+tolerance box (vectorised; exact for the monotone quantities, and never
+stricter than the full check, which also refines products inside the box and
+adds the self-heated junction), then re-verifies the screened combinations in
+rank order with :func:`stockbias.analysis.check.analyze_stage` until one
+passes.  Because the screen never rejects a combination the full check would
+pass, the first verified combination of the smallest k is the least rework:
+the answer is proven unless the time limit cut the search short (then it is
+marked ``proven: false``).
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import time
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..analysis.check import CheckResult, analyze_stage, build_spec
+from ..analysis.constraints import evaluate_limits, stage_limits
+from ..analysis.ratings import transistor_pd_allowed
+from ..analysis.stage import SMALL_SIGNAL_QUANTITIES, ResistorSpec, StageSpec, evaluate
+from ..analysis.worst_case import vertex_points
+from ..assign import ResolvedResistor, resolve_resistor
+from ..errors import InputError
+from ..job import Job
+from ..parts import Inventory, Resistor, Transistor
+from ..topologies import get_network
+from .candidates import micro
+
+__all__ = ["SubstituteCandidate", "SubstituteResult", "substitute"]
+
+_POINTS_PER_CHUNK = 2_000_000
+_PREFILTER_CHUNK = 200_000
+
+
+@dataclass(frozen=True)
+class SubstituteCandidate:
+    """One stock transistor's verdict.
+
+    ``changes`` is the least rework (role → new part), empty for a drop-in; ``check`` is the
+    analysis with the current values (or, when there is a rework, with the reworked ones).
+    """
+
+    transistor: Transistor
+    drop_in: bool
+    ruled_out: str | None
+    changes: dict[str, ResolvedResistor] = field(default_factory=dict)
+    check: CheckResult | None = None
+    drop_in_check: CheckResult | None = None
+    added_cost: float = 0.0
+    proven: bool = True
+    note: str = ""
+
+    @property
+    def fixed(self) -> bool:
+        return self.ruled_out is None and (self.drop_in or bool(self.changes))
+
+    def sort_key(self) -> tuple:
+        ic_margin = _ic_margin(self.check) if self.check is not None else -math.inf
+        if self.drop_in:
+            return (0, 0, 0.0, -ic_margin, self.transistor.part_id)
+        if self.changes:
+            return (1, len(self.changes), self.added_cost, -ic_margin, self.transistor.part_id)
+        if self.ruled_out is None:
+            return (2, 0, 0.0, 0.0, self.transistor.part_id)
+        return (3, 0, 0.0, 0.0, self.transistor.part_id)
+
+    def to_dict(self) -> dict[str, object]:
+        margins = None
+        if self.check is not None:
+            margins = [c.to_dict() for c in self.check.constraints]
+        drop_in_failures = None
+        if self.drop_in_check is not None and not self.drop_in:
+            drop_in_failures = [c.to_dict() for c in self.drop_in_check.failing]
+        return {
+            "part_id": self.transistor.part_id, "polarity": self.transistor.polarity,
+            "drop_in": self.drop_in, "ruled_out": self.ruled_out,
+            "changes": [{"role": role, "part_id": _ids(p), "value_ohm": p.value,
+                         "tolerance_pct": 100 * p.tol} for role, p in self.changes.items()],
+            "added_cost": self.added_cost, "proven": self.proven, "note": self.note,
+            "constraints": margins, "drop_in_failures": drop_in_failures,
+            "ic_margin": None if self.check is None else _ic_margin(self.check),
+        }
+
+
+@dataclass(frozen=True)
+class SubstituteResult:
+    """All stock transistors ranked: drop-ins, then by rework, then unfixable, then ruled out."""
+
+    stage: str
+    topology: str
+    current: Transistor
+    values: dict[str, ResolvedResistor]
+    candidates: list[SubstituteCandidate]
+    solve_seconds: float
+
+    def to_dict(self) -> dict[str, object]:
+        return {"stage": self.stage, "topology": self.topology,
+                "current": {"part_id": self.current.part_id},
+                "values": {role: p.to_dict() for role, p in self.values.items()},
+                "solve_seconds": self.solve_seconds,
+                "candidates": [c.to_dict() for c in self.candidates]}
+
+
+def _ids(p: ResolvedResistor) -> object:
+    ids = p.part_ids
+    if not ids:
+        return None
+    return ids[0] if len(ids) == 1 else ids
+
+
+def _ic_margin(res: CheckResult) -> float:
+    """Smallest distance of worst-case IC to the window, as a fraction of the window centre."""
+    by = {c.name: c for c in res.constraints}
+    lo, hi = by["ic_min"], by["ic_max"]
+    centre = math.sqrt(lo.limit * hi.limit)
+    return min(lo.margin, hi.margin) / centre
+
+
+def _ruled_out(job: Job, q: Transistor, polarity: str) -> str | None:
+    """A rating no resistor change can mend, named; None when there is none."""
+    stage = job.stage
+    t = stage.target
+    need_v = job.supply.max_ce_voltage
+    if q.polarity != polarity:
+        return f"polarity {q.polarity}: the stage is built for {polarity}"
+    if q.vceo_max <= need_v:
+        return f"VCEO {q.vceo_max:g} V below the {need_v:.3g} V supply maximum"
+    if q.ic_max < t.ic_min:
+        return f"IC max {q.ic_max * 1e3:.3g} mA below the {t.ic_min * 1e3:.3g} mA window floor"
+    theta = math.nan if q.theta_ja is None else q.theta_ja
+    tj = q.tj_max if stage.limits.tj_max is None else stage.limits.tj_max
+    hot = job.environment.ambient_max_c
+    allowed = float(transistor_pd_allowed(q.pd_max_w, theta, hot, tj))
+    if allowed < t.ic_min * t.vce_min:
+        return (f"PD {allowed * 1e3:.3g} mW allowed at {hot:g} °C, below IC min × VCE min "
+                f"({t.ic_min * t.vce_min * 1e3:.3g} mW)")
+    if q.qty < job.build.quantity:
+        return f"only {q.qty} in stock for a build of {job.build.quantity}"
+    return None
+
+
+def _line_uses(parts: Mapping[str, ResolvedResistor]) -> dict[str, int]:
+    uses: dict[str, int] = {}
+    for p in parts.values():
+        for part in p.parts:
+            uses[part.part_id] = uses.get(part.part_id, 0) + 1
+    return uses
+
+
+def _stock_ok(parts: Mapping[str, ResolvedResistor], inventory: Inventory, build: int) -> bool:
+    for pid, n in _line_uses(parts).items():
+        row = inventory.find_resistor(pid)
+        if row is None or row.qty < n * build:
+            return False
+    return True
+
+
+def _as_resolved(role: str, r: Resistor) -> ResolvedResistor:
+    return ResolvedResistor(role=role, value=r.value_ohm, tol=r.tolerance_pct / 100,
+                            tempco_ppm=r.tempco_ppm or 0.0, rating=r.power_w, parts=(r,))
+
+
+class _Screen:
+    """Vectorised screen of role combinations over every vertex of the tolerance box."""
+
+    def __init__(self, job: Job, base: dict[str, ResolvedResistor], q: Transistor) -> None:
+        self.job = job
+        self.base = base
+        self.q = q
+        self.spec0 = build_spec(job, job.stage, base, q)
+        self.span = max(abs(job.environment.ambient_min_c - 25.0),
+                        abs(job.environment.ambient_max_c - 25.0))
+        ratings = {role: p.rating for role, p in base.items()}
+        limits = stage_limits(job, job.stage, self.spec0, ratings)
+        self.quantities = {lim.quantity for lim in limits}
+        self.small_signal = bool(self.quantities & SMALL_SIGNAL_QUANTITIES)
+        self.tables: dict[str, np.ndarray] = {}
+
+    def arrays(self, roles: tuple[str, ...], cand: dict[str, list[Resistor]],
+               idx: np.ndarray) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+        """Each role's band (low, high) over tolerance and tempco drift, per combination."""
+        bands = {}
+        for role, p in self.base.items():
+            spec = ResistorSpec(p.value, p.tol, abs(p.tempco_ppm) * 1e-6 * self.span)
+            bands[role] = (np.full(len(idx), float(spec.low)), np.full(len(idx),
+                                                                       float(spec.high)))
+        for j, role in enumerate(roles):
+            table = self.tables.get(role)
+            if table is None:
+                rows = cand[role]
+                table = np.array([[r.value_ohm, r.tolerance_pct / 100,
+                                   abs(r.tempco_ppm or 0.0) * 1e-6 * self.span] for r in rows])
+                self.tables[role] = table
+            v, tol, drift = table[idx[:, j]].T
+            bands[role] = (v * (1 - tol) * (1 - drift), v * (1 + tol) * (1 + drift))
+        return bands
+
+    def prefilter(self, roles: tuple[str, ...], cand: dict[str, list[Resistor]],
+                  idx: np.ndarray) -> np.ndarray:
+        """Combinations whose IC window and headroom can hold (divider, constant VBE only).
+
+        The few-corner bounds of :mod:`stockbias.analysis.fast_bounds` equal the vertex
+        bounds for IC and VCE while the stage is active, and a stage that is not active at
+        some vertex fails the check anyway, so this drops nothing the check would pass.
+        """
+        if self.spec0.network.name != "divider" or self.spec0.model != "constant_vbe":
+            return np.ones(len(idx), dtype=bool)
+        from ..analysis.fast_bounds import divider_bounds
+
+        d = self.spec0.device
+        fb = divider_bounds(self.arrays(roles, cand, idx), vcc=self.spec0.vcc,
+                            vcc_tol=self.spec0.vcc_tol, hfe_min=d.hfe_min, hfe_max=d.hfe_max,
+                            vbe_min=d.vbe_min, vbe_max=d.vbe_max, vce_sat=d.vce_sat,
+                            icbo25=d.icbo_a, xtb=d.xtb, ambient_min_c=self.spec0.ambient_min_c,
+                            ambient_max_c=self.spec0.ambient_max_c)
+        t = self.job.stage.target
+        slack = 1e-9
+        return (fb.active & (fb.ic_min >= t.ic_min * (1 - slack))
+                & (fb.ic_max <= t.ic_max * (1 + slack))
+                & (fb.vce_min >= t.vce_min - slack))
+
+    def margins(self, roles: tuple[str, ...], cand: dict[str, list[Resistor]],
+                idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(smallest normalised margin over all limits, IC margin as a fraction of target).
+
+        Both are upper bounds of what the full check finds for the same parts: the screen
+        sees the vertices only (the check adds interior maxima of products and the
+        self-heated junction, which can only tighten).
+        """
+        resistors: dict[str, ResistorSpec] = {}
+        ratings: dict[str, float | np.ndarray] = {}
+        for role, p in self.base.items():
+            resistors[role] = ResistorSpec(p.value, p.tol, abs(p.tempco_ppm) * 1e-6 * self.span)
+            ratings[role] = p.rating
+        for j, role in enumerate(roles):
+            rows = [cand[role][i] for i in idx[:, j]]
+            resistors[role] = ResistorSpec(
+                np.array([r.value_ohm for r in rows]),
+                np.array([r.tolerance_pct / 100 for r in rows]),
+                np.array([abs(r.tempco_ppm or 0.0) * 1e-6 * self.span for r in rows]))
+            ratings[role] = np.array([r.power_w for r in rows])
+        spec = StageSpec(self.spec0.network, resistors, self.spec0.device, self.spec0.vcc,
+                         self.spec0.vcc_tol, self.spec0.vee, self.spec0.vee_tol,
+                         self.spec0.ambient_min_c, self.spec0.ambient_max_c, self.spec0.model,
+                         self.spec0.load, self.spec0.re_bypassed)
+        point, _bits = vertex_points(spec)
+        ev = evaluate(spec, point, small_signal=self.small_signal)
+        q = ev.quantities
+        low = {k: np.nanmin(v, axis=-1) for k, v in q.items() if k in self.quantities}
+        high = {k: np.nanmax(v, axis=-1) for k, v in q.items() if k in self.quantities}
+        bad = np.count_nonzero(ev.op.region != 0, axis=-1).astype(float)
+        low["non_active_corners"] = high["non_active_corners"] = bad
+        need = np.full(len(idx), self.job.supply.max_ce_voltage)
+        low["vceo_needed"] = high["vceo_needed"] = need
+        limits = stage_limits(self.job, self.job.stage, spec, ratings)
+        margins = evaluate_limits(limits, low, high)
+        worst = np.full(len(idx), np.inf)
+        for lim in limits:
+            scale = np.maximum(np.abs(np.asarray(lim.limit, dtype=float)), 1e-12)
+            if lim.quantity == "non_active_corners":
+                scale = np.asarray(1.0)
+            worst = np.minimum(worst, margins[lim.name] / scale)
+        t = self.job.stage.target
+        ic_margin = np.minimum(margins["ic_min"], margins["ic_max"]) / math.sqrt(
+            t.ic_min * t.ic_max)
+        return worst, ic_margin
+
+
+def _least_rework(job: Job, base: dict[str, ResolvedResistor], q: Transistor,
+                  inventory: Inventory, deadline: float, max_changes: int,
+                  samples: int, seed: int) -> tuple[dict[str, ResolvedResistor],
+                                                   CheckResult | None, float, bool]:
+    """Fewest changes, then added cost, then IC margin; (changes, check, cost, proven)."""
+    build = job.build.quantity
+    lines = [r for r in inventory.bias_resistors if r.qty >= build]
+    screen = _Screen(job, base, q)
+    roles_all = tuple(base)
+    n_vertex = 2 ** len(screen.spec0.axes())
+    chunk = max(1, _POINTS_PER_CHUNK // n_vertex)
+    for k in range(1, min(max_changes, len(roles_all)) + 1):
+        # 1. screen every subset of k roles over every stock line, all at once per chunk
+        scored: list[tuple[int, float, tuple[str, ...], tuple[int, ...]]] = []
+        cands: dict[tuple[str, ...], dict[str, list[Resistor]]] = {}
+        timed_out = False
+        for roles in itertools.combinations(roles_all, k):
+            cand = {role: [r for r in lines if [r.part_id] != base[role].part_ids]
+                    for role in roles}
+            cands[roles] = cand
+            sizes = [len(cand[r]) for r in roles]
+            total = math.prod(sizes)
+            screen.tables = {}
+            for start in range(0, total, _PREFILTER_CHUNK):
+                flat = np.arange(start, min(start + _PREFILTER_CHUNK, total))
+                idx_all = np.stack(np.unravel_index(flat, sizes), axis=1)
+                idx_all = idx_all[screen.prefilter(roles, cand, idx_all)]
+                for sub in range(0, len(idx_all), chunk):
+                    if time.monotonic() > deadline:
+                        timed_out = True
+                        break
+                    idx = idx_all[sub:sub + chunk]
+                    worst, ic_margin = screen.margins(roles, cand, idx)
+                    ok = worst >= -1e-9
+                    for row, m in zip(idx[ok], ic_margin[ok], strict=True):
+                        cost = sum(micro(cand[r][i].unit_cost) for r, i in
+                                   zip(roles, row, strict=True))
+                        scored.append((cost, float(m), roles, tuple(int(i) for i in row)))
+                if timed_out:
+                    break
+            if timed_out:
+                break
+        # 2. verify in rank order; a screened margin bounds the verified one from above, so
+        #    once the best verified design beats every remaining screen value, it is minimal
+        scored.sort(key=lambda s: (s[0], -s[1], s[2], s[3]))
+        best: tuple[int, float, dict[str, ResolvedResistor], CheckResult] | None = None
+        for cost, m_screen, roles, row in scored:
+            if best is not None and (cost > best[0] or m_screen <= best[1]):
+                break
+            if time.monotonic() > deadline:
+                timed_out = True
+                break
+            parts = dict(base)
+            for r, i in zip(roles, row, strict=True):
+                parts[r] = _as_resolved(r, cands[roles][r][i])
+            if not _stock_ok(parts, inventory, build):
+                continue
+            res = analyze_stage(job, job.stage, parts, q, samples=0)
+            if res.ok:
+                m = _ic_margin(res)
+                if best is None or m > best[1]:
+                    best = (cost, m, {r: parts[r] for r in roles}, res)
+        if best is not None:
+            cost, _m, changes, res = best
+            if samples > 0:
+                res = analyze_stage(job, job.stage, {**base, **changes}, q, samples=samples,
+                                    seed=seed)
+            return changes, res, cost / 1e6, not timed_out
+        if timed_out:
+            return {}, None, 0.0, False
+    return {}, None, 0.0, True
+
+
+def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inventory, *,
+               max_changes: int | None = None, time_limit_s: float | None = None,
+               samples: int = 2000, seed: int = 0,
+               tolerance_pct: float | None = None) -> SubstituteResult:
+    """Judge every stock transistor for an existing stage (DESIGN §1, §3).
+
+    Parameters
+    ----------
+    job : Job
+        One stage with one topology.
+    values : Mapping[str, str]
+        The stage's current parts, role → part id, value, ``A+B`` or ``A|B``.
+    current : str
+        Part id of the specified transistor.
+    inventory : Inventory
+    max_changes : int, optional
+        Most resistors a rework may change (default: every role).
+    time_limit_s : float, optional
+        Wall-clock limit for each transistor's rework search (default: the job's).
+    samples, seed : Monte Carlo boards for the reported checks.
+    tolerance_pct : float, optional
+        Tolerance for current values that are not stock parts.
+    """
+    t0 = time.monotonic()
+    if job.is_board:
+        raise InputError("substitute takes a one-stage job", file=job.path, column="stage")
+    stage = job.stage
+    if stage.topology == "any":
+        raise InputError("substitute needs the stage's topology, not 'any'", file=job.path,
+                         column="search.topology", text="any")
+    network = get_network(stage.topology)
+    unknown = sorted(set(values) - set(network.role_names))
+    if unknown:
+        raise InputError(f"{network.name} has no role {unknown[0]}; its roles are "
+                         f"{', '.join(network.role_names)}", column="--values", text=unknown[0])
+    missing = [r for r in network.required_roles if r not in values]
+    if missing:
+        raise InputError(f"{network.name} needs a value for {', '.join(missing)}",
+                         column="--values")
+    cur = inventory.find_transistor(current)
+    if cur is None:
+        raise InputError(f"no transistor with that part id in {inventory.path}",
+                         column="--transistor", text=current)
+    tol = job.build.default_tolerance_pct if tolerance_pct is None else tolerance_pct
+    base = {role: resolve_resistor(role, text, inventory, tol) for role, text in values.items()}
+    limit = job.search.time_limit_s if time_limit_s is None else time_limit_s
+    out: list[SubstituteCandidate] = []
+    for q in inventory.transistors:
+        deadline = time.monotonic() + limit   # each transistor gets the whole limit
+        reason = _ruled_out(job, q, cur.polarity)
+        if reason is not None:
+            out.append(SubstituteCandidate(q, False, reason))
+            continue
+        res = analyze_stage(job, stage, base, q, samples=samples, seed=seed)
+        if res.ok:
+            out.append(SubstituteCandidate(q, True, None, check=res, drop_in_check=res))
+            continue
+        changes, fixed, cost, proven = _least_rework(
+            job, base, q, inventory, deadline, max_changes or len(base), samples, seed)
+        note = "" if changes else ("no rework from stock meets every limit" if proven else
+                                   "time limit reached before a rework was found")
+        out.append(SubstituteCandidate(q, False, None, changes=changes, check=fixed or res,
+                                       drop_in_check=res, added_cost=cost, proven=proven,
+                                       note=note))
+    out.sort(key=lambda c: c.sort_key())
+    return SubstituteResult(stage=stage.name, topology=network.name, current=cur, values=base,
+                            candidates=out, solve_seconds=time.monotonic() - t0)
