@@ -44,9 +44,13 @@ if [ ! -x .venv/bin/python ]; then
   "$PY" -m venv .venv
 fi
 .venv/bin/python -m pip install -q --upgrade pip >/dev/null 2>&1 || true
-if [ "$want_tests" -eq 1 ]; then
-  .venv/bin/python -m pip install -q -e '.[test]'
-else
-  .venv/bin/python -m pip install -q -e .
+target='.'
+[ "$want_tests" -eq 1 ] && target='.[test]'
+echo "installing stockbias and its Python packages into .venv (log: .venv/pip.log)" >&2
+if ! .venv/bin/python -m pip install --disable-pip-version-check -e "$target" \
+    > .venv/pip.log 2>&1; then
+  cat .venv/pip.log >&2
+  echo "pip install failed (log above, also in .venv/pip.log)" >&2
+  exit 1
 fi
 echo "stockbias is set up in .venv ($(.venv/bin/python --version))" >&2
