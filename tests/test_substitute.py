@@ -112,3 +112,14 @@ def test_json_matches_schema(result) -> None:
     schema = json.loads((Path(__file__).resolve().parent.parent / "stockbias" / "schemas"
                          / "substitute.schema.json").read_text())
     jsonschema.validate(clean(result.to_dict()), schema)
+
+
+def test_report(tmp_path: Path) -> None:
+    out = tmp_path / "sub.html"
+    res = CliRunner().invoke(app, ["substitute", str(JOB), "-i", str(SHELF), "-v",
+                                   ",".join(f"{k}={v}" for k, v in VALUES.items()), "-t", "Q-A",
+                                   "--samples", "100", "--report", str(out)])
+    assert res.exit_code == 0, res.output
+    html = out.read_text()
+    assert "Q-B: with the least rework" in html
+    assert "ruled out, VCEO 10 V below the 12.2 V supply maximum" in html

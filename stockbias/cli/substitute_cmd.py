@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+from pathlib import Path
 from typing import Annotated
 
 import typer
@@ -28,6 +30,8 @@ def substitute(
     samples: Annotated[int, typer.Option("--samples", min=0, max=1_000_000,
                                          help="Monte Carlo boards per reported check.")] = 2000,
     seed: Annotated[int, typer.Option("--seed", help="Monte Carlo seed.")] = 0,
+    report: Annotated[Path | None, typer.Option(
+        "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
 ) -> None:
     """Judge every stock transistor for an existing stage: drop-in, least rework, or ruled out."""
     from ..search.substitute import substitute as run
@@ -42,5 +46,16 @@ def substitute(
         from ..render.substitute_table import render_substitute
 
         render_substitute(make_console(), job, result)
+    if report is not None:
+        from ..render.report import render_report
+        from ..render.substitute_table import verdict_lines
+
+        checks = [(f"{c.transistor.part_id}: "
+                   + ("drop-in" if c.drop_in else "with the least rework"), c.check)
+                  for c in result.candidates if c.check is not None and c.fixed]
+        render_report(report, title=f"Substitutes for {transistor} in stage '{result.stage}'",
+                      job=job, inventory=inv, checks=checks, notes=verdict_lines(result),
+                      command="stockbias substitute " + " ".join(sys.argv[2:]))
+        make_console(stderr=json_out).print(f"Report written: {report}")
     if not any(c.fixed for c in result.candidates):
         raise typer.Exit(1)

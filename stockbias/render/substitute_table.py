@@ -9,7 +9,27 @@ from ..job import Job
 from ..search.substitute import SubstituteResult
 from ..units import format_quantity
 
-__all__ = ["render_substitute"]
+__all__ = ["render_substitute", "verdict_lines"]
+
+
+def verdict_lines(result: SubstituteResult) -> list[str]:
+    """One plain sentence per stock transistor, best first (for reports)."""
+    out = []
+    for rank, c in enumerate(result.candidates, start=1):
+        q = c.transistor.part_id
+        if c.ruled_out:
+            out.append(f"{rank}. {q}: ruled out, {c.ruled_out}.")
+        elif c.drop_in:
+            out.append(f"{rank}. {q}: drop-in, passes every limit as it stands.")
+        elif c.changes:
+            change = ", ".join(f"{role} to {format_quantity(p.value, 'ohm')} "
+                               f"({'+'.join(p.part_ids)})" for role, p in c.changes.items())
+            proof = "" if c.proven else " (time limit: fewer changes not ruled out)"
+            out.append(f"{rank}. {q}: {len(c.changes)} change(s): {change}; added cost "
+                       f"{c.added_cost:g} per board{proof}.")
+        else:
+            out.append(f"{rank}. {q}: no fix from stock; {c.note}.")
+    return out
 
 
 def render_substitute(console: Console, job: Job, result: SubstituteResult) -> None:
