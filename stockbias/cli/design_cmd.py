@@ -27,6 +27,11 @@ def design(
     save: Annotated[Path | None, typer.Option("--save", dir_okay=False,
                                               help="Also write the JSON result to FILE.")
                     ] = None,
+    plot: Annotated[Path | None, typer.Option(
+        "--plot", file_okay=False, help="Write the cost against margin plot (PNG, SVG) here.")
+                    ] = None,
+    report: Annotated[Path | None, typer.Option(
+        "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
 ) -> None:
     """Search the stock for the best designs that meet every worst-case limit."""
     from ..search.design import design as run_design
@@ -67,5 +72,26 @@ def design(
         from ..render.design_table import render_design
 
         render_design(make_console(), job, result)
+    note = make_console(stderr=json_out)
+    designs = payload.get("designs") or []
+    if plot is not None and designs:
+        from ..render.plots import write_design_plots
+
+        written = write_design_plots(designs, plot)
+        note.print("Plots written: " + ", ".join(str(p) for p in written))
+    if report is not None:
+        import sys
+
+        from ..render.report import render_report
+
+        notes = [f"Status: {payload.get('status')}"]
+        if payload.get("explanation"):
+            notes.append(f"Explanation: {payload['explanation']}")
+        checks = [(f"Rank {d.rank}: {d.topology}, {d.transistor.part_id}", d.check)
+                  for d in result.designs[:3]]
+        render_report(report, title=f"Designs for {job_file.name}", job=job, inventory=inv,
+                      checks=checks, designs=designs, notes=notes,
+                      command="stockbias design " + " ".join(sys.argv[2:]))
+        note.print(f"Report written: {report}")
     if not result.designs:
         raise typer.Exit(1)
