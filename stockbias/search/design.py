@@ -40,7 +40,9 @@ from .model import ModelDesign
 from .prepass import (
     PLANS,
     Rows,
+    corners,
     free_role_bounds,
+    ie_terms,
     materialise,
     rc_allowed_power,
     row_cuts,
@@ -53,6 +55,8 @@ __all__ = ["Design", "DesignResult", "design", "objective_key"]
 _BIG = np.iinfo(np.int64).max // 4
 _REL = 1e-12
 EXPONENTIAL_MAX_DESIGNS = 300_000
+#: With pairs on, the enumerated roles take pairs only while rows × transistors stay below this.
+PAIR_ROW_LIMIT = 20_000_000
 
 Progress = Callable[[str, float], None]
 
@@ -190,36 +194,42 @@ class _Block:
     def n_rows(self) -> int:
         return self.rows.size if self.rows is not None else int(self.ic_hi.size)
 
-    def cores(self, sel: np.ndarray) -> tuple[dict[str, np.ndarray], np.ndarray, np.ndarray]:
+    def cores(self, sel: np.ndarray, x_attr: np.ndarray | None = None,
+              x_limit: np.ndarray | None = None
+              ) -> tuple[dict[str, np.ndarray], np.ndarray, np.ndarray]:
         if self.exact:
             return {r: v[sel] for r, v in self.idx.items()}, self.ic_hi[sel], self.ic_lo[sel]
-        c = materialise(self.network, self.transistor, self.cands, self.rows, sel)
+        c = materialise(self.network, self.transistor, self.cands, self.rows, sel, x_attr,
+                        x_limit)
         return c.idx, c.ic_hi, c.ic_lo
 
 
-def _sparse(a: np.ndarray, fn) -> list[np.ndarray]:
-    """Sparse table for O(1) range min/max queries."""
-    out = [a]
+def _sparse(a: np.ndarray, fn) -> np.ndarray:
+    """Sparse table (levels × n, padded) for O(1) range min/max queries."""
+    levels = [a]
     k = 1
     while 2 * k <= a.size:
-        prev = out[-1]
-        out.append(fn(prev[:-k], prev[k:]))
+        prev = levels[-1]
+        levels.append(fn(prev[:-k], prev[k:]))
         k *= 2
+    out = np.empty((len(levels), a.size), dtype=a.dtype)
+    for i, lev in enumerate(levels):
+        out[i, :lev.size] = lev
+        out[i, lev.size:] = lev[-1] if lev.size else 0
     return out
 
 
-def _range(table: list[np.ndarray], i0: np.ndarray, i1: np.ndarray, fn, empty) -> np.ndarray:
+def _range(table: np.ndarray, i0: np.ndarray, i1: np.ndarray, fn, empty) -> np.ndarray:
     """fn over a[i0:i1] for each row (``empty`` where the range is empty)."""
     n = i1 - i0
     ok = n > 0
-    lev = np.zeros_like(n)
+    lev = np.zeros(n.shape, dtype=np.int64)
     lev[ok] = np.floor(np.log2(n[ok])).astype(np.int64)
-    out = np.full(n.shape, empty, dtype=table[0].dtype)
-    for level in np.unique(lev[ok]):
-        m = ok & (lev == level)
-        t = table[int(level)]
-        out[m] = fn(t[i0[m]], t[i1[m] - (1 << int(level))])
-    return out
+    right = np.where(ok, i1 - (1 << lev), i0)
+    left = np.minimum(i0, table.shape[1] - 1)
+    right = np.clip(right, 0, table.shape[1] - 1)
+    out = fn(table[lev, left], table[lev, right])
+    return np.where(ok, out, empty)
 
 
 @dataclass
@@ -254,6 +264,7 @@ class _Search:
         self.verified: dict[tuple, CheckResult | None] = {}
         self.rejected_on_verification = 0
         self._cache: dict[tuple, object] = {}
+        self.pair_roles_limited: list[str] = []
         self.stats: dict[str, int] = {"cores": 0, "designs_vertex_checked": 0,
                                       "designs_kept": 0, "verified": 0}
 
@@ -261,8 +272,15 @@ class _Search:
     def build_blocks(self) -> None:
         for net_name in self.networks:
             net = get_network(net_name)
-            cands = {r.name: self.shelf.candidates(r.optional, self.pairs) for r in net.roles}
             plan = PLANS[net_name]
+            cands = {r.name: self.shelf.candidates(r.optional, self.pairs) for r in net.roles}
+            if self.pairs and self.job.search.model == "constant_vbe":
+                rows = int(np.prod([len(cands[r]) for r in plan.enumerated]))
+                if rows * max(len(self.transistors), 1) > PAIR_ROW_LIMIT:
+                    # too many rows to cross: pairs only where a role is cut per core
+                    for r in plan.enumerated:
+                        cands[r] = self.shelf.candidates(net.role(r).optional, False)
+                    self.pair_roles_limited.append(net_name)
             for qi, q in enumerate(self.transistors):
                 if self.job.search.model == "exponential":
                     self.blocks.append(self._exponential_block(net_name, qi, q, cands))
@@ -328,12 +346,12 @@ class _Search:
             # the design adds a value unless the interval role (or the free role) can repeat
             # one; the interval role can only repeat one in its cut, which we test exactly
             match = np.zeros(sel.size, dtype=bool)
+            pos0 = np.searchsorted(xc.value, self.shelf.values, "left")
+            pos1 = np.searchsorted(xc.value, self.shelf.values, "right")
             for v in vals[::2]:
                 has = v >= 0
-                vv = self.shelf.values[np.where(has, v, 0)]
-                p0 = np.searchsorted(xc.value, vv, "left")
-                p1 = np.searchsorted(xc.value, vv, "right")
-                match |= has & (np.maximum(i0, p0) < np.minimum(i1, p1))
+                vv = np.where(has, v, 0)
+                match |= has & (np.maximum(i0, pos0[vv]) < np.minimum(i1, pos1[vv]))
             absent = xc.arrangement[i0] < 0
             distinct = distinct + (~match & ~absent)
         bom = _count_distinct(lines) + 1
@@ -348,7 +366,7 @@ class _Search:
         mppm = margin_ppm(ic_lo, ic_hi, t.ic_min, t.ic_max, t.ic)
         return sel, objective_key(self.objectives, cost, parts, distinct, bom, mppm)
 
-    def _tables(self, b: _Block) -> dict[str, list[np.ndarray]]:
+    def _tables(self, b: _Block) -> dict[str, np.ndarray]:
         key = (b.network, "tables")
         if key not in self._cache:
             xc = b.cands[PLANS[b.network].interval]
@@ -378,11 +396,28 @@ class _Search:
     # --- expansion of a chunk of cores into full designs ---------------------------
     def expand(self, b: _Block, sel: np.ndarray, kappa: np.ndarray) -> None:
         """Rows → cores → full designs with exact keys ≤ κ that pass every vertex."""
-        t = self.stage.target
-        idx, ic_hi, ic_lo = b.cores(sel)
+        x_attr = x_limit = None
+        first = self.objectives[0]
+        if not b.exact and first in ("cost", "part_count") and kappa[0] < _BIG:
+            # the first objective is a sum over roles: what is left of κ for the interval role
+            col = "cost" if first == "cost" else "parts"
+            plan = PLANS[b.network]
+            fixed = np.full(sel.size, micro(b.transistor.unit_cost) if col == "cost" else 1,
+                            dtype=np.int64)
+            for r in plan.enumerated:
+                fixed += getattr(b.cands[r], col)[b.rows.grid[r][sel]]
+            if b.free is not None:
+                fixed += int(getattr(b.cands[b.free], col).min())
+            x_attr = getattr(b.cands[plan.interval], col)
+            x_limit = kappa[0] - fixed
+        idx, ic_hi, ic_lo = b.cores(sel, x_attr, x_limit)
         self.stats["cores"] += int(ic_hi.size)
         if ic_hi.size == 0:
             return
+        if b.network == "divider" and not b.exact:
+            ok = self._divider_power_ok(b, idx)
+            idx = {r: v[ok] for r, v in idx.items()}
+            ic_hi, ic_lo = ic_hi[ok], ic_lo[ok]
         if not b.exact:
             lb = self._keys(b, idx, b.core_roles, ic_lo, ic_hi)
             if b.free is not None:
@@ -396,18 +431,56 @@ class _Search:
             ok = _lex_le(lb, kappa)
             idx = {r: v[ok] for r, v in idx.items()}
             ic_hi, ic_lo = ic_hi[ok], ic_lo[ok]
+        if b.free is None:
+            self._finish(b, idx, ic_hi, ic_lo, kappa, None)
+            return
+        fc = b.cands[b.free]
+        h, low_need, ic_top = free_role_bounds(self.job, self.stage, b.network,
+                                               b.transistor, b.cands, idx)
+        f_hi = float(np.min(fc.high / fc.value))
+        f_lo = float(np.max(fc.low / fc.value))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            j1 = np.searchsorted(fc.value, np.where(np.isfinite(h), h / f_hi, h)
+                                 * (1 + _REL), "right")
+            j0 = np.searchsorted(fc.value, low_need / f_lo * (1 - _REL), "left")
+        counts = np.maximum(j1 - j0, 0)
+        # bounded memory: slices of cores with at most ~1M free-role candidates in all
+        edges = np.searchsorted(np.cumsum(counts), np.arange(1, 1 + int(counts.sum()) // 1_000_000)
+                                * 1_000_000)
+        start = 0
+        for stop in [*edges.tolist(), counts.size]:
+            stop = max(stop, start + 1)
+            sl = slice(start, min(stop, counts.size))
+            if sl.start >= counts.size:
+                break
+            self._finish(b, {r: v[sl] for r, v in idx.items()}, ic_hi[sl], ic_lo[sl], kappa,
+                         (h[sl], low_need[sl], ic_top[sl], j0[sl], counts[sl]))
+            start = sl.stop
+
+    def _divider_power_ok(self, b: _Block, idx: dict[str, np.ndarray]) -> np.ndarray:
+        """R1 and R2 dissipation at one vertex (VCC max, R1 low, R2 high, RE low, the
+        IC-max device corner), active closed form: exceeding the allowed power there is a
+        proof of failure (or the vertex is not active, which fails too)."""
+        cn = corners(self.job, b.transistor, "divider")
+        c = b.cands
+        r1, r2 = c["R1"].low[idx["R1"]], c["R2"].high[idx["R2"]]
+        re = c["RE"].low[idx["RE"]]
+        n_, d0 = ie_terms("divider", {"R1": r1, "R2": r2}, cn.vcc_hi, 0.0, cn.beta_hi,
+                          cn.vbe_hi, cn.icbo_hi)
+        vb = n_ / (d0 + re) * re + cn.vbe_hi
+        p1 = (cn.vcc_hi - vb) ** 2 / r1
+        p2 = vb ** 2 / r2
+        a1 = rc_allowed_power(self.job, self.stage, c["R1"].rating[idx["R1"]])
+        a2 = rc_allowed_power(self.job, self.stage, c["R2"].rating[idx["R2"]])
+        return (p1 <= a1 * (1 + 1e-9)) & (p2 <= a2 * (1 + 1e-9))
+
+    def _finish(self, b: _Block, idx, ic_hi, ic_lo, kappa, free) -> None:
+        """Cores (with the free role's cut) → designs with exact keys ≤ κ into the pool."""
+        t = self.stage.target
         core_row = np.arange(ic_hi.size)
-        if b.free is not None:
+        if free is not None:
             fc = b.cands[b.free]
-            h, low_need, ic_top = free_role_bounds(self.job, self.stage, b.network,
-                                                   b.transistor, b.cands, idx)
-            f_hi = float(np.min(fc.high / fc.value))
-            f_lo = float(np.max(fc.low / fc.value))
-            with np.errstate(invalid="ignore", divide="ignore"):
-                j1 = np.searchsorted(fc.value, np.where(np.isfinite(h), h / f_hi, h)
-                                     * (1 + _REL), "right")
-                j0 = np.searchsorted(fc.value, low_need / f_lo * (1 - _REL), "left")
-            counts = np.maximum(j1 - j0, 0)
+            h, low_need, ic_top, j0, counts = free
             total = int(counts.sum())
             row = np.repeat(core_row, counts)
             fj = np.repeat(j0, counts) + np.arange(total) - np.repeat(np.cumsum(counts)
@@ -439,13 +512,24 @@ class _Search:
         key = objective_key(self.objectives, cost, parts, distinct, bom, mppm)
         keep = _lex_le(key, kappa)
         k_block = self.blocks.index(b)
-        for i in np.flatnonzero(keep):
+        picks = np.flatnonzero(keep)
+        if picks.size > 256 and not np.all(kappa < _BIG):
+            # no bound yet: pool the best few, bound from them (re-verified), then filter
+            order = picks[np.lexsort(key[picks].T[::-1])]
+            self._pool_add(b, k_block, roles, idx, key, mppm, order[:64])
+            kappa = self.kappa()
+            rest = order[64:]
+            picks = rest[_lex_le(key[rest], kappa)]
+        self._pool_add(b, k_block, roles, idx, key, mppm, picks)
+
+    def _pool_add(self, b, k_block, roles, idx, key, mppm, picks) -> None:
+        for i in picks:
             self.pool.block.append(k_block)
             self.pool.roles.append({r: int(idx[r][i]) for r in roles})
             self.pool.keys.append(key[i].copy())
             self.pool.margin.append(float(mppm[i]) / 1e6)
             self.pool.status.append(1 if b.exact else 0)
-        self.stats["designs_kept"] += int(keep.sum())
+        self.stats["designs_kept"] += len(picks)
 
     def vertex_verify(self, ks: list[int], keys: np.ndarray | None = None) -> None:
         """Check pool designs at every vertex; exact margins replace the corner bounds."""
@@ -513,15 +597,20 @@ class _Search:
         if not self.pool.keys:
             return inf
         limit = 4 * self.top + 16
+        batch_size = limit
         keys = np.stack(self.pool.keys)
         while True:
-            live = np.flatnonzero(np.asarray(self.pool.status) != 2)
+            status = np.asarray(self.pool.status)
+            live = np.flatnonzero(status != 2)
             order = live[np.lexsort(keys[live].T[::-1])]
             head = [int(k) for k in order[:limit]]
-            if any(self.pool.status[k] == 0 for k in head):
-                # check the next `limit` unchecked designs in key order, in one batch
-                batch = [int(k) for k in order if self.pool.status[int(k)] == 0][:limit]
-                self.vertex_verify(batch, keys)
+            if np.any(status[order[:limit]] == 0):
+                # check the next unchecked designs in key order, in growing batches
+                batch = order[status[order] == 0][:batch_size]
+                self.vertex_verify([int(k) for k in batch], keys)
+                batch_size = min(batch_size * 2, 65536)
+                if time.monotonic() > self.deadline:
+                    return inf
                 continue
             good = 0
             for k in head:
@@ -540,15 +629,19 @@ class _Search:
     def run(self) -> tuple[str, dict[str, float]]:
         self.build_blocks()
         bids, rids, keys = [], [], []
+        weights = []
         for k, b in enumerate(self.blocks):
             sel, key = self.row_bounds(b)
             bids.append(np.full(sel.size, k))
             rids.append(sel)
             keys.append(key)
+            weights.append(np.ones(sel.size, dtype=np.int64) if b.exact
+                           else (b.rows.i1 - b.rows.i0)[sel])
         m = len(self.objectives)
         bid = np.concatenate(bids) if bids else np.zeros(0, dtype=np.int64)
         rid = np.concatenate(rids) if rids else np.zeros(0, dtype=np.int64)
         key = np.concatenate(keys) if keys else np.zeros((0, m), dtype=np.int64)
+        weight = np.concatenate(weights) if weights else np.zeros(0, dtype=np.int64)
         comp = _composite(key)
         done = np.zeros(bid.size, dtype=bool)
         kappa = np.full(m, _BIG, dtype=np.int64)
@@ -563,13 +656,17 @@ class _Search:
             if not finite and ids.size > batch:
                 ids = ids[np.argpartition(comp[ids], batch)[:batch]]
             ids = ids[np.lexsort((ids, comp[ids]))]
-            chunk, pos, restart = 256, 0, False
+            chunk, pos, restart = (256 if finite else 8), 0, False
             while pos < ids.size:
                 if time.monotonic() > self.deadline:
                     complete = False
                     bound[self.objectives[0]] = float(key[ids[pos], 0])
                     break
                 part = ids[pos:pos + chunk]
+                w = np.cumsum(weight[part])
+                cut = max(1, int(np.searchsorted(w, 2_000_000, "right")))
+                if cut < part.size:
+                    part, chunk = part[:cut], cut
                 part = part[_lex_le(key[part], kappa)]
                 if part.size == 0:
                     break
@@ -639,9 +736,21 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     pool_keys = np.stack(s.pool.keys) if s.pool.keys else np.zeros((0, len(s.objectives)))
     kappa = s.kappa()
     if len(pool_keys):
-        s.vertex_verify([int(k) for k in np.flatnonzero(_lex_le(pool_keys, kappa))])
+        # designs strictly better than κ must all be offered; of those tied with κ, the
+        # re-verified ones already make up the top K (ties rank in any fixed order)
+        below = _lex_le(pool_keys, kappa) & ~np.all(pool_keys == kappa, axis=1)
+        s.vertex_verify([int(k) for k in np.flatnonzero(below)])
         pool_keys = np.stack(s.pool.keys)
-        keep = np.flatnonzero(_lex_le(pool_keys, kappa) & (np.asarray(s.pool.status) == 1))
+        below = _lex_le(pool_keys, kappa) & ~np.all(pool_keys == kappa, axis=1)
+        tied = np.all(pool_keys == kappa, axis=1) & np.array(
+            [s.verified.get((s.pool.block[k], tuple(sorted(s.pool.roles[k].items()))))
+             is not None for k in range(len(s.pool.keys))])
+        if not np.all(kappa < _BIG):
+            tied = _lex_le(pool_keys, kappa)
+            s.vertex_verify([int(k) for k in np.flatnonzero(tied)])
+            pool_keys = np.stack(s.pool.keys)
+            tied = _lex_le(pool_keys, kappa)
+        keep = np.flatnonzero((below | tied) & (np.asarray(s.pool.status) == 1))
     else:
         keep = np.zeros(0, dtype=np.int64)
     mdesigns: list[ModelDesign] = []
@@ -703,6 +812,13 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
                           excluded_transistors=[{"part_id": q.part_id, "reason": why}
                                                 for q, why in s.excluded])
     result.assumptions = _assumptions(job, designs)
+    for net_name in s.pair_roles_limited:
+        plan = PLANS[net_name]
+        result.assumptions.append(
+            f"{net_name}: the shelf is too large to cross pairs in {', '.join(plan.enumerated)}; "
+            f"pairs were searched for {', '.join(r for r in (plan.interval, plan.free) if r)} "
+            "only, and the status holds for that set of designs")
+    stats["pairs_limited_to_cut_roles"] = s.pair_roles_limited
     if not designs and _explain:
         from .explain import explain
 

@@ -266,8 +266,13 @@ def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
 
 
 def materialise(network: str, q: Transistor, cands: dict[str, RoleCandidates], rows: Rows,
-                sel: np.ndarray | None = None) -> Cores:
-    """Cores of the selected rows: each row × each interval-role candidate that passes."""
+                sel: np.ndarray | None = None, x_attr: np.ndarray | None = None,
+                x_limit: np.ndarray | None = None) -> Cores:
+    """Cores of the selected rows: each row × each interval-role candidate that passes.
+
+    ``x_attr``/``x_limit`` (optional): also drop candidates whose attribute exceeds the
+    row's limit (the caller's proven objective bound, e.g. the cost left for this role).
+    """
     plan = PLANS[network]
     sel = np.arange(rows.size) if sel is None else np.asarray(sel)
     xc = cands[plan.interval]
@@ -281,6 +286,8 @@ def materialise(network: str, q: Transistor, cands: dict[str, RoleCandidates], r
     x_lo, x_hi = xc.low[xi], xc.high[xi]
     keep = (x_lo >= rows.a_thr[row] * (1 - _REL) - 1e-300) & \
         (x_hi <= rows.b_thr[row] * (1 + _REL))
+    if x_attr is not None:
+        keep &= x_attr[xi] <= x_limit[rloc]
     row, xi, x_lo, x_hi = row[keep], xi[keep], x_lo[keep], x_hi[keep]
     ic_hi = np.full(row.size, -np.inf)
     for n_, d0 in rows.hi_terms:
