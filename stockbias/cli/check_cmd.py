@@ -15,21 +15,18 @@ from ..job import Job
 from ..parts import Inventory
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import InventoryOpt, JobArg, JsonOpt, load
+from .common import InventoryOpt, JobArg, JsonOpt, SeedOpt, TransistorOpt, ValuesOpt, load
 
 
 def check(
     job_file: JobArg,
     inventory: InventoryOpt,
-    values: Annotated[list[str], typer.Option(
-        "--values", "-v", help="ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a parallel "
-        "pair A|B. Repeatable.")],
-    transistor: Annotated[str, typer.Option("--transistor", "-t",
-                                            help="Stock part id of the transistor.")],
+    values: ValuesOpt,
+    transistor: TransistorOpt,
     json_out: JsonOpt = False,
     samples: Annotated[int, typer.Option("--samples", min=0, max=10_000_000,
                                          help="Monte Carlo boards (0: none).")] = 20000,
-    seed: Annotated[int, typer.Option("--seed", help="Monte Carlo seed.")] = 0,
+    seed: SeedOpt = 0,
     tolerance: Annotated[float | None, typer.Option(
         "--tolerance", min=0.01, max=50.0,
         help="Tolerance, %, for values that are not stock parts (default: the job's).")] = None,

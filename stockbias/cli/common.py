@@ -16,6 +16,12 @@ JobArg = Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=Tr
 InventoryOpt = Annotated[Path, typer.Option("--inventory", "-i", exists=True, dir_okay=False,
                                             readable=True, help="The stock CSV file.")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print only a JSON object on stdout.")]
+ValuesOpt = Annotated[list[str], typer.Option(
+    "--values", "-v", help="ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a parallel pair "
+    "A|B. Repeatable.")]
+TransistorOpt = Annotated[str, typer.Option("--transistor", "-t",
+                                            help="Stock part id of the transistor.")]
+SeedOpt = Annotated[int, typer.Option("--seed", help="Monte Carlo seed.")]
 
 
 def load(job_path: Path, inventory_path: Path | None) -> tuple[Job, Inventory | None]:

@@ -11,17 +11,14 @@ import typer
 from ..assign import parse_assignments
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import InventoryOpt, JobArg, JsonOpt, load
+from .common import InventoryOpt, JobArg, JsonOpt, SeedOpt, TransistorOpt, ValuesOpt, load
 
 
 def substitute(
     job_file: JobArg,
     inventory: InventoryOpt,
-    values: Annotated[list[str], typer.Option(
-        "--values", "-v", help="The stage's current parts: ROLE=VALUE_OR_PART_ID[,...]; "
-        "A+B series, A|B parallel. Repeatable.")],
-    transistor: Annotated[str, typer.Option("--transistor", "-t",
-                                            help="Part id of the specified transistor.")],
+    values: ValuesOpt,
+    transistor: TransistorOpt,
     json_out: JsonOpt = False,
     max_changes: Annotated[int | None, typer.Option(
         "--max-changes", min=0, max=8, help="Most resistors a rework may change.")] = None,
@@ -29,7 +26,7 @@ def substitute(
         "--time-limit", min=0.1, max=86400.0, help="Seconds for the rework searches.")] = None,
     samples: Annotated[int, typer.Option("--samples", min=0, max=1_000_000,
                                          help="Monte Carlo boards per reported check.")] = 2000,
-    seed: Annotated[int, typer.Option("--seed", help="Monte Carlo seed.")] = 0,
+    seed: SeedOpt = 0,
     report: Annotated[Path | None, typer.Option(
         "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
 ) -> None:
