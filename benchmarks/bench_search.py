@@ -123,14 +123,16 @@ def naive(job, inv: Inventory, budget_s: float) -> tuple[float, bool]:
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--quick", action="store_true")
+    ap.add_argument("--baseline-only", action="store_true")
     args = ap.parse_args()
     rows = []
     cases = [("E12", 1, False), ("E12", 20, False), ("E24", 20, False), ("E48", 20, False),
              ("E96", 1, False), ("E96", 5, False), ("E96", 20, False),
-             ("E12", 20, True), ("E24", 20, True), ("E96", 20, True)]
+             ("E12", 20, True), ("E24", 20, True), ("E48", 5, True)]
+    # E96 with pairs (232 000 candidates per role) is not run: it exhausts memory (known gap)
     if args.quick:
         cases = cases[:3]
-    for series, n_q, pairs in cases:
+    for series, n_q, pairs in cases[:0] if args.baseline_only else cases:
         inv = shelf(series, n_q)
         job = parse_job(JOB.format(pairs="true" if pairs else "false"))
         t0 = time.perf_counter()
@@ -139,15 +141,15 @@ def main() -> None:
         rows.append((series, len(inv.resistors), n_q, "on" if pairs else "off", el, r.status,
                      r.stats.get("rows", 0), r.stats.get("designs_vertex_checked", 0), None))
         print(rows[-1], flush=True)
-    # the baseline where it can run: 24 lines (E12 over two decades), 1 and 20 transistors
-    for n_q in (1, 20):
-        inv = shelf("E12", n_q, lo=100.0, hi=82e3)
+    # the baseline: 12 lines (E12 1k-8k2), 24 lines (E12 100R-8k2), 1 and 20 transistors
+    for lo, n_q in ((1e3, 1), (100.0, 1), (100.0, 20)):
+        inv = shelf("E12", n_q, lo=lo, hi=8.2e3)
         job = parse_job(JOB.format(pairs="false"))
         t0 = time.perf_counter()
         r = design(job, inv)
         el = time.perf_counter() - t0
         base, finished = naive(job, inv, budget_s=60 if not args.quick else 10)
-        rows.append(("E12 100R-82k", len(inv.resistors), n_q, "off", el, r.status,
+        rows.append((f"E12 {lo:g}-8k2", len(inv.resistors), n_q, "off", el, r.status,
                      r.stats.get("rows", 0), r.stats.get("designs_vertex_checked", 0),
                      (base, finished)))
         print(rows[-1], flush=True)
