@@ -25,7 +25,7 @@ from .constraints import ConstraintResult, Limit, evaluate_limits, stage_limits
 from .montecarlo import MonteCarloResult, monte_carlo
 from .stage import DeviceSpec, ResistorSpec, StageSpec, evaluate, solve_point
 from .thermal import self_heated_point
-from .worst_case import WorstCase, point_at_unit, rss, worst_case
+from .worst_case import REPORTED, WorstCase, point_at_unit, rss, worst_case
 
 __all__ = ["CheckResult", "analyze", "analyze_stage", "build_spec"]
 
@@ -176,7 +176,11 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
     network = spec.network
     ratings = {role: p.rating for role, p in parts.items()}
     limits = stage_limits(job, stage, spec, ratings)
-    wc = worst_case(spec)
+    # bound every quantity a limit reads (swing and |gain| are not in the default report)
+    extra_q = [lim.quantity for lim in limits if lim.quantity not in REPORTED
+               and lim.quantity not in ("non_active_corners", "vceo_needed")]
+    wc = worst_case(spec, quantities=[*REPORTED, *(f"p_{r}" for r in spec.resistors),
+                                      *dict.fromkeys(extra_q)])
     low = {q: np.asarray(b.min) for q, b in wc.bounds.items()}
     high = {q: np.asarray(b.max) for q, b in wc.bounds.items()}
     low["non_active_corners"] = high["non_active_corners"] = np.asarray(
