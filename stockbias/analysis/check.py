@@ -27,7 +27,7 @@ from .stage import DeviceSpec, ResistorSpec, StageSpec, evaluate, solve_point
 from .thermal import self_heated_point
 from .worst_case import REPORTED, WorstCase, point_at_unit, rss, worst_case
 
-__all__ = ["CheckResult", "analyze", "analyze_stage", "build_spec"]
+__all__ = ["CheckResult", "analyze", "analyze_stage", "build_spec", "check_roles"]
 
 NOMINAL_KEYS = ("ic", "ib", "ie", "vb", "vc", "ve", "vce", "supply_power", "pd")
 ACTIVE_ONLY = ("gm", "gain", "rin")
@@ -283,6 +283,19 @@ def cautions(job: Job, results: list[ConstraintResult], thermal: dict[str, objec
     return out
 
 
+def check_roles(topology: str, values: Mapping[str, str]) -> None:
+    """InputError unless ``values`` names only the network's roles and all its required ones."""
+    network = get_network(topology)
+    unknown = sorted(set(values) - set(network.role_names))
+    if unknown:
+        raise InputError(f"{topology} has no role {unknown[0]}; its roles are "
+                         f"{', '.join(network.role_names)}", column="--values", text=unknown[0])
+    missing = [r for r in network.required_roles if r not in values]
+    if missing:
+        raise InputError(f"{topology} needs a value for {', '.join(missing)}",
+                         column="--values", text=",".join(f"{k}={v}" for k, v in values.items()))
+
+
 def analyze(job: Job, values: Mapping[str, str], transistor: str,
             inventory: Inventory | None, *, samples: int = 20000, seed: int = 0,
             tolerance_pct: float | None = None, stage_name: str | None = None) -> CheckResult:
@@ -314,15 +327,7 @@ def analyze(job: Job, values: Mapping[str, str], transistor: str,
     if topology == "any":
         raise InputError("check needs one topology: set [search] topology or --topology",
                          column="topology", text="any")
-    network = get_network(topology)
-    unknown = sorted(set(values) - set(network.role_names))
-    if unknown:
-        raise InputError(f"{topology} has no role {unknown[0]}; its roles are "
-                         f"{', '.join(network.role_names)}", column="--values", text=unknown[0])
-    missing = [r for r in network.required_roles if r not in values]
-    if missing:
-        raise InputError(f"{topology} needs a value for {', '.join(missing)}",
-                         column="--values", text=",".join(f"{k}={v}" for k, v in values.items()))
+    check_roles(topology, values)
     if inventory is None:
         raise InputError("check needs --inventory FILE for the transistor's data",
                          column="--inventory")

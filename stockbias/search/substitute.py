@@ -34,7 +34,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..analysis.check import CheckResult, analyze_stage, build_spec
+from ..analysis.check import CheckResult, analyze_stage, build_spec, check_roles
 from ..analysis.constraints import evaluate_limits, stage_limits
 from ..analysis.ratings import transistor_pd_allowed
 from ..analysis.stage import SMALL_SIGNAL_QUANTITIES, ResistorSpec, StageSpec, evaluate
@@ -390,14 +390,7 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
         raise InputError("substitute needs the stage's topology, not 'any'", file=job.path,
                          column="search.topology", text="any")
     network = get_network(stage.topology)
-    unknown = sorted(set(values) - set(network.role_names))
-    if unknown:
-        raise InputError(f"{network.name} has no role {unknown[0]}; its roles are "
-                         f"{', '.join(network.role_names)}", column="--values", text=unknown[0])
-    missing = [r for r in network.required_roles if r not in values]
-    if missing:
-        raise InputError(f"{network.name} needs a value for {', '.join(missing)}",
-                         column="--values")
+    check_roles(network.name, values)
     cur = inventory.find_transistor(current)
     if cur is None:
         raise InputError(f"no transistor with that part id in {inventory.path}",
