@@ -725,8 +725,10 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     DesignResult
     """
     if job.is_board:
-        raise InputError("design takes a one-stage job; this file is a board of "
-                         f"{len(job.stages)} stages", file=job.path, column="stage")
+        from .board import design_board
+
+        return design_board(job, inventory, top=top, time_limit_s=time_limit_s,
+                            progress=progress)  # type: ignore[return-value]
     t0 = time.monotonic()
     top = job.search.top if top is None else int(top)
     limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)

@@ -1,0 +1,504 @@
+"""Boards: several stages designed together from one shared stock (DESIGN §2, §3).
+
+Data flow
+    board job → per stage, the one-stage job and its candidate tables → the stage's
+    options (:mod:`.board_options`: every design the pre-pass cannot reject, as cores ×
+    runs of the free role) → one CP-SAT model for the whole board (:mod:`.board_model`:
+    one option per stage, stock shared, BOM lines and values counted across the board)
+    → lexicographic solve → each chosen stage re-verified with
+    :func:`stockbias.analysis.check.analyze_stage` (the path ``check`` uses); a stage
+    design that fails is forbidden and the board is solved again → the next rank is
+    found with a no-good on the board already ranked.
+
+What is proven
+    The options of a stage contain every design that passes the full check (each
+    rejection is exact at a vertex), the model is solved to proven optimality at every
+    lexicographic step, and what is returned passes the full check, so ``optimal``
+    means no board assignment from this stock ranks above it.  ``ic_margin`` is not
+    ranked across a board (it is reported per stage).
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from ..analysis.check import CheckResult, analyze_stage
+from ..assign import ResolvedResistor
+from ..errors import InputError
+from ..job import TOPOLOGY_NAMES, Job, Stage
+from ..parts import Inventory, Resistor, Transistor
+from ..topologies import get_network
+from .board_model import BoardModel, Choice, LineInfo, StageSetup
+from .board_options import StageOptions, stage_options
+from .candidates import RoleCandidates, Shelf, build_shelf, micro, usable_transistors
+from .prepass import vertex_check
+
+__all__ = ["BOARD_OBJECTIVES", "BoardDesign", "BoardResult", "BoardStage", "design_board",
+           "stage_job", "run_board"]
+
+BOARD_OBJECTIVES = ("cost", "part_count", "distinct_values", "bom_lines", "changes")
+MAX_REVERIFY_ROUNDS = 400
+Progress = Callable[[str, float], None]
+
+
+def stage_job(job: Job, stage: Stage) -> Job:
+    """The one-stage job of a board stage (shared sections, this stage)."""
+    return replace(job, stages=(stage,))
+
+
+@dataclass(frozen=True)
+class BoardStage:
+    """One stage of a ranked board: its network, transistor, parts and full check."""
+
+    name: str
+    topology: str
+    transistor: Transistor
+    check: CheckResult
+    changed: dict[str, dict[str, object]] = field(default_factory=dict)
+    ic_margin: float = 0.0
+
+    def to_dict(self) -> dict[str, object]:
+        c = self.check.to_dict()
+        parts = {}
+        for role, p in self.check.parts.items():
+            ids: object = p.part_ids[0] if len(p.parts) == 1 else (p.part_ids or None)
+            parts[role] = {"part_id": ids, "value_ohm": p.value, "tolerance_pct": 100 * p.tol}
+        return {"name": self.name, "topology": self.topology,
+                "transistor": {"part_id": self.transistor.part_id,
+                               "polarity": self.transistor.polarity},
+                "parts": parts,
+                "absent": [r for r in get_network(self.topology).optional_roles
+                           if r not in parts],
+                "ok": self.check.ok, "ic_margin": self.ic_margin,
+                "changed": self.changed,
+                "worst_case": c["worst_case"], "constraints": c["constraints"],
+                "nominal": c["nominal"], "warnings": self.check.warnings,
+                "cautions": self.check.cautions}
+
+
+def ic_margin_of(res: CheckResult, stage: Stage) -> float:
+    """Smallest distance of the worst-case IC to the window, as a fraction of the target."""
+    t = stage.target
+    b = res.worst.bounds["ic"]
+    return float(min(float(b.min) - t.ic_min, t.ic_max - float(b.max)) / t.ic)
+
+
+@dataclass(frozen=True)
+class BoardDesign:
+    """One ranked board: the stages and the board-wide objective values."""
+
+    rank: int
+    stages: list[BoardStage]
+    cost: float
+    cost_micro: int
+    part_count: int
+    distinct_values: int
+    bom_lines: int
+    changes: int
+    bom: list[dict[str, object]]
+
+    def to_dict(self) -> dict[str, object]:
+        return {"rank": self.rank, "cost": self.cost, "cost_micro": self.cost_micro,
+                "part_count": self.part_count, "distinct_values": self.distinct_values,
+                "bom_lines": self.bom_lines, "changes": self.changes,
+                "stages": [s.to_dict() for s in self.stages], "bom": self.bom}
+
+
+@dataclass
+class BoardResult:
+    """What :func:`design_board` (and consolidation) returns."""
+
+    status: str
+    solve_seconds: float
+    objectives: tuple[str, ...]
+    designs: list[BoardDesign]
+    bound: dict[str, float] = field(default_factory=dict)
+    explanation: dict[str, object] | None = None
+    stats: dict[str, object] = field(default_factory=dict)
+    assumptions: list[str] = field(default_factory=list)
+
+    @property
+    def found(self) -> bool:
+        return bool(self.designs)
+
+    def to_dict(self) -> dict[str, object]:
+        return {"status": self.status, "solve_seconds": self.solve_seconds,
+                "objectives": list(self.objectives),
+                "proven": self.status in ("optimal", "infeasible"), "bound": self.bound,
+                "designs": [d.to_dict() for d in self.designs],
+                "explanation": self.explanation, "assumptions": self.assumptions,
+                "stats": self.stats}
+
+
+# --- the engine shared by design BOARD and consolidate -----------------------------
+@dataclass
+class _Universe:
+    """Resistor lines the board may take (stock lines, then parts from outside the stock)."""
+
+    lines: list[Resistor]
+    qty: list[int | None]
+    values: list[float]
+    value_id: dict[float, int]
+
+
+def _universe(shelf: Shelf) -> _Universe:
+    vals = [float(v) for v in shelf.values]
+    return _Universe(list(shelf.lines), [r.qty for r in shelf.lines], vals,
+                     {v: i for i, v in enumerate(vals)})
+
+
+def board_objectives(job: Job) -> tuple[tuple[str, ...], list[str]]:
+    """The job's objectives that rank a board, and a note for those left out."""
+    notes = []
+    objs = tuple(o for o in job.search.objectives if o in BOARD_OBJECTIVES)
+    if "ic_margin" in job.search.objectives:
+        notes.append("ic_margin is not ranked across a board; each stage's margin is reported")
+    return objs or ("cost",), notes
+
+
+def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe: _Universe,
+              objectives: tuple[str, ...], top: int, deadline: float,
+              progress: Progress | None = None, stock: bool = True
+              ) -> tuple[str, list[list[Choice]], list[dict[str, int]], dict[str, float],
+                         BoardModel, dict[tuple, CheckResult | None], dict[str, int]]:
+    """Ranked board choices; every returned stage passes :func:`analyze_stage`."""
+    tq = {q.part_id: q.qty for q in inventory.transistors}
+    info = LineInfo([universe.value_id.get(r.value_ohm, -1) for r in universe.lines],
+                    universe.qty, tq, job.build.quantity)
+    bm = BoardModel(setups, info, stock=stock)
+    verified: dict[tuple, CheckResult | None] = {}
+    stats = {"reverify_rounds": 0, "stage_designs_verified": 0,
+             "stage_designs_forbidden": 0}
+    ranked: list[list[Choice]] = []
+    values_out: list[dict[str, int]] = []
+    bound: dict[str, float] = {}
+    status = "optimal"
+    seed = job.search.seed
+    while len(ranked) < top:
+        if time.monotonic() > deadline:
+            status = "feasible" if ranked else "unknown"
+            break
+        st, choices, vals, bnd = bm.solve_lex(objectives, seed, deadline)
+        if choices is None:
+            if not ranked:
+                status = st
+            break
+        if progress is not None:
+            progress("verifying", min(1.0, (len(ranked) + 0.5) / top))
+        all_ok = True
+        for s, ch in enumerate(choices):
+            res = _verify(job, setups[s], bm.groups[ch.group], ch, verified, stats)
+            if res is None:
+                all_ok = False
+                _forbid_failing(job, setups[s], bm, ch, verified, stats)
+        if not all_ok:
+            stats["reverify_rounds"] += 1
+            if stats["reverify_rounds"] > MAX_REVERIFY_ROUNDS:
+                status = "feasible" if ranked else "unknown"
+                break
+            continue
+        if st != "optimal":
+            status = "feasible"
+            bound.update(bnd)
+        ranked.append(choices)
+        values_out.append(vals)
+        bm.forbid_board(choices)
+        if st != "optimal":
+            break
+    bm.clear_fixing()
+    return status, ranked, values_out, bound, bm, verified, stats
+
+
+def _design(g: StageOptions, ch: Choice) -> dict[str, int]:
+    out = {r: int(v[ch.option]) for r, v in g.core.items()}
+    if g.free is not None:
+        out[g.free] = ch.free
+    return out
+
+
+def resolved_parts(g: StageOptions, design: dict[str, int], universe_lines: list[Resistor]
+                   ) -> dict[str, ResolvedResistor]:
+    parts = {}
+    for role, i in design.items():
+        c = g.cands[role]
+        if int(c.arrangement[i]) < 0:
+            continue
+        a = universe_lines[int(c.line_a[i])]
+        parts[role] = ResolvedResistor(role=role, value=a.value_ohm, tol=a.tolerance_pct / 100,
+                                       tempco_ppm=a.tempco_ppm or 0.0, rating=a.power_w,
+                                       parts=(a,) if a.part_id else (),
+                                       off_stock=not a.part_id)
+    return parts
+
+
+_LINES: dict[int, list[Resistor]] = {}
+
+
+def _verify(job: Job, setup: StageSetup, g: StageOptions, ch: Choice,
+            verified: dict[tuple, CheckResult | None], stats: dict[str, int]
+            ) -> CheckResult | None:
+    key = (g.stage, g.network, g.transistor.part_id, tuple(sorted(_design(g, ch).items())))
+    if key not in verified:
+        stage = next(s for s in job.stages if s.name == setup.name)
+        sj = stage_job(job, stage)
+        parts = resolved_parts(g, _design(g, ch), _LINES[id(g.cands[next(iter(g.cands))])])
+        samples = 2000 if stage.target.yield_min is not None else 0
+        res = analyze_stage(sj, stage, parts, g.transistor, samples=samples,
+                            seed=job.search.seed, topology=g.network)
+        stats["stage_designs_verified"] += 1
+        verified[key] = res if res.ok else None
+    return verified[key]
+
+
+def _forbid_failing(job: Job, setup: StageSetup, bm: BoardModel, ch: Choice,
+                    verified: dict, stats: dict[str, int]) -> None:
+    """Forbid the failing stage design and every design of its run that fails a vertex."""
+    g = bm.groups[ch.group]
+    bm.forbid_design(ch)
+    stats["stage_designs_forbidden"] += 1
+    if g.free is None:
+        return
+    stage = next(s for s in job.stages if s.name == setup.name)
+    sj = stage_job(job, stage)
+    designs = g.designs(ch.option)
+    roles = tuple(designs[0])
+    arr = {r: (g.cands[r], np.array([d[r] for d in designs])) for r in roles}
+    chk = vertex_check(sj, stage, g.network, g.transistor, arr)
+    for d, ok in zip(designs, chk["ok"].tolist(), strict=True):
+        if not ok and d[g.free] != ch.free:
+            bm.forbid_design(Choice(ch.group, ch.option, d[g.free]))
+            stats["stage_designs_forbidden"] += 1
+
+
+def build_board(job: Job, inventory: Inventory, setups: list[StageSetup],
+                universe: _Universe, status: str, ranked: list[list[Choice]],
+                values: list[dict[str, int]], bm: BoardModel,
+                verified: dict[tuple, CheckResult | None]) -> list[BoardDesign]:
+    """Ranked choices → :class:`BoardDesign` objects with BOMs and per-stage changes."""
+    out = []
+    for rank, choices in enumerate(ranked, start=1):
+        stages = []
+        for s, ch in enumerate(choices):
+            g = bm.groups[ch.group]
+            key = (g.stage, g.network, g.transistor.part_id,
+                   tuple(sorted(_design(g, ch).items())))
+            res = verified[key]
+            assert res is not None
+            changed = _changed(setups[s], g, _design(g, ch), universe)
+            stage = next(x for x in job.stages if x.name == setups[s].name)
+            stages.append(BoardStage(setups[s].name, g.network, g.transistor, res, changed,
+                                     ic_margin_of(res, stage)))
+        out.append(_board_design(rank, stages, job.build.quantity, inventory))
+    return out
+
+
+def _changed(setup: StageSetup, g: StageOptions, design: dict[str, int],
+             universe: _Universe) -> dict[str, dict[str, object]]:
+    if setup.current_network is None:
+        return {}
+    out = {}
+    for role, i in design.items():
+        cur = setup.current.get(role)
+        if setup.current_network == g.network and cur == i:
+            continue
+        c = g.cands[role]
+        new = None if int(c.arrangement[i]) < 0 else universe.lines[int(c.line_a[i])]
+        out[role] = {"part_id": None if new is None else (new.part_id or None),
+                     "value_ohm": None if new is None else new.value_ohm}
+    return out
+
+
+def bom_of(stages: list[tuple[str, Transistor, dict[str, ResolvedResistor]]], build_qty: int,
+           inventory: Inventory) -> list[dict[str, object]]:
+    """Bill of materials: one row per resistor line (or outside value) and transistor line."""
+    rows: dict[tuple, dict[str, object]] = {}
+    for name, q, parts in stages:
+        for role, p in parts.items():
+            pieces = p.parts or (Resistor("", p.value, 100 * p.tol, p.rating),)
+            for part in pieces:
+                key = ("resistor", part.part_id or f"{part.value_ohm:g}@{part.tolerance_pct:g}")
+                row = rows.setdefault(key, {
+                    "kind": "resistor", "part_id": part.part_id or None,
+                    "value_ohm": part.value_ohm, "tolerance_pct": part.tolerance_pct,
+                    "unit_cost": part.unit_cost, "placements": 0, "uses": [],
+                    "in_stock": part.qty if part.part_id else None,
+                    "location": part.location or None})
+                row["placements"] += 1
+                row["uses"].append(f"{role}@{name}")
+        key = ("transistor", q.part_id)
+        row = rows.setdefault(key, {
+            "kind": "transistor", "part_id": q.part_id, "value_ohm": None,
+            "tolerance_pct": None, "unit_cost": q.unit_cost, "placements": 0, "uses": [],
+            "in_stock": q.qty, "location": q.location or None})
+        row["placements"] += 1
+        row["uses"].append(f"Q@{name}")
+    out = []
+    for row in rows.values():
+        row["needed"] = row["placements"] * build_qty
+        row["short"] = (row["in_stock"] is not None and row["needed"] > row["in_stock"])
+        out.append(row)
+    out.sort(key=lambda r: (r["kind"] != "resistor", r["value_ohm"] or 0.0,
+                            r["part_id"] or ""))
+    return out
+
+
+def bom_totals(bom: list[dict[str, object]]) -> dict[str, object]:
+    res = [r for r in bom if r["kind"] == "resistor"]
+    return {"bom_lines": len(bom), "resistor_lines": len(res),
+            "distinct_values": len({r["value_ohm"] for r in res}),
+            "placements": sum(int(r["placements"]) for r in bom),
+            "cost": round(sum(float(r["unit_cost"]) * int(r["placements"]) for r in bom), 6)}
+
+
+def _board_design(rank: int, stages: list[BoardStage], build_qty: int,
+                  inventory: Inventory) -> BoardDesign:
+    bom = bom_of([(s.name, s.transistor, s.check.parts) for s in stages], build_qty, inventory)
+    tot = bom_totals(bom)
+    cost_micro = sum(micro(float(r["unit_cost"])) * int(r["placements"]) for r in bom)
+    return BoardDesign(rank=rank, stages=stages, cost=cost_micro / 1e6, cost_micro=cost_micro,
+                       part_count=int(tot["placements"]),
+                       distinct_values=int(tot["distinct_values"]),
+                       bom_lines=int(tot["bom_lines"]),
+                       changes=sum(len(s.changed) for s in stages), bom=bom)
+
+
+def stage_networks(job: Job, stage: Stage) -> list[str]:
+    if stage.topology == "any":
+        return [n for n in TOPOLOGY_NAMES
+                if n != "dual_supply" or job.supply.negative_volts is not None]
+    return [stage.topology]
+
+
+def register_lines(cands: dict[str, RoleCandidates], lines: list[Resistor]) -> None:
+    """Remember the line universe the tables index (for re-verification)."""
+    for c in cands.values():
+        _LINES[id(c)] = lines
+
+
+def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
+                 time_limit_s: float | None = None, progress: Progress | None = None
+                 ) -> BoardResult:
+    """Design every stage of a board together from one shared stock (DESIGN §2, §3).
+
+    Parameters
+    ----------
+    job : Job
+        A board (several ``[[stage]]`` tables; one stage works too).
+    inventory : Inventory
+    top : int, optional
+        How many distinct boards (default: the job's ``top``).
+    time_limit_s : float, optional
+        Wall-clock limit for the whole search, s (default: the job's).
+    progress : callable(stage: str, fraction: float), optional
+
+    Returns
+    -------
+    BoardResult
+    """
+    t0 = time.monotonic()
+    top = job.search.top if top is None else int(top)
+    limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
+    deadline = t0 + limit
+    objectives, notes = board_objectives(job)
+    shelf = build_shelf(job, inventory, pairs=False)
+    universe = _universe(shelf)
+    setups = []
+    excluded: dict[str, list[dict[str, str]]] = {}
+    n_opts = {}
+    for si, stage in enumerate(job.stages):
+        sj = stage_job(job, stage)
+        qs, out = usable_transistors(sj, inventory)
+        excluded[stage.name] = [{"part_id": q.part_id, "reason": why} for q, why in out]
+        groups = []
+        for net_name in stage_networks(job, stage):
+            net = get_network(net_name)
+            cands = {r.name: shelf.candidates(r.optional, False) for r in net.roles}
+            register_lines(cands, universe.lines)
+            for q in qs:
+                groups.append(stage_options(sj, stage, si, net_name, q, cands))
+        n_opts[stage.name] = sum(g.size for g in groups)
+        setups.append(StageSetup(stage.name, groups))
+        if progress is not None:
+            progress("pre-pass", (si + 1) / len(job.stages))
+    status, ranked, values, bound, bm, verified, rstats = run_board(
+        job, inventory, setups, universe, objectives, top, deadline, progress)
+    designs = build_board(job, inventory, setups, universe, status, ranked, values, bm,
+                          verified)
+    stats: dict[str, object] = {"options_per_stage": n_opts, **rstats,
+                                "resistor_lines": len(shelf.lines),
+                                "excluded_transistors": excluded}
+    result = BoardResult(status=status, solve_seconds=time.monotonic() - t0,
+                         objectives=objectives, designs=designs, bound=bound, stats=stats,
+                         assumptions=notes + _board_notes(job))
+    if not designs:
+        result.explanation = explain_board(job, inventory, setups, universe, objectives,
+                                           status, deadline)
+    result.solve_seconds = time.monotonic() - t0
+    return result
+
+
+def _board_notes(job: Job) -> list[str]:
+    notes = ["stock is shared: every line's uses over all stages × the build quantity stay "
+             "within its quantity"]
+    if job.build.allow_pairs:
+        notes.append("two-part combinations are not searched on boards; each role takes one "
+                     "stock line")
+    if any(s.target.yield_min is not None for s in job.stages):
+        notes.append("the search requires every worst-case corner to pass, which implies the "
+                     "yield target")
+    return notes
+
+
+def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
+                  universe: _Universe, objectives: tuple[str, ...], status: str,
+                  deadline: float) -> dict[str, object]:
+    """Why no board was found, and one change that would help."""
+    if status == "unknown":
+        return {"reason": "the time limit ran out before any board was found",
+                "suggestion": "raise [search] time_limit_s or --time-limit"}
+    empty = [st.name for st in setups if not any(g.size for g in st.options)]
+    if empty:
+        name = empty[0]
+        stage = next(s for s in job.stages if s.name == name)
+        from .design import design
+
+        one = design(stage_job(job, replace(stage, topology=stage.topology)), inventory, top=1,
+                     time_limit_s=max(5.0, deadline - time.monotonic()))
+        text = one.explanation.to_dict() if one.explanation is not None else {}
+        return {"reason": f"stage '{name}' cannot be met from this stock on its own",
+                "stage": name, "stage_explanation": text,
+                "suggestion": text.get("suggestion", "see the stage explanation")}
+    # every stage has options: either the full check rules them out, or stock is shared
+    status2, ranked, _v, _b, bm, _ver, _st = run_board(
+        job, inventory, setups, universe, objectives, 1,
+        max(deadline, time.monotonic() + 10.0), stock=False)
+    if not ranked:
+        return {"reason": "no stage combination passes the full check at every corner",
+                "suggestion": "widen the IC window or lower the headroom of the tightest "
+                              "stage; `stockbias design` on each stage alone says which"}
+    short = []
+    need: dict[str, int] = {}
+    for ch in ranked[0]:
+        g = bm.groups[ch.group]
+        for role, i in _design(g, ch).items():
+            c = g.cands[role]
+            if int(c.arrangement[i]) >= 0:
+                pid = universe.lines[int(c.line_a[i])].part_id
+                need[pid] = need.get(pid, 0) + job.build.quantity
+        need[g.transistor.part_id] = need.get(g.transistor.part_id, 0) + job.build.quantity
+    for pid, n in sorted(need.items()):
+        part = inventory.find_resistor(pid) or inventory.find_transistor(pid)
+        if part is not None and n > part.qty:
+            short.append({"part_id": pid, "needed": n, "in_stock": part.qty,
+                          "to_buy": n - part.qty})
+    lines = ", ".join(f"{s['part_id']} ({s['needed']} needed, {s['in_stock']} in stock)"
+                      for s in short)
+    return {"reason": "every stage can be met alone, but not all at once from the shared "
+                      f"stock: {lines or 'stock is short'}",
+            "short_lines": short,
+            "suggestion": "; ".join(f"buy {s['to_buy']} more of {s['part_id']}" for s in short)
+            or "add stock", "status_without_stock_limits": status2}

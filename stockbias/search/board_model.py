@@ -1,0 +1,325 @@
+"""The CP-SAT model of a board: one option per stage, stock shared, BOM counted board-wide.
+
+Variables
+    ``o[s,k]``: stage s takes option k (exactly one per stage); ``x[s,n,r,i]``: in network
+    n, role r of stage s takes candidate i (a core role's x is the sum of its options, the
+    free role's x is tied to an integer ``f[s,n]`` that each option bounds to its run);
+    ``u[l]``: resistor line l is on the BOM; ``w[v]``: resistance value v is used;
+    ``t[q]``: transistor line q is on the BOM.
+
+Constraints
+    Σ uses of line l over every stage and role × build quantity ≤ stock of l (the same
+    for transistors); u, w, t are at least every x (or option) that uses them.
+
+Objectives (all integers, minimised)
+    ``cost`` (micro-units per board), ``part_count``, ``distinct_values``, ``bom_lines``
+    (resistor lines + transistor lines), ``changes`` (roles whose part differs from the
+    board's current one).
+
+Lexicographic order is solved by successive solves, each fixing the previous
+objective at its optimum through a constraint that is later cleared (so one model
+serves every rank); ranked boards are kept distinct by no-goods on the chosen
+literals.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+from ortools.sat.python import cp_model
+
+from .board_options import StageOptions
+
+__all__ = ["BoardModel", "LineInfo", "StageSetup"]
+
+SOLVER_PARAMS: dict[str, object] = {}
+STRONG = True
+
+
+@dataclass(frozen=True)
+class LineInfo:
+    """Line universe: per resistor line its value id and stock (None: not stock-limited)."""
+
+    value_id: list[int]
+    qty: list[int | None]
+    transistor_qty: dict[str, int | None]
+    build_qty: int
+
+
+@dataclass
+class StageSetup:
+    """What one stage may take, and (for consolidation) what it has now.
+
+    ``current``: network, transistor part id and role → candidate index into that
+    network's tables (None for a role whose current part is not a candidate).
+    """
+
+    name: str
+    options: list[StageOptions]
+    current_network: str | None = None
+    current: dict[str, int | None] = field(default_factory=dict)
+
+
+@dataclass
+class Choice:
+    """A stage's pick in a solution: option group, option index, free candidate (or −1)."""
+
+    group: int
+    option: int
+    free: int
+
+    def design(self, groups: list[StageOptions]) -> dict[str, int]:
+        g = groups[self.group]
+        out = {r: int(v[self.option]) for r, v in g.core.items()}
+        if g.free is not None:
+            out[g.free] = self.free
+        return out
+
+
+class BoardModel:
+    """Build once; solve lexicographically, rank after rank."""
+
+    def __init__(self, stages: list[StageSetup], lines: LineInfo, *, stock: bool = True):
+        self.stages = stages
+        self.lines = lines
+        m = self.model = cp_model.CpModel()
+        self.groups: list[StageOptions] = []
+        self.group_stage: list[int] = []
+        self.o: list[list[cp_model.IntVar]] = []       # per group
+        self.x: dict[tuple[int, int, str, int], cp_model.IntVar] = {}  # (stage, group, role, i)
+        self.f: dict[int, cp_model.IntVar] = {}        # group → free index
+        self.sel: dict[int, cp_model.IntVar] = {}      # group → used
+        cost_terms, part_terms = [], []
+        line_uses: dict[int, list] = {}
+        value_uses: dict[int, list] = {}
+        q_uses: dict[str, list] = {}
+        self.change_terms: list = []
+        self.change_const = 0
+        for s, st in enumerate(stages):
+            stage_opts = []
+            for g in st.options:
+                gi = len(self.groups)
+                self.groups.append(g)
+                self.group_stage.append(s)
+                ov = [m.NewBoolVar(f"o{s}_{gi}_{k}") for k in range(g.size)]
+                self.o.append(ov)
+                stage_opts += ov
+                sel = m.NewBoolVar(f"sel{s}_{gi}")
+                m.Add(sum(ov) == sel) if ov else m.Add(sel == 0)
+                self.sel[gi] = sel
+                q = g.transistor
+                q_uses.setdefault(q.part_id, []).append(sel)
+                qcost = round(q.unit_cost * 1_000_000)
+                # core roles: x = Σ options that take candidate i
+                core_cost = [qcost] * g.size
+                core_parts = [1] * g.size
+                for r in g.core_roles:
+                    c = g.cands[r]
+                    by_i: dict[int, list] = {}
+                    for k, i in enumerate(g.core[r].tolist()):
+                        by_i.setdefault(i, []).append(ov[k])
+                        core_cost[k] += int(c.cost[i])
+                        core_parts[k] += int(c.parts[i])
+                    for i, lits in by_i.items():
+                        xv = m.NewBoolVar(f"x{s}_{gi}_{r}_{i}")
+                        m.Add(xv == sum(lits))
+                        self.x[(s, gi, r, i)] = xv
+                        self._uses(c, i, xv, line_uses, value_uses, s)
+                cost_terms += [cst * v for cst, v in zip(core_cost, ov, strict=True)]
+                part_terms += [p * v for p, v in zip(core_parts, ov, strict=True)]
+                if g.free is not None and g.size:
+                    c = g.cands[g.free]
+                    lo_all, hi_all = int(g.lo.min()), int(g.hi.max())
+                    fv = m.NewIntVar(0, hi_all, f"f{s}_{gi}")
+                    self.f[gi] = fv
+                    covered = set()
+                    for a, b in zip(g.lo.tolist(), g.hi.tolist(), strict=True):
+                        covered.update(range(a, b + 1))
+                    xs = []
+                    for i in sorted(covered):
+                        xv = m.NewBoolVar(f"x{s}_{gi}_{g.free}_{i}")
+                        self.x[(s, gi, g.free, i)] = xv
+                        xs.append((i, xv))
+                        self._uses(c, i, xv, line_uses, value_uses, s)
+                        cost_terms.append(int(c.cost[i]) * xv)
+                        part_terms.append(int(c.parts[i]) * xv)
+                    m.Add(sum(v for _, v in xs) == sel)
+                    m.Add(fv == sum(i * v for i, v in xs))
+                    for k, (a, b) in enumerate(zip(g.lo.tolist(), g.hi.tolist(), strict=True)):
+                        if a > lo_all:
+                            m.Add(fv >= a).OnlyEnforceIf(ov[k])
+                        if b < hi_all:
+                            m.Add(fv <= b).OnlyEnforceIf(ov[k])
+                    del lo_all
+            if stage_opts:
+                m.AddExactlyOne(stage_opts)
+            else:
+                m.AddBoolOr([])                      # no option: the board is infeasible
+            self._changes(s, st)
+        # BOM, values, stock
+        bq = lines.build_qty
+        self.u = {}
+        for line, lits in line_uses.items():
+            uv = m.NewBoolVar(f"u{line}")
+            by_stage: dict[int, list] = {}
+            for st_i, v in lits:
+                by_stage.setdefault(st_i, []).append(v)
+            for st_i, vs in by_stage.items():
+                # y: stage st_i uses the line (at most one option per stage, so Σ over the
+                # stage's options that use the line is ≤ 1: a tighter bound than each x)
+                if STRONG and len(vs) > 1:
+                    yv = m.NewBoolVar(f"y{st_i}_{line}")
+                    for v in vs:
+                        m.AddImplication(v, yv)
+                    m.AddBoolOr(vs).OnlyEnforceIf(yv)
+                    m.AddImplication(yv, uv)
+                else:
+                    for v in vs:
+                        m.AddImplication(v, uv)
+            lits = [v for _, v in lits]
+            self.u[line] = uv
+            qty = lines.qty[line]
+            if stock and qty is not None:
+                m.Add(sum(lits) * bq <= qty)
+        self.w = {}
+        for val, lits in value_uses.items():
+            wv = m.NewBoolVar(f"w{val}")
+            for v in lits:
+                m.AddImplication(v, wv)
+            self.w[val] = wv
+        self.t = {}
+        for pid, lits in q_uses.items():
+            tv = m.NewBoolVar(f"t{pid}")
+            for v in lits:
+                m.AddImplication(v, tv)
+            self.t[pid] = tv
+            qty = lines.transistor_qty.get(pid)
+            if stock and qty is not None:
+                m.Add(sum(lits) * bq <= qty)
+        self.objectives: dict[str, cp_model.LinearExprT] = {
+            "cost": sum(cost_terms),
+            "part_count": sum(part_terms),
+            "distinct_values": sum(self.w.values()),
+            "bom_lines": sum(self.u.values()) + sum(self.t.values()),
+            "changes": sum(self.change_terms) + self.change_const,
+        }
+        self._fixing: list[int] = []
+        self.step_seconds: list[tuple[str, float, str]] = []
+
+    @staticmethod
+    def _uses(c, i: int, xv, line_uses: dict, value_uses: dict, stage: int) -> None:
+        for la in (int(c.line_a[i]), int(c.line_b[i])):
+            if la >= 0:
+                line_uses.setdefault(la, []).append((stage, xv))
+        for va in (int(c.value_a[i]), int(c.value_b[i])):
+            if va >= 0:
+                value_uses.setdefault(va, []).append(xv)
+
+    def _changes(self, s: int, st: StageSetup) -> None:
+        """changes += roles of stage s whose candidate differs from the current one."""
+        if st.current_network is None:
+            return
+        for gi, g in enumerate(self.groups):
+            if self.group_stage[gi] != s:
+                continue
+            if g.network != st.current_network:
+                # another network replaces every current role
+                self.change_terms.append(len(st.current) * self.sel[gi])
+                continue
+            for r in (*g.core_roles, *((g.free,) if g.free else ())):
+                cur = st.current.get(r)
+                keep = self.x.get((s, gi, r, cur)) if cur is not None else None
+                if keep is None:
+                    self.change_terms.append(self.sel[gi])
+                else:
+                    self.change_terms.append(self.sel[gi] - keep)
+
+    # --- solving ---------------------------------------------------------------------
+    def forbid_design(self, ch: Choice) -> None:
+        g = self.groups[ch.group]
+        lit = self.o[ch.group][ch.option]
+        if g.free is None:
+            self.model.AddBoolOr([lit.Not()])
+        else:
+            s = self.group_stage[ch.group]
+            self.model.AddBoolOr([lit.Not(), self.x[(s, ch.group, g.free, ch.free)].Not()])
+
+    def forbid_board(self, choices: list[Choice]) -> None:
+        lits = []
+        for ch in choices:
+            g = self.groups[ch.group]
+            lits.append(self.o[ch.group][ch.option].Not())
+            if g.free is not None:
+                s = self.group_stage[ch.group]
+                lits.append(self.x[(s, ch.group, g.free, ch.free)].Not())
+        self.model.AddBoolOr(lits)
+
+    def clear_fixing(self) -> None:
+        proto = self.model.Proto()
+        for idx in self._fixing:
+            proto.constraints[idx].clear_linear()
+        self._fixing = []
+
+    def solve_lex(self, objectives: tuple[str, ...], seed: int, deadline: float,
+                  hint: list[Choice] | None = None
+                  ) -> tuple[str, list[Choice] | None, dict[str, int], dict[str, float]]:
+        """Lexicographic optimum: (status, choices, values, bounds of unproven steps)."""
+        self.clear_fixing()
+        values: dict[str, int] = {}
+        bounds: dict[str, float] = {}
+        proven = True
+        choices: list[Choice] | None = None
+        for name in objectives:
+            expr = self.objectives[name]
+            self.model.Minimize(expr)
+            solver = cp_model.CpSolver()
+            solver.parameters.num_workers = 1
+            solver.parameters.random_seed = seed
+            solver.parameters.max_time_in_seconds = max(deadline - time.monotonic(), 0.05)
+            for k, v in SOLVER_PARAMS.items():
+                setattr(solver.parameters, k, v)
+            t_step = time.monotonic()
+            status = solver.Solve(self.model)
+            self.step_seconds.append((name, round(time.monotonic() - t_step, 3),
+                                      solver.StatusName(status)))
+            if status in (cp_model.INFEASIBLE, cp_model.MODEL_INVALID):
+                if values:
+                    raise RuntimeError("fixing an objective at its optimum made the board "
+                                       "model infeasible")
+                return "infeasible", None, values, bounds
+            if status not in (cp_model.OPTIMAL, cp_model.FEASIBLE):
+                if choices is None:
+                    return "unknown", None, values, bounds
+                break
+            val = round(solver.ObjectiveValue())
+            values[name] = val
+            if status != cp_model.OPTIMAL:
+                proven = False
+                bounds[name] = float(solver.BestObjectiveBound())
+            choices = self._read(solver)
+            self.model.ClearHints()
+            for gi, ov in enumerate(self.o):
+                for v in ov:
+                    self.model.AddHint(v, solver.Value(v))
+            for fv in self.f.values():
+                self.model.AddHint(fv, solver.Value(fv))
+            ct = self.model.Add(expr <= val)
+            self._fixing.append(ct.Index())
+            if time.monotonic() > deadline:
+                proven = proven and name == objectives[-1]
+                break
+        self.model.ClearObjective()
+        return ("optimal" if proven and len(values) == len(objectives) else "feasible"), \
+            choices, values, bounds
+
+    def _read(self, solver: cp_model.CpSolver) -> list[Choice]:
+        out: list[Choice | None] = [None] * len(self.stages)
+        for gi, ov in enumerate(self.o):
+            for k, v in enumerate(ov):
+                if solver.Value(v):
+                    fv = self.f.get(gi)
+                    out[self.group_stage[gi]] = Choice(gi, k, int(solver.Value(fv))
+                                                       if fv is not None else -1)
+        assert all(c is not None for c in out)
+        return out  # type: ignore[return-value]

@@ -1,0 +1,188 @@
+"""Every design one stage of a board may take, as compact *options* for the board model.
+
+An option is one (network, transistor, assignment of the IC-setting roles) — a *core*
+of :mod:`.prepass` — together with a run of consecutive candidates of the free role
+(``lo..hi`` in the sorted candidate table).  The options of a stage cover every
+design that the pre-pass cannot prove to fail at some vertex of the tolerance box
+(the same soundness rule as :mod:`.prepass`: each rejection is exact at a named
+vertex), so a board optimum over the options, once every chosen stage passes the
+full check, is an optimum over all designs.
+
+Screens, in order, each exact at a vertex:
+
+* the IC window at the IC-max and IC-min vertices and the transistor's IC rating
+  (:func:`.prepass.materialise`);
+* divider only: R1, R2 and RE dissipation and the supply power at the vertex with
+  VCC high, R1 low, R2 high, RE low and the IC-max device corner;
+* the free role's headroom, swing and dissipation window
+  (:func:`.prepass.free_role_bounds`).
+
+What is not screened here (transistor dissipation, junction temperature, gain, the
+interior peaks of products) is left to the full check of each chosen stage; a stage
+design that fails it is forbidden in the model and the board is solved again.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import InputError
+from ..job import Job, Stage
+from ..parts import Transistor
+from ..topologies import get_network
+from .candidates import RoleCandidates
+from .prepass import (
+    PLANS,
+    corners,
+    free_role_bounds,
+    ie_terms,
+    materialise,
+    rc_allowed_power,
+    row_cuts,
+    vertex_check,
+)
+
+__all__ = ["EXPONENTIAL_MAX_PER_STAGE", "StageOptions", "stage_options"]
+
+_REL = 1e-12
+EXPONENTIAL_MAX_PER_STAGE = 200_000
+
+
+@dataclass
+class StageOptions:
+    """The options of one (stage, network, transistor).
+
+    ``core``: role → candidate index per option (every role but the free one);
+    ``lo``/``hi``: the free role's run, inclusive candidate indices (−1 without a free role).
+    """
+
+    stage: int
+    network: str
+    transistor: Transistor
+    cands: dict[str, RoleCandidates]
+    core_roles: tuple[str, ...]
+    free: str | None
+    core: dict[str, np.ndarray]
+    lo: np.ndarray
+    hi: np.ndarray
+
+    @property
+    def size(self) -> int:
+        return int(self.lo.size)
+
+    def designs(self, k: int) -> list[dict[str, int]]:
+        """Every design (role → candidate index) of option ``k``."""
+        base = {r: int(v[k]) for r, v in self.core.items()}
+        if self.free is None:
+            return [base]
+        return [{**base, self.free: j} for j in range(int(self.lo[k]), int(self.hi[k]) + 1)]
+
+
+def _core_power_ok(job: Job, stage: Stage, network: str, q: Transistor,
+                   cands: dict[str, RoleCandidates], idx: dict[str, np.ndarray]) -> np.ndarray:
+    """Divider: R1, R2, RE and supply power at one vertex (active closed form)."""
+    if network != "divider":
+        return np.ones(idx[PLANS[network].interval].size, dtype=bool)
+    cn = corners(job, q, "divider")
+    c = cands
+    r1, r2 = c["R1"].low[idx["R1"]], c["R2"].high[idx["R2"]]
+    re = c["RE"].low[idx["RE"]]
+    n_, d0 = ie_terms("divider", {"R1": r1, "R2": r2}, cn.vcc_hi, 0.0, cn.beta_hi, cn.vbe_hi,
+                      cn.icbo_hi)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ie = n_ / (d0 + re)
+        vb = ie * re + cn.vbe_hi
+        ic = cn.beta_hi / (cn.beta_hi + 1) * ie + cn.icbo_hi
+        p1 = (cn.vcc_hi - vb) ** 2 / r1
+        p2 = vb ** 2 / r2
+        pe = ie ** 2 * re
+        ps = cn.vcc_hi * ((cn.vcc_hi - vb) / r1 + ic)
+    ok = ((p1 <= rc_allowed_power(job, stage, c["R1"].rating[idx["R1"]]) * (1 + 1e-9))
+          & (p2 <= rc_allowed_power(job, stage, c["R2"].rating[idx["R2"]]) * (1 + 1e-9))
+          & (pe <= rc_allowed_power(job, stage, c["RE"].rating[idx["RE"]]) * (1 + 1e-9)))
+    lim = stage.limits.supply_power_max
+    if lim is not None:
+        ok &= ps <= lim * (1 + 1e-9)
+    return ok
+
+
+def _runs(core_row: np.ndarray, fj: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Maximal runs of consecutive ``fj`` within the same ``core_row`` (input sorted)."""
+    if core_row.size == 0:
+        z = np.zeros(0, dtype=np.int64)
+        return z, z, z
+    brk = np.ones(core_row.size, dtype=bool)
+    brk[1:] = (core_row[1:] != core_row[:-1]) | (fj[1:] != fj[:-1] + 1)
+    starts = np.flatnonzero(brk)
+    ends = np.append(starts[1:], core_row.size) - 1
+    return core_row[starts], fj[starts], fj[ends]
+
+
+def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Transistor,
+                  cands: dict[str, RoleCandidates]) -> StageOptions:
+    """The options of one stage for one network and transistor.
+
+    ``job`` is the one-stage job of ``stage`` (its supply, environment, build and search).
+    """
+    net = get_network(network)
+    if job.search.model == "exponential":
+        return _exponential(job, stage, stage_index, network, q, cands)
+    plan = PLANS[network]
+    rows = row_cuts(job, stage, network, q, cands)
+    cores = materialise(network, q, cands, rows)
+    idx = cores.idx
+    ok = _core_power_ok(job, stage, network, q, cands, idx)
+    idx = {r: v[ok] for r, v in idx.items()}
+    core_roles = (*plan.enumerated, plan.interval)
+    if plan.free is None:
+        n = idx[plan.interval].size
+        empty = np.full(n, -1, dtype=np.int64)
+        return StageOptions(stage_index, network, q, cands, core_roles, None, idx, empty, empty)
+    fc = cands[plan.free]
+    h, low_need, ic_top = free_role_bounds(job, stage, network, q, cands, idx)
+    present = fc.value > 0
+    f_hi = float(np.min(fc.high[present] / fc.value[present])) if present.any() else 1.0
+    f_lo = float(np.max(fc.low[present] / fc.value[present])) if present.any() else 1.0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        j1 = np.searchsorted(fc.value, np.where(np.isfinite(h), h / f_hi, h) * (1 + _REL),
+                             "right")
+        j0 = np.searchsorted(fc.value, low_need / f_lo * (1 - _REL), "left")
+    counts = np.maximum(j1 - j0, 0)
+    total = int(counts.sum())
+    row = np.repeat(np.arange(counts.size), counts)
+    fj = np.repeat(j0, counts) + np.arange(total) - np.repeat(np.cumsum(counts) - counts, counts)
+    allowed = rc_allowed_power(job, stage, fc.rating[fj])
+    keep = ((fc.high[fj] <= h[row] * (1 + _REL)) & (fc.low[fj] >= low_need[row] * (1 - _REL))
+            & (ic_top[row] ** 2 * fc.high[fj] <= allowed * (1 + 1e-9)))
+    if not net.role(plan.free).optional:
+        keep &= fc.arrangement[fj] >= 0
+    row, fj = row[keep], fj[keep]
+    crow, lo, hi = _runs(row, fj)
+    core = {r: v[crow] for r, v in idx.items()}
+    return StageOptions(stage_index, network, q, cands, core_roles, plan.free, core,
+                        lo.astype(np.int64), hi.astype(np.int64))
+
+
+def _exponential(job: Job, stage: Stage, stage_index: int, network: str, q: Transistor,
+                 cands: dict[str, RoleCandidates]) -> StageOptions:
+    """Exponential model: the full cross product, checked at every vertex."""
+    roles = tuple(cands)
+    sizes = [len(cands[r]) for r in roles]
+    total = int(np.prod(sizes))
+    if total > EXPONENTIAL_MAX_PER_STAGE:
+        raise InputError(
+            f"the exponential model is searched without closed-form pruning; stage "
+            f"'{stage.name}' has {total} assignments per transistor (limit "
+            f"{EXPONENTIAL_MAX_PER_STAGE}); search the board with model = \"constant_vbe\" "
+            "and check the result with the exponential model", column="model",
+            text="exponential")
+    mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
+    idx = {r: m.reshape(-1) for r, m in zip(roles, mesh, strict=True)}
+    chk = vertex_check(job, stage, network, q, {r: (cands[r], idx[r]) for r in roles})
+    ok = chk["ok"]
+    idx = {r: v[ok] for r, v in idx.items()}
+    n = int(ok.sum())
+    empty = np.full(n, -1, dtype=np.int64)
+    return StageOptions(stage_index, network, q, cands, roles, None, idx, empty, empty)

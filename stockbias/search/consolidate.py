@@ -1,0 +1,289 @@
+"""`consolidate`: fewer resistor lines on an existing board, every stage still in spec.
+
+Starting from a board file whose stages give their transistor and ``[stage.values]``,
+find the assignment of stock lines to every resistor role of every stage that
+minimises, lexicographically, ``bom_lines`` (distinct lines over the board), then
+``changes`` (roles whose part differs from the board's current one), then ``cost``
+(the order can be set; ``distinct_values`` and ``part_count`` may be named too),
+with every stage meeting its own worst-case targets and the stock shared.
+
+Transistors stay as they are (this is about resistor values).  A current part that
+is not a usable stock line (a bare value off the shelf, or a line short of one build)
+may stay where it is, as a line bought outside the stock; it cannot spread to other
+positions.  Roles named in ``keep`` (``ROLE@STAGE``) are held at their current part.
+
+The engine is the board search (:mod:`.board`): the stage's options, one CP-SAT
+model for the board, each chosen stage re-verified with the full check.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..analysis.check import CheckResult, analyze_stage, check_roles
+from ..assign import ResolvedResistor, resolve_resistor
+from ..errors import InputError
+from ..job import OBJECTIVES, Job
+from ..parts import Inventory, Resistor
+from ..topologies import get_network
+from .board import (
+    BoardDesign,
+    _Universe,
+    _universe,
+    bom_of,
+    bom_totals,
+    build_board,
+    explain_board,
+    register_lines,
+    run_board,
+    stage_job,
+)
+from .board_model import StageSetup
+from .board_options import stage_options
+from .candidates import SINGLE, RoleCandidates, _concat, _sorted, _table, build_shelf
+
+__all__ = ["CONSOLIDATE_OBJECTIVES", "ConsolidateResult", "consolidate", "parse_keep"]
+
+CONSOLIDATE_OBJECTIVES = ("bom_lines", "changes", "cost")
+
+
+@dataclass
+class ConsolidateResult:
+    """Before and after of a consolidation (``after`` None when nothing was found)."""
+
+    status: str
+    solve_seconds: float
+    objectives: tuple[str, ...]
+    before_bom: list[dict[str, object]]
+    before: dict[str, object]
+    before_ok: dict[str, bool]
+    after: BoardDesign | None
+    bound: dict[str, float] = field(default_factory=dict)
+    explanation: dict[str, object] | None = None
+    kept: list[str] = field(default_factory=list)
+    assumptions: list[str] = field(default_factory=list)
+    stats: dict[str, object] = field(default_factory=dict)
+
+    @property
+    def found(self) -> bool:
+        return self.after is not None
+
+    def to_dict(self) -> dict[str, object]:
+        after = self.after.to_dict() if self.after is not None else None
+        after_tot = bom_totals(self.after.bom) if self.after is not None else None
+        return {
+            "status": self.status, "solve_seconds": self.solve_seconds,
+            "proven": self.status in ("optimal", "infeasible"),
+            "objectives": list(self.objectives), "bound": self.bound,
+            "bom_lines_before": self.before["bom_lines"],
+            "bom_lines_after": None if after_tot is None else after_tot["bom_lines"],
+            "distinct_values_before": self.before["distinct_values"],
+            "distinct_values_after": None if after_tot is None else after_tot["distinct_values"],
+            "changes": None if self.after is None else self.after.changes,
+            "before": {**self.before, "stages_ok": self.before_ok},
+            "after": None if after_tot is None else after_tot,
+            "stages": None if after is None else after["stages"],
+            "bom_before": self.before_bom,
+            "bom_after": None if self.after is None else self.after.bom,
+            "kept": self.kept, "explanation": self.explanation,
+            "assumptions": self.assumptions, "stats": self.stats,
+        }
+
+
+def parse_keep(text: str | Iterable[str] | None, job: Job) -> list[tuple[str, str]]:
+    """``"RC@input,RE@driver"`` → [(stage, role)], each checked against the board."""
+    if not text:
+        return []
+    items: list[str] = []
+    for chunk in ([text] if isinstance(text, str) else text):
+        items += [p.strip() for p in chunk.split(",") if p.strip()]
+    out = []
+    for item in items:
+        role, at, stage = item.partition("@")
+        role, stage = role.strip().upper(), stage.strip()
+        if not at or not role or not stage:
+            raise InputError("expected ROLE@STAGE", column="--keep", text=item)
+        st = next((s for s in job.stages if s.name == stage), None)
+        if st is None:
+            raise InputError(f"no stage named '{stage}'; stages: "
+                             f"{', '.join(s.name for s in job.stages)}", column="--keep",
+                             text=item)
+        if role not in st.values:
+            raise InputError(f"stage '{stage}' has no current part for {role}", column="--keep",
+                             text=item)
+        out.append((stage, role))
+    return out
+
+
+def _current(job: Job, inventory: Inventory) -> list[tuple[object, dict[str, ResolvedResistor]]]:
+    """Each stage's current transistor and resolved parts (errors name the stage)."""
+    out = []
+    for st in job.stages:
+        where = f"stage '{st.name}'"
+        if st.topology == "any":
+            raise InputError(f"{where}: consolidation needs the stage's topology",
+                             file=job.path, column="stage.topology", text="any")
+        if st.transistor is None:
+            raise InputError(f"{where}: consolidation needs the stage's current transistor "
+                             "(transistor = \"PART_ID\")", file=job.path, column="stage.transistor")
+        q = inventory.find_transistor(st.transistor)
+        if q is None:
+            raise InputError(f"{where}: transistor {st.transistor} is not in the stock file",
+                             file=job.path, column="stage.transistor", text=st.transistor)
+        try:
+            check_roles(st.topology, st.values)
+        except InputError as exc:
+            raise InputError(f"{where}: {exc.message}", file=job.path, column="stage.values",
+                             text=exc.text) from None
+        parts = {}
+        for role, text in st.values.items():
+            p = resolve_resistor(role, text, inventory, job.build.default_tolerance_pct,
+                                 source="stage.values")
+            parts[role] = p
+        out.append((q, parts))
+    return out
+
+
+def _virtual_row(line: int, value_id: int, p: ResolvedResistor, span: float,
+                 part: Resistor) -> RoleCandidates:
+    drift = (p.tempco_ppm and abs(p.tempco_ppm) or 0.0) * 1e-6 * span
+    v, t = p.value, p.tol
+    return _table([v], [t], [abs(p.tempco_ppm or 0.0)], [drift], [v * (1 - t) * (1 - drift)],
+                  [v * (1 + t) * (1 + drift)], [p.rating], [round(part.unit_cost * 1e6)], [1],
+                  [line], [-1], [value_id], [-1], [SINGLE])
+
+
+def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str]] = (),
+                objectives: tuple[str, ...] | None = None, time_limit_s: float | None = None,
+                progress=None) -> ConsolidateResult:
+    """Fewest BOM lines (then changes, then cost) for an existing board (DESIGN §3).
+
+    Parameters
+    ----------
+    job : Job
+        A board file whose stages give ``topology``, ``transistor`` and ``[stage.values]``.
+    inventory : Inventory
+    keep : iterable of (stage name, role)
+        Roles held at their current part.
+    objectives : tuple of str, optional
+        Lexicographic order (default ``bom_lines, changes, cost``).
+    time_limit_s : float, optional
+        Wall-clock limit, s (default: the job's ``time_limit_s``).
+
+    Returns
+    -------
+    ConsolidateResult
+    """
+    t0 = time.monotonic()
+    objectives = tuple(objectives or CONSOLIDATE_OBJECTIVES)
+    bad = [o for o in objectives if o not in OBJECTIVES or o == "ic_margin"]
+    if bad:
+        raise InputError(f"consolidation ranks by {', '.join(CONSOLIDATE_OBJECTIVES)}, "
+                         "distinct_values or part_count", column="--objectives", text=bad[0])
+    limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
+    deadline = t0 + limit
+    keep = set(keep)
+    current = _current(job, inventory)
+    shelf = build_shelf(job, inventory, pairs=False)
+    universe: _Universe = _universe(shelf)
+    line_of = {r.part_id: i for i, r in enumerate(universe.lines)}
+    virtual: dict[tuple, int] = {}
+    setups: list[StageSetup] = []
+    before_ok: dict[str, bool] = {}
+    notes: list[str] = []
+    for si, (st, (q, parts)) in enumerate(zip(job.stages, current, strict=True)):
+        sj = stage_job(job, st)
+        res = analyze_stage(sj, st, parts, q, samples=0, seed=job.search.seed)
+        before_ok[st.name] = res.ok
+        net = get_network(st.topology)
+        cands: dict[str, RoleCandidates] = {}
+        cur: dict[str, int | None] = {}
+        for role in net.roles:
+            base = shelf.candidates(role.optional, False)
+            p = parts.get(role.name)
+            kept = (st.name, role.name) in keep
+            if p is None:                         # optional role absent now
+                cands[role.name] = base
+                cur[role.name] = 0
+                continue
+            if len(p.parts) > 1:
+                if kept:
+                    raise InputError(f"stage '{st.name}': a kept {role.name} must be one part, "
+                                     "not a pair", file=job.path, column="--keep",
+                                     text=f"{role.name}@{st.name}")
+                cands[role.name] = base
+                cur[role.name] = None
+                notes.append(f"{role.name}@{st.name} is a pair now; consolidation replaces it "
+                             "with one stock line")
+                continue
+            line = line_of.get(p.parts[0].part_id) if p.parts else None
+            if line is None:
+                part = p.parts[0] if p.parts else Resistor("", p.value, 100 * p.tol, p.rating)
+                vkey = (part.part_id, p.value, p.tol, p.rating)
+                if vkey not in virtual:
+                    virtual[vkey] = len(universe.lines)
+                    universe.lines.append(part)
+                    universe.qty.append(None)
+                    if p.value not in universe.value_id:
+                        universe.value_id[p.value] = len(universe.values)
+                        universe.values.append(p.value)
+                    why = ("is not a stock part" if not part.part_id
+                           else f"has fewer than {job.build.quantity} in stock")
+                    notes.append(f"{role.name}@{st.name} ({part.part_id or f'{p.value:g} Ω'}) "
+                                 f"{why}: it may stay where it is, bought outside the stock")
+                row = _virtual_row(virtual[vkey], universe.value_id[p.value], p, shelf.span_c,
+                                   part)
+                table = row if kept else _sorted(_concat(base, row))
+                idx = int(np.flatnonzero((table.line_a == virtual[vkey])
+                                         & (table.arrangement == SINGLE))[0])
+            else:
+                table = base
+                idx = int(np.flatnonzero((base.line_a == line) & (base.arrangement == SINGLE))[0])
+                if kept:
+                    table = base.take(np.array([idx]))
+                    idx = 0
+            cands[role.name] = table
+            cur[role.name] = idx
+        register_lines(cands, universe.lines)
+        opts = stage_options(sj, st, si, st.topology, q, cands)
+        setups.append(StageSetup(st.name, [opts], st.topology, cur))
+        if progress is not None:
+            progress("pre-pass", (si + 1) / len(job.stages))
+    before_bom = bom_of([(st.name, q, parts) for st, (q, parts) in zip(job.stages, current,
+                                                                      strict=True)],
+                        job.build.quantity, inventory)
+    # transistors stay: not limited by the model (the BOM flags a short line)
+    inv_free_q = Inventory(inventory.path, inventory.resistors,
+                           tuple(_unlimited(q) for q in inventory.transistors))
+    status, ranked, values, bound, bm, verified, rstats = run_board(
+        job, inv_free_q, setups, universe, objectives, 1, deadline, progress)
+    designs = build_board(job, inventory, setups, universe, status, ranked, values, bm,
+                          verified)
+    after = designs[0] if designs else None
+    result = ConsolidateResult(
+        status=status, solve_seconds=time.monotonic() - t0, objectives=objectives,
+        before_bom=before_bom, before=bom_totals(before_bom), before_ok=before_ok, after=after,
+        bound=bound, kept=[f"{r}@{s}" for s, r in sorted(keep)],
+        assumptions=notes + ["transistors stay as they are; stock is shared across stages "
+                             "(uses × build quantity within each line's quantity)"],
+        stats={"options_per_stage": {s.name: sum(g.size for g in s.options) for s in setups},
+               **rstats, "resistor_lines": len(shelf.lines), "solver_steps": bm.step_seconds})
+    failing = [n for n, ok in before_ok.items() if not ok]
+    if failing:
+        result.assumptions.append("the current board fails its targets in "
+                                  f"{', '.join(failing)}; the consolidated one meets them")
+    if after is None:
+        result.explanation = explain_board(job, inv_free_q, setups, universe, objectives,
+                                           status, deadline)
+    result.solve_seconds = time.monotonic() - t0
+    return result
+
+
+def _unlimited(q):
+    from dataclasses import replace
+
+    return replace(q, qty=10**12)
