@@ -71,12 +71,21 @@ app = typer.Typer(
 
 
 def _register() -> None:
-    from . import check_cmd, demo_cmd, design_cmd, export_cmd, stock_cmd, substitute_cmd
+    from . import (
+        check_cmd,
+        consolidate_cmd,
+        demo_cmd,
+        design_cmd,
+        export_cmd,
+        stock_cmd,
+        substitute_cmd,
+    )
 
     app.command("demo")(demo_cmd.demo)
     app.command("check")(check_cmd.check)
     app.command("design")(design_cmd.design)
     app.command("substitute")(substitute_cmd.substitute)
+    app.command("consolidate")(consolidate_cmd.consolidate)
     app.command("export")(export_cmd.export)
     app.add_typer(stock_cmd.app, name="stock")
 

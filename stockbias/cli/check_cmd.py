@@ -15,14 +15,19 @@ from ..job import Job
 from ..parts import Inventory
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import InventoryOpt, JobArg, JsonOpt, SeedOpt, TransistorOpt, ValuesOpt, load
+from ..errors import InputError
+from .common import InventoryOpt, JobArg, JsonOpt, SeedOpt, load
 
 
 def check(
     job_file: JobArg,
     inventory: InventoryOpt,
-    values: ValuesOpt,
-    transistor: TransistorOpt,
+    values: Annotated[list[str] | None, typer.Option(
+        "--values", "-v", help="ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a parallel "
+        "pair A|B. Repeatable. Default: the stage's [stage.values].")] = None,
+    transistor: Annotated[str | None, typer.Option(
+        "--transistor", "-t", help="Stock part id of the transistor. Default: the stage's "
+        "transistor.")] = None,
     json_out: JsonOpt = False,
     samples: Annotated[int, typer.Option("--samples", min=0, max=10_000_000,
                                          help="Monte Carlo boards (0: none).")] = 20000,
@@ -43,7 +48,16 @@ def check(
 ) -> None:
     """Analyse a stage with given parts at every worst-case corner; exit 1 if a limit fails."""
     job, inv = load(job_file, inventory)
-    assignment = parse_assignments(values)
+    st = _stage(job, stage)
+    assignment = parse_assignments(values) if values else dict(st.values)
+    if not assignment:
+        raise InputError("give the parts with --values ROLE=VALUE,... (or [stage.values] in "
+                         "the job file)", column="--values")
+    if transistor is None:
+        transistor = st.transistor
+    if transistor is None:
+        raise InputError("give the transistor with --transistor PART_ID (or transistor = "
+                         "\"PART_ID\" in the stage)", column="--transistor")
     result = analyze(job, assignment, transistor, inv, samples=samples, seed=seed,
                      tolerance_pct=tolerance, stage_name=stage)
     if json_out:
@@ -55,6 +69,17 @@ def check(
     _bench_outputs(job, inv, result, plot, report, pick_list, json_out)
     if not result.ok:
         raise typer.Exit(1)
+
+
+def _stage(job: Job, name: str | None):
+    """The stage a check is about (the first unless --stage names one)."""
+    if name is None:
+        return job.stages[0]
+    found = [s for s in job.stages if s.name == name]
+    if not found:
+        raise InputError(f"no stage named '{name}' in the job; stages: "
+                         f"{', '.join(s.name for s in job.stages)}", column="--stage", text=name)
+    return found[0]
 
 
 def _bench_outputs(job: Job, inv: Inventory | None, result: CheckResult, plot: Path | None,

@@ -68,11 +68,20 @@ def design(
             raise InputError(f"cannot write the result: {exc.strerror}", file=str(save)) from None
     if json_out:
         typer.echo(text)
+    elif job.is_board:
+        from ..render.board_table import render_board
+
+        render_board(make_console(), job, result)
     else:
         from ..render.design_table import render_design
 
         render_design(make_console(), job, result)
     note = make_console(stderr=json_out)
+    if job.is_board:
+        _board_outputs(job_file, job, inv, result, payload, plot, report, note)
+        if not result.designs:
+            raise typer.Exit(1)
+        return
     designs = payload.get("designs") or []
     if plot is not None and designs:
         from ..render.plots import write_design_plots
@@ -95,3 +104,29 @@ def design(
         note.print(f"Report written: {report}")
     if not result.designs:
         raise typer.Exit(1)
+
+
+def _board_outputs(job_file: Path, job, inv, result, payload, plot, report, note) -> None:
+    """--plot and --report for a board result."""
+    if plot is not None:
+        note.print("--plot draws single-stage results; for a board, check each stage with "
+                   "`stockbias check BOARD --stage NAME --plot DIR`")
+    if report is not None:
+        import sys
+
+        from ..render.report import render_report
+
+        notes = [f"Status: {payload.get('status')}"]
+        if payload.get("explanation"):
+            notes.append(f"Explanation: {payload['explanation'].get('reason')}")
+        checks = []
+        if result.designs:
+            best = result.designs[0]
+            notes.append(f"Rank 1: cost {best.cost:g} per board, {best.part_count} parts, "
+                         f"{best.distinct_values} values, {best.bom_lines} BOM lines")
+            checks = [(f"Stage {s.name}: {s.topology}, {s.transistor.part_id}", s.check)
+                      for s in best.stages]
+        render_report(report, title=f"Board design for {job_file.name}", job=job,
+                      inventory=inv, checks=checks, notes=notes,
+                      command="stockbias design " + " ".join(sys.argv[2:]))
+        note.print(f"Report written: {report}")

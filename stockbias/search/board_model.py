@@ -34,7 +34,7 @@ from .board_options import StageOptions
 __all__ = ["BoardModel", "LineInfo", "StageSetup"]
 
 SOLVER_PARAMS: dict[str, object] = {}
-STRONG = True
+COUNT_OBJECTIVES = ("bom_lines", "changes", "distinct_values", "part_count")
 
 
 @dataclass(frozen=True)
@@ -91,6 +91,7 @@ class BoardModel:
         self.f: dict[int, cp_model.IntVar] = {}        # group → free index
         self.sel: dict[int, cp_model.IntVar] = {}      # group → used
         cost_terms, part_terms = [], []
+        part_upper = 0
         line_uses: dict[int, list] = {}
         value_uses: dict[int, list] = {}
         q_uses: dict[str, list] = {}
@@ -152,6 +153,7 @@ class BoardModel:
                         if b < hi_all:
                             m.Add(fv <= b).OnlyEnforceIf(ov[k])
                     del lo_all
+            part_upper += 1 + max((len(g.cands) for g in st.options), default=0) * 2
             if stage_opts:
                 m.AddExactlyOne(stage_opts)
             else:
@@ -168,7 +170,7 @@ class BoardModel:
             for st_i, vs in by_stage.items():
                 # y: stage st_i uses the line (at most one option per stage, so Σ over the
                 # stage's options that use the line is ≤ 1: a tighter bound than each x)
-                if STRONG and len(vs) > 1:
+                if len(vs) > 1:
                     yv = m.NewBoolVar(f"y{st_i}_{line}")
                     for v in vs:
                         m.AddImplication(v, yv)
@@ -205,6 +207,7 @@ class BoardModel:
             "changes": sum(self.change_terms) + self.change_const,
         }
         self._fixing: list[int] = []
+        self.part_upper = part_upper
         self.step_seconds: list[tuple[str, float, str]] = []
 
     @staticmethod
@@ -261,8 +264,30 @@ class BoardModel:
             proto.constraints[idx].clear_linear()
         self._fixing = []
 
-    def solve_lex(self, objectives: tuple[str, ...], seed: int, deadline: float,
-                  hint: list[Choice] | None = None
+    def steps(self, objectives: tuple[str, ...]) -> list[list[str]]:
+        """Consecutive count objectives merge into one weighted step (exactly lexicographic:
+        each weight exceeds the largest value of everything after it)."""
+        out: list[list[str]] = []
+        for name in objectives:
+            if out and name in COUNT_OBJECTIVES and out[-1][-1] in COUNT_OBJECTIVES:
+                out[-1].append(name)
+            else:
+                out.append([name])
+        return out
+
+    def upper(self, name: str) -> int:
+        """A proven upper bound of a count objective."""
+        if name == "bom_lines":
+            return len(self.u) + len(self.t)
+        if name == "distinct_values":
+            return len(self.w)
+        if name == "changes":
+            return self.change_const + sum(len(st.current) for st in self.stages)
+        if name == "part_count":
+            return self.part_upper
+        raise KeyError(name)
+
+    def solve_lex(self, objectives: tuple[str, ...], seed: int, deadline: float
                   ) -> tuple[str, list[Choice] | None, dict[str, int], dict[str, float]]:
         """Lexicographic optimum: (status, choices, values, bounds of unproven steps)."""
         self.clear_fixing()
@@ -270,18 +295,24 @@ class BoardModel:
         bounds: dict[str, float] = {}
         proven = True
         choices: list[Choice] | None = None
-        for name in objectives:
-            expr = self.objectives[name]
+        steps = self.steps(objectives)
+        for si, step in enumerate(steps):
+            weights = [1] * len(step)
+            for j in range(len(step) - 2, -1, -1):
+                weights[j] = weights[j + 1] * (self.upper(step[j + 1]) + 1)
+            expr = sum(w * self.objectives[n] for w, n in zip(weights, step, strict=True))
             self.model.Minimize(expr)
             solver = cp_model.CpSolver()
             solver.parameters.num_workers = 1
             solver.parameters.random_seed = seed
             solver.parameters.max_time_in_seconds = max(deadline - time.monotonic(), 0.05)
+            # core-based lower bounds suit sums of literals; cost has large coefficients
+            solver.parameters.optimize_with_core = step[0] in COUNT_OBJECTIVES
             for k, v in SOLVER_PARAMS.items():
                 setattr(solver.parameters, k, v)
             t_step = time.monotonic()
             status = solver.Solve(self.model)
-            self.step_seconds.append((name, round(time.monotonic() - t_step, 3),
+            self.step_seconds.append(("+".join(step), round(time.monotonic() - t_step, 3),
                                       solver.StatusName(status)))
             if status in (cp_model.INFEASIBLE, cp_model.MODEL_INVALID):
                 if values:
@@ -291,23 +322,26 @@ class BoardModel:
             if status not in (cp_model.OPTIMAL, cp_model.FEASIBLE):
                 if choices is None:
                     return "unknown", None, values, bounds
+                proven = False
                 break
-            val = round(solver.ObjectiveValue())
-            values[name] = val
             if status != cp_model.OPTIMAL:
                 proven = False
-                bounds[name] = float(solver.BestObjectiveBound())
+                bounds["+".join(step) if len(step) > 1 else step[0]] = float(
+                    solver.BestObjectiveBound())
+            for n in step:
+                values[n] = round(solver.Value(self.objectives[n]))
             choices = self._read(solver)
             self.model.ClearHints()
-            for gi, ov in enumerate(self.o):
+            for ov in self.o:
                 for v in ov:
                     self.model.AddHint(v, solver.Value(v))
             for fv in self.f.values():
                 self.model.AddHint(fv, solver.Value(fv))
-            ct = self.model.Add(expr <= val)
-            self._fixing.append(ct.Index())
-            if time.monotonic() > deadline:
-                proven = proven and name == objectives[-1]
+            for n in step:
+                ct = self.model.Add(self.objectives[n] <= values[n])
+                self._fixing.append(ct.Index())
+            if time.monotonic() > deadline and si < len(steps) - 1:
+                proven = False
                 break
         self.model.ClearObjective()
         return ("optimal" if proven and len(values) == len(objectives) else "feasible"), \

@@ -1,0 +1,99 @@
+"""`stockbias consolidate BOARD --inventory FILE`: fewer resistor lines, every stage in spec."""
+
+from __future__ import annotations
+
+import sys
+import time
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from ..errors import InputError
+from ..render.console import make_console
+from ..render.json_out import dumps
+from .common import InventoryOpt, JobArg, JsonOpt, load
+
+
+def consolidate(
+    board_file: JobArg,
+    inventory: InventoryOpt,
+    keep: Annotated[list[str] | None, typer.Option(
+        "--keep", "-k", help="ROLE@STAGE[,...]: parts that must stay as they are. "
+        "Repeatable.")] = None,
+    objectives: Annotated[str | None, typer.Option(
+        "--objectives", help="Lexicographic order, comma-separated (default "
+        "bom_lines,changes,cost; distinct_values and part_count may be named).")] = None,
+    time_limit: Annotated[float | None, typer.Option(
+        "--time-limit", min=0.1, max=86400.0,
+        help="Seconds for the whole search (default: the board's time_limit_s).")] = None,
+    json_out: JsonOpt = False,
+    report: Annotated[Path | None, typer.Option(
+        "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
+) -> None:
+    """Merge a board's resistor values onto fewer stock lines, every stage still meeting its
+    worst-case targets."""
+    from ..search.consolidate import consolidate as run
+    from ..search.consolidate import parse_keep
+
+    job, inv = load(board_file, inventory)
+    assert inv is not None
+    order = None
+    if objectives is not None:
+        order = tuple(o.strip() for o in objectives.split(",") if o.strip())
+        if not order:
+            raise InputError("name at least one objective", column="--objectives",
+                             text=objectives)
+    kept = parse_keep(keep, job)
+    console = make_console(stderr=True)
+    progress = None
+    bar = None
+    if not json_out and console.is_terminal:
+        from rich.progress import Progress
+
+        bar = Progress(console=console, transient=True)
+        task = bar.add_task("consolidating", total=1.0)
+        started = time.monotonic()
+
+        def progress(stage: str, fraction: float) -> None:
+            if time.monotonic() - started > 1.0 and not bar.live.is_started:
+                bar.start()
+            bar.update(task, completed=fraction, description=stage)
+    try:
+        result = run(job, inv, keep=kept, objectives=order, time_limit_s=time_limit,
+                     progress=progress)
+    finally:
+        if bar is not None and bar.live.is_started:
+            bar.stop()
+    if json_out:
+        payload = result.to_dict()
+        payload["board"] = str(board_file)
+        payload["inventory"] = str(inventory)
+        typer.echo(dumps(payload))
+    else:
+        from ..render.board_table import render_consolidate
+
+        render_consolidate(make_console(), job, result)
+    if report is not None:
+        from ..render.report import render_report
+        from ..search.board import bom_totals
+
+        notes = [f"Status: {result.status}",
+                 f"Before: {result.before['bom_lines']} BOM lines, "
+                 f"{result.before['distinct_values']} values"]
+        checks = []
+        if result.after is not None:
+            after = bom_totals(result.after.bom)
+            notes.append(f"After: {after['bom_lines']} BOM lines, {after['distinct_values']} "
+                         f"values, {result.after.changes} part(s) changed")
+            for s in result.after.stages:
+                changed = ", ".join(s.changed) or "unchanged"
+                checks.append((f"Stage {s.name} ({changed})", s.check))
+        elif result.explanation:
+            notes.append(f"Explanation: {result.explanation.get('reason')}")
+        render_report(report, title=f"Consolidation of {board_file.name}", job=job,
+                      inventory=inv, checks=checks, notes=notes,
+                      command="stockbias consolidate " + " ".join(sys.argv[2:]))
+        make_console(stderr=json_out).print(f"Report written: {report}")
+    if result.after is None:
+        raise typer.Exit(1)

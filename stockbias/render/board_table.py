@@ -1,0 +1,151 @@
+"""Terminal rendering of board results: `design BOARD` and `consolidate BOARD`."""
+
+from __future__ import annotations
+
+from rich.console import Console
+from rich.table import Table
+
+from ..job import Job
+from ..units import format_quantity
+
+__all__ = ["render_board", "render_consolidate"]
+
+_STATUS = {
+    "optimal": "[bold green]optimal[/bold green] (proven: no assignment from this stock ranks "
+               "higher)",
+    "feasible": "[bold yellow]feasible[/bold yellow] (time limit reached: best found, not "
+                "proven optimal)",
+    "infeasible": "[bold red]infeasible[/bold red] (proven: the stock cannot meet every stage "
+                  "at once)",
+    "unknown": "[bold red]unknown[/bold red] (time limit reached before any board was found)",
+}
+
+
+def _status(console: Console, status: str, seconds: float, bound: dict[str, float]) -> None:
+    line = f"Status: {_STATUS.get(status, status)} in {seconds:.2f} s"
+    if bound:
+        line += "; best bound " + ", ".join(f"{k} ≥ {v:g}" for k, v in bound.items())
+    console.print(line)
+
+
+def _part(p: dict) -> str:
+    ids = p.get("part_id")
+    ids = "+".join(ids) if isinstance(ids, list) else (ids or "outside stock")
+    return f"{format_quantity(p['value_ohm'], 'ohm')} {ids}"
+
+
+def _stages_table(title: str, stages: list[dict], show_changes: bool) -> Table:
+    roles: list[str] = []
+    for s in stages:
+        roles += [r for r in s["parts"] if r not in roles]
+    table = Table(title=title, title_justify="left")
+    for col in ("stage", "topology", "transistor", *roles, "IC worst case", "VCE min",
+                "margin", *(("changed",) if show_changes else ())):
+        table.add_column(col)
+    for s in stages:
+        wc = s["worst_case"]
+        ic, vce = wc.get("ic", {}), wc.get("vce", {})
+        cells = [s["name"], s["topology"], s["transistor"]["part_id"]]
+        for r in roles:
+            text = _part(s["parts"][r]) if r in s["parts"] else "absent"
+            if show_changes and r in s["changed"]:
+                text = f"[bold]{text}[/bold]"
+            cells.append(text)
+        cells += [f"{format_quantity(ic.get('min', 0), 'A')}–"
+                  f"{format_quantity(ic.get('max', 0), 'A')}",
+                  format_quantity(vce.get("min", 0), "V"), f"{100 * s['ic_margin']:.2f} %"]
+        if show_changes:
+            cells.append(", ".join(s["changed"]) or "—")
+        table.add_row(*cells)
+    return table
+
+
+def _bom_table(title: str, bom: list[dict], build: int) -> Table:
+    table = Table(title=title, title_justify="left")
+    for col in ("line", "value", "tol", "per board", f"for {build}", "in stock", "cost each",
+                "where used"):
+        table.add_column(col)
+    for r in bom:
+        value = ("transistor" if r["kind"] == "transistor"
+                 else format_quantity(r["value_ohm"], "ohm"))
+        tol = "" if r["tolerance_pct"] is None else f"{r['tolerance_pct']:g} %"
+        stock = "—" if r["in_stock"] is None else str(r["in_stock"])
+        if r["short"]:
+            stock = f"[red]{stock} (short)[/red]"
+        table.add_row(r["part_id"] or "(buy)", value, tol, str(r["placements"]),
+                      str(r["needed"]), stock, f"{r['unit_cost']:g}", ", ".join(r["uses"]))
+    return table
+
+
+def _totals(t: dict) -> str:
+    return (f"{t['bom_lines']} BOM lines ({t['resistor_lines']} resistor lines, "
+            f"{t['distinct_values']} values), {t['placements']} placements, "
+            f"cost {t['cost']:g} per board")
+
+
+def _cautions(console: Console, stage_checks) -> None:
+    cautions = {c for chk in stage_checks for c in chk.cautions}
+    for c in sorted(cautions):
+        console.print(f"[yellow]Caution:[/yellow] {c}")
+
+
+def _explanation(console: Console, ex: dict | None) -> None:
+    if not ex:
+        return
+    console.print(f"[bold red]No board.[/bold red] {ex.get('reason', '')}")
+    inner = ex.get("stage_explanation") or {}
+    if inner.get("message"):
+        console.print(f"Stage '{ex.get('stage')}': binding {inner.get('binding')}. "
+                      f"{inner['message']}")
+    relax = inner.get("relaxation") or {}
+    hint = relax.get("text") or ex.get("suggestion")
+    if hint:
+        console.print(f"[bold]What would help:[/bold] {hint}")
+
+
+def render_board(console: Console, job: Job, result) -> None:
+    """Print a :class:`stockbias.search.board.BoardResult`."""
+    console.print(f"[bold]Board design[/bold] of {len(job.stages)} stages sharing the stock, "
+                  f"build of {job.build.quantity}; objectives {', '.join(result.objectives)}")
+    _status(console, result.status, result.solve_seconds, result.bound)
+    for d in result.designs:
+        data = d.to_dict()
+        console.print(_stages_table(
+            f"Rank {d.rank}: cost {d.cost:g} per board, {d.part_count} parts, "
+            f"{d.distinct_values} values, {d.bom_lines} BOM lines", data["stages"], False))
+    if result.designs:
+        best = result.designs[0]
+        console.print(_bom_table("BOM of rank 1", best.bom, job.build.quantity))
+        console.print("Every stage was re-verified with the same analysis as `stockbias check`.")
+        _cautions(console, [s.check for s in best.stages])
+    _explanation(console, result.explanation)
+    if result.assumptions:
+        console.print("[dim]Assumptions: " + "; ".join(result.assumptions) + "[/dim]")
+
+
+def render_consolidate(console: Console, job: Job, result) -> None:
+    """Print a :class:`stockbias.search.consolidate.ConsolidateResult`."""
+    console.print(f"[bold]Consolidation[/bold] of {len(job.stages)} stages, build of "
+                  f"{job.build.quantity}; objectives {', '.join(result.objectives)}"
+                  + (f"; kept {', '.join(result.kept)}" if result.kept else ""))
+    _status(console, result.status, result.solve_seconds, result.bound)
+    failing = [n for n, ok in result.before_ok.items() if not ok]
+    console.print(_bom_table("BOM before", result.before_bom, job.build.quantity))
+    console.print("Before: " + _totals(result.before)
+                  + (f"; [red]fails its targets in {', '.join(failing)}[/red]" if failing
+                     else "; every stage meets its targets"))
+    if result.after is not None:
+        from ..search.board import bom_totals
+
+        data = result.after.to_dict()
+        console.print(_stages_table(f"After: {result.after.changes} part(s) changed (bold)",
+                                    data["stages"], True))
+        console.print(_bom_table("BOM after", result.after.bom, job.build.quantity))
+        after = bom_totals(result.after.bom)
+        saved = result.before["bom_lines"] - after["bom_lines"]
+        console.print("After: " + _totals(after) + f" — {saved} BOM line(s) fewer")
+        console.print("Every stage was re-verified with the same analysis as `stockbias check`.")
+        _cautions(console, [s.check for s in result.after.stages])
+    _explanation(console, result.explanation)
+    if result.assumptions:
+        console.print("[dim]Assumptions: " + "; ".join(result.assumptions) + "[/dim]")
