@@ -429,6 +429,7 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
     designs = build_board(job, inventory, setups, universe, status, ranked, values, bm,
                           verified)
     stats: dict[str, object] = {"options_per_stage": n_opts, **rstats,
+                                "solver_steps": bm.step_seconds,
                                 "resistor_lines": len(shelf.lines),
                                 "excluded_transistors": excluded}
     result = BoardResult(status=status, solve_seconds=time.monotonic() - t0,

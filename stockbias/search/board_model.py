@@ -35,6 +35,7 @@ __all__ = ["BoardModel", "LineInfo", "StageSetup"]
 
 SOLVER_PARAMS: dict[str, object] = {}
 COUNT_OBJECTIVES = ("bom_lines", "changes", "distinct_values", "part_count")
+CORE_OBJECTIVES = COUNT_OBJECTIVES
 
 
 @dataclass(frozen=True)
@@ -307,7 +308,7 @@ class BoardModel:
             solver.parameters.random_seed = seed
             solver.parameters.max_time_in_seconds = max(deadline - time.monotonic(), 0.05)
             # core-based lower bounds suit sums of literals; cost has large coefficients
-            solver.parameters.optimize_with_core = step[0] in COUNT_OBJECTIVES
+            solver.parameters.optimize_with_core = step[0] in CORE_OBJECTIVES
             for k, v in SOLVER_PARAMS.items():
                 setattr(solver.parameters, k, v)
             t_step = time.monotonic()
