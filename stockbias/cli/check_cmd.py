@@ -11,11 +11,11 @@ import typer
 
 from ..analysis.check import CheckResult, analyze
 from ..assign import parse_assignments
+from ..errors import InputError
 from ..job import Job
 from ..parts import Inventory
 from ..render.console import make_console
 from ..render.json_out import dumps
-from ..errors import InputError
 from .common import InventoryOpt, JobArg, JsonOpt, SeedOpt, load
 
 

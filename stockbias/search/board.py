@@ -28,7 +28,6 @@ import numpy as np
 
 from ..analysis.check import CheckResult, analyze_stage
 from ..assign import ResolvedResistor
-from ..errors import InputError
 from ..job import TOPOLOGY_NAMES, Job, Stage
 from ..parts import Inventory, Resistor, Transistor
 from ..topologies import get_network
@@ -37,8 +36,15 @@ from .board_options import StageOptions, stage_options
 from .candidates import RoleCandidates, Shelf, build_shelf, micro, usable_transistors
 from .prepass import vertex_check
 
-__all__ = ["BOARD_OBJECTIVES", "BoardDesign", "BoardResult", "BoardStage", "design_board",
-           "stage_job", "run_board"]
+__all__ = [
+    "BOARD_OBJECTIVES",
+    "BoardDesign",
+    "BoardResult",
+    "BoardStage",
+    "design_board",
+    "run_board",
+    "stage_job",
+]
 
 BOARD_OBJECTIVES = ("cost", "part_count", "distinct_values", "bom_lines", "changes")
 MAX_REVERIFY_ROUNDS = 400

@@ -24,11 +24,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..analysis.check import CheckResult, analyze_stage, check_roles
+from ..analysis.check import analyze_stage, check_roles
 from ..assign import ResolvedResistor, resolve_resistor
 from ..errors import InputError
 from ..job import OBJECTIVES, Job
-from ..parts import Inventory, Resistor
+from ..parts import Inventory, Resistor, Transistor
 from ..topologies import get_network
 from .board import (
     BoardDesign,
@@ -119,7 +119,8 @@ def parse_keep(text: str | Iterable[str] | None, job: Job) -> list[tuple[str, st
     return out
 
 
-def _current(job: Job, inventory: Inventory) -> list[tuple[object, dict[str, ResolvedResistor]]]:
+def _current(job: Job, inventory: Inventory
+             ) -> list[tuple[Transistor, dict[str, ResolvedResistor]]]:
     """Each stage's current transistor and resolved parts (errors name the stage)."""
     out = []
     for st in job.stages:
@@ -150,7 +151,7 @@ def _current(job: Job, inventory: Inventory) -> list[tuple[object, dict[str, Res
 
 def _virtual_row(line: int, value_id: int, p: ResolvedResistor, span: float,
                  part: Resistor) -> RoleCandidates:
-    drift = (p.tempco_ppm and abs(p.tempco_ppm) or 0.0) * 1e-6 * span
+    drift = ((p.tempco_ppm and abs(p.tempco_ppm)) or 0.0) * 1e-6 * span
     v, t = p.value, p.tol
     return _table([v], [t], [abs(p.tempco_ppm or 0.0)], [drift], [v * (1 - t) * (1 - drift)],
                   [v * (1 + t) * (1 + drift)], [p.rating], [round(part.unit_cost * 1e6)], [1],
@@ -268,8 +269,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
         status=status, solve_seconds=time.monotonic() - t0, objectives=objectives,
         before_bom=before_bom, before=bom_totals(before_bom), before_ok=before_ok, after=after,
         bound=bound, kept=[f"{r}@{s}" for s, r in sorted(keep)],
-        assumptions=notes + ["transistors stay as they are; stock is shared across stages "
-                             "(uses × build quantity within each line's quantity)"],
+        assumptions=[*notes, "transistors stay as they are; stock is shared across stages "
+                     "(uses × build quantity within each line's quantity)"],
         stats={"options_per_stage": {s.name: sum(g.size for g in s.options) for s in setups},
                **rstats, "resistor_lines": len(shelf.lines), "solver_steps": bm.step_seconds})
     failing = [n for n, ok in before_ok.items() if not ok]

@@ -18,6 +18,7 @@ from dataclasses import dataclass, field, replace
 from ..errors import StockbiasError
 from ..job import Job
 from ..parts import Inventory
+from ..units import format_quantity
 
 __all__ = ["Explanation", "explain"]
 
@@ -184,7 +185,16 @@ def _miss_text(misses: list[dict[str, object]]) -> str:
         where = ", ".join(f"{k} {v['setting']}" for k, v in corner.items()
                           if isinstance(v, dict) and v.get("setting") != "interior") \
             if isinstance(corner, dict) else ""
-        out.append(f"{c['name']} misses by {abs(float(c['margin'])):.4g} {c.get('unit', '')} "
-                   f"(worst {float(c['worst']):.4g} against {float(c['limit']):.4g}"
+        unit = str(c.get("unit", "") or "")
+        out.append(f"{c['name']} misses by {_q(abs(float(c['margin'])), unit)} "
+                   f"(worst {_q(float(c['worst']), unit)} against {_q(float(c['limit']), unit)}"
                    + (f" at {where}" if where else "") + ")")
     return "; ".join(out)
+
+
+def _q(value: float, unit: str) -> str:
+    """A quantity in engineering notation when its unit is known, else plain."""
+    try:
+        return format_quantity(value, unit, digits=4)
+    except ValueError:
+        return f"{value:.4g} {unit}".rstrip()
