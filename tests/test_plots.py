@@ -104,3 +104,17 @@ def test_importing_the_package_does_not_import_matplotlib() -> None:
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True, cwd=ROOT)
     assert out.stdout.strip() == "False"
+
+
+def test_design_plot_labels_tied_designs_once() -> None:
+    """Designs at the same cost and margin share one label; equal costs are staggered."""
+    def d(rank: int, cost: float, m_lo: float) -> dict:
+        return {"rank": rank, "cost": cost, "topology": "divider",
+                "constraints": [{"name": "ic_min", "margin": m_lo},
+                                {"name": "ic_max", "margin": 1.0}]}
+    fig = design_margin_figure([d(1, 0.1, 2e-5), d(2, 0.1, 2e-5), d(3, 0.1, 5e-5),
+                                d(4, 0.2, 2e-5)])
+    texts = [t for t in fig.axes[0].texts]
+    assert sorted(t.get_text() for t in texts) == ["#1, #2", "#3", "#4"]
+    offsets = {t.get_text(): t.xyann[1] for t in texts}
+    assert offsets["#1, #2"] != offsets["#3"]           # same cost: staggered

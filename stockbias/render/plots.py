@@ -238,9 +238,17 @@ def design_margin_figure(designs: Sequence[Mapping[str, Any]], title: str = "") 
             ax.scatter([p[2] * 1e6 for p in sel], [p[1] for p in sel], s=40,
                        marker=markers.get(topo, "o"), facecolor="white", edgecolor="black",
                        lw=1.1, label=topo or "design", zorder=3)
+        # designs at the same point share one label; labels of equal-cost designs are
+        # staggered so that tied costs stay readable
+        spots: dict[tuple[float, float], list[int]] = {}
         for rank, cost, margin, _ in points:
-            ax.annotate(f"#{rank}", (margin * 1e6, cost), textcoords="offset points",
-                        xytext=(5, 4), fontsize=8)
+            spots.setdefault((round(cost, 9), round(margin * 1e6, 3)), []).append(rank)
+        per_cost: dict[float, int] = {}
+        for (cost, margin_ua), ranks in sorted(spots.items(), key=lambda kv: kv[1][0]):
+            k = per_cost.get(cost, 0)
+            per_cost[cost] = k + 1
+            ax.annotate(", ".join(f"#{r}" for r in ranks), (margin_ua, cost),
+                        textcoords="offset points", xytext=(5, 4 + 10 * k), fontsize=8)
         ax.axvline(0, color="#b0413e", ls="--", lw=1, label="zero margin (window edge)")
         ax.set_xlabel("worst-case IC margin to the target window (µA)")
         ax.set_ylabel("cost per board (stock-file currency)")
