@@ -82,7 +82,8 @@ def test_exponential_model_small_shelf(job, shelf):
         design(exp_job, shelf, top=1)          # too many assignments without pruning
 
 
-def test_board_file_is_refused(shelf):
+def test_board_file_goes_to_the_board_search(shelf):
+    """A board is designed as a whole (stockbias.search.board), every stage re-verified."""
     text = """
 [supply]
 volts = 12
@@ -99,5 +100,10 @@ topology = "divider"
 ic = "2 mA"
 ic_window_pct = 20
 """
-    with pytest.raises(InputError):
-        design(parse_job(text), shelf)
+    from stockbias.search.board import BoardResult
+
+    result = design(parse_job(text), shelf, top=1)
+    assert isinstance(result, BoardResult)
+    assert result.status == "optimal"
+    assert [s.name for s in result.designs[0].stages] == ["a", "b"]
+    assert all(s.check.ok for s in result.designs[0].stages)

@@ -285,7 +285,7 @@ class _Search:
                 if self.job.search.model == "exponential":
                     self.blocks.append(self._exponential_block(net_name, qi, q, cands))
                     continue
-                rows = row_cuts(self.job, self.stage, net_name, q, cands)
+                rows = row_cuts(self.job, self.stage, net_name, q, cands, self._cache)
                 roles = (*plan.enumerated, plan.interval)
                 self.blocks.append(_Block(net_name, qi, q, cands, roles, plan.free, rows=rows))
                 self.stats["rows"] = self.stats.get("rows", 0) + rows.size

@@ -223,14 +223,27 @@ class Rows:
 
 
 def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
-             cands: dict[str, RoleCandidates]) -> Rows:
-    """The interval of the last IC-setting role for every row of the enumerated roles."""
+             cands: dict[str, RoleCandidates], cache: dict | None = None) -> Rows:
+    """The interval of the last IC-setting role for every row of the enumerated roles.
+
+    ``cache`` (optional, a dict the caller keeps): the row grid and the resistance
+    settings at the two IC-extreme vertices do not depend on the transistor, so they
+    are built once per network and candidate tables.
+    """
     plan = PLANS[network]
     cn = corners(job, q, network)
     t = stage.target
-    sizes = [len(cands[r]) for r in plan.enumerated]
-    mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
-    grid = {r: m.reshape(-1) for r, m in zip(plan.enumerated, mesh, strict=True)}
+    key = ("row_grid", network, *(id(cands[r]) for r in plan.enumerated))
+    if cache is not None and key in cache:
+        grid, ends_up, ends_lo = cache[key]
+    else:
+        sizes = [len(cands[r]) for r in plan.enumerated]
+        mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
+        grid = {r: m.reshape(-1) for r, m in zip(plan.enumerated, mesh, strict=True)}
+        ends_up = _ends(plan, cands, grid, up=True)
+        ends_lo = _ends(plan, cands, grid, up=False)
+        if cache is not None:
+            cache[key] = (grid, ends_up, ends_lo)
     m = grid[plan.enumerated[0]].size
     alpha_hi = cn.beta_hi / (cn.beta_hi + 1)
     alpha_lo = cn.beta_lo / (cn.beta_lo + 1)
@@ -238,7 +251,7 @@ def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
     ie_min = (t.ic_min - cn.icbo_lo) / alpha_lo          # smallest IE needed at IC-min vertex
     a_thr = np.full(m, -np.inf)
     hi_terms = []
-    for s in _ends(plan, cands, grid, up=True):
+    for s in ends_up:
         n_, d0 = ie_terms(network, s, cn.vcc_hi, cn.vee_hi, cn.beta_hi, cn.vbe_hi, cn.icbo_hi)
         hi_terms.append((n_, d0))
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -246,7 +259,7 @@ def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
         a_thr = np.maximum(a_thr, thr)
     b_thr = np.full(m, np.inf)
     lo_terms = []
-    for s in _ends(plan, cands, grid, up=False):
+    for s in ends_lo:
         n_, d0 = ie_terms(network, s, cn.vcc_lo, cn.vee_lo, cn.beta_lo, cn.vbe_lo, cn.icbo_lo)
         lo_terms.append((n_, d0))
         with np.errstate(divide="ignore", invalid="ignore"):
