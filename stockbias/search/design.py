@@ -265,6 +265,7 @@ class _Search:
         self.rejected_on_verification = 0
         self._cache: dict[tuple, object] = {}
         self.pair_roles_limited: list[str] = []
+        self.timed_out = False
         self.stats: dict[str, int] = {"cores": 0, "designs_vertex_checked": 0,
                                       "designs_kept": 0, "verified": 0}
 
@@ -443,19 +444,68 @@ class _Search:
             j1 = np.searchsorted(fc.value, np.where(np.isfinite(h), h / f_hi, h)
                                  * (1 + _REL), "right")
             j0 = np.searchsorted(fc.value, low_need / f_lo * (1 - _REL), "left")
-        counts = np.maximum(j1 - j0, 0)
-        # bounded memory: slices of cores with at most ~1M free-role candidates in all
-        edges = np.searchsorted(np.cumsum(counts), np.arange(1, 1 + int(counts.sum()) // 1_000_000)
-                                * 1_000_000)
-        start = 0
-        for stop in [*edges.tolist(), counts.size]:
-            stop = max(stop, start + 1)
-            sl = slice(start, min(stop, counts.size))
-            if sl.start >= counts.size:
-                break
-            self._finish(b, {r: v[sl] for r, v in idx.items()}, ic_hi[sl], ic_lo[sl], kappa,
-                         (h[sl], low_need[sl], ic_top[sl], j0[sl], counts[sl]))
-            start = sl.stop
+        first_col = {"cost": "cost", "part_count": "parts"}.get(first)
+        levels = self._free_levels(b, first_col) if first_col is not None else None
+        if levels is None:
+            levels = [(None, None)]
+            core_attr = None
+        else:
+            core_attr = np.full(ic_hi.size, micro(b.transistor.unit_cost)
+                                if first_col == "cost" else 1, dtype=np.int64)
+            for r in b.core_roles:
+                core_attr += getattr(b.cands[r], first_col)[idx[r]]
+        # free-role candidates level by level of the first objective (cheapest first), so
+        # a bound found on a cheap level cuts the dearer ones before they are expanded
+        for level, ind in levels:
+            if ind is None:
+                p0, counts = j0, np.maximum(j1 - j0, 0)
+            else:
+                p0 = np.searchsorted(ind, j0, "left")
+                counts = np.maximum(np.searchsorted(ind, j1, "left") - p0, 0)
+                if kappa[0] < _BIG:
+                    counts = np.where(core_attr + level <= kappa[0], counts, 0)
+            if not counts.any():
+                continue
+            # bounded memory: slices of cores with at most ~1M free-role candidates in all
+            edges = np.searchsorted(np.cumsum(counts),
+                                    np.arange(1, 1 + int(counts.sum()) // 1_000_000) * 1_000_000)
+            start = 0
+            for stop in [*edges.tolist(), counts.size]:
+                stop = max(stop, start + 1)
+                sl = slice(start, min(stop, counts.size))
+                if sl.start >= counts.size:
+                    break
+                if time.monotonic() > self.deadline:
+                    self.timed_out = True       # this chunk of rows is not finished
+                    return
+                c = counts[sl]
+                total = int(c.sum())
+                start = sl.stop
+                if total == 0:
+                    continue
+                row = np.repeat(np.arange(c.size), c)
+                pos = np.repeat(p0[sl], c) + np.arange(total) - np.repeat(np.cumsum(c) - c, c)
+                fj = pos if ind is None else ind[pos]
+                self._finish(b, {r: v[sl] for r, v in idx.items()}, ic_hi[sl], ic_lo[sl],
+                             kappa, (h[sl], low_need[sl], ic_top[sl], row, fj))
+            if ind is not None:
+                kappa = self._tighter(kappa)
+
+    def _tighter(self, kappa: np.ndarray) -> np.ndarray:
+        """κ after the designs pooled so far (never looser than the one passed)."""
+        new = self.kappa()
+        return new if _lex_le(new[None, :], kappa)[0] else kappa
+
+    def _free_levels(self, b: _Block, col: str) -> list[tuple[int, np.ndarray]] | None:
+        """The free role's candidates grouped by their first-objective value (ascending),
+        each group's indices ascending (so sorted by value); None when there are many."""
+        key = (b.network, "free_levels", col)
+        if key not in self._cache:
+            attr = getattr(b.cands[b.free], col)
+            lv = np.unique(attr)
+            self._cache[key] = None if lv.size > 64 else [
+                (int(v), np.flatnonzero(attr == v)) for v in lv]
+        return self._cache[key]
 
     def _divider_power_ok(self, b: _Block, idx: dict[str, np.ndarray]) -> np.ndarray:
         """R1 and R2 dissipation at one vertex (VCC max, R1 low, R2 high, RE low, the
@@ -477,14 +527,9 @@ class _Search:
     def _finish(self, b: _Block, idx, ic_hi, ic_lo, kappa, free) -> None:
         """Cores (with the free role's cut) → designs with exact keys ≤ κ into the pool."""
         t = self.stage.target
-        core_row = np.arange(ic_hi.size)
         if free is not None:
             fc = b.cands[b.free]
-            h, low_need, ic_top, j0, counts = free
-            total = int(counts.sum())
-            row = np.repeat(core_row, counts)
-            fj = np.repeat(j0, counts) + np.arange(total) - np.repeat(np.cumsum(counts)
-                                                                      - counts, counts)
+            h, low_need, ic_top, row, fj = free
             allowed = rc_allowed_power(self.job, self.stage, fc.rating[fj])
             keep = ((fc.high[fj] <= h[row] * (1 + _REL))
                     & (fc.low[fj] >= low_need[row] * (1 - _REL))
@@ -514,11 +559,19 @@ class _Search:
         k_block = self.blocks.index(b)
         picks = np.flatnonzero(keep)
         if picks.size > 256 and not np.all(kappa < _BIG):
-            # no bound yet: pool the best few, bound from them (re-verified), then filter
+            # no bound yet: pool the best few in growing batches, bound from them
+            # (re-verified), and filter the rest as soon as a bound exists
             order = picks[np.lexsort(key[picks].T[::-1])]
-            self._pool_add(b, k_block, roles, idx, key, mppm, order[:64])
-            kappa = self.kappa()
-            rest = order[64:]
+            step, pos = 64, 0
+            while pos < order.size and not np.all(kappa < _BIG):
+                self._pool_add(b, k_block, roles, idx, key, mppm, order[pos:pos + step])
+                pos += step
+                step *= 4
+                kappa = self.kappa()
+                if time.monotonic() > self.deadline:
+                    self.timed_out = True
+                    return
+            rest = order[pos:]
             picks = rest[_lex_le(key[rest], kappa)]
         self._pool_add(b, k_block, roles, idx, key, mppm, picks)
 
@@ -672,6 +725,10 @@ class _Search:
                     break
                 for k in np.unique(bid[part]):
                     self.expand(self.blocks[int(k)], rid[part[bid[part] == k]], kappa)
+                if self.timed_out:
+                    complete = False
+                    bound[self.objectives[0]] = float(key[ids[pos], 0])
+                    break
                 done[ids[pos:pos + chunk]] = True
                 pos += chunk
                 chunk = min(chunk * 2, 65536)
