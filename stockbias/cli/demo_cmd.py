@@ -33,3 +33,7 @@ def demo() -> None:
                       f"stockbias check inventory_samples/{job_path.name} --inventory "
                       f"inventory_samples/{shelf.name} --values {best.assignment_text()} "
                       f"--transistor {best.transistor_id}")
+    console.print("A whole board: the bundled four-stage board onto fewer drawer lines, every "
+                  "stage still in spec: stockbias consolidate "
+                  "inventory_samples/distribution_amp_board.toml --inventory "
+                  f"inventory_samples/{shelf.name}")
