@@ -18,17 +18,15 @@ vectors, compared exactly).
 from __future__ import annotations
 
 import itertools
-import warnings
 from collections import Counter
 from dataclasses import replace
 
 import numpy as np
 import pytest
+from vertex_reference import vertex_screen
 
 from stockbias.analysis.check import analyze_stage
-from stockbias.analysis.constraints import evaluate_limits, stage_limits
-from stockbias.analysis.stage import DeviceSpec, ResistorSpec, StageSpec, evaluate
-from stockbias.analysis.worst_case import vertex_points
+from stockbias.analysis.stage import DeviceSpec, ResistorSpec, StageSpec
 from stockbias.assign import ResolvedResistor
 from stockbias.eseries import series_values
 from stockbias.job import Job, Stage, parse_job
@@ -130,20 +128,8 @@ def _stage_feasible(job: Job, stage: Stage, inv: Inventory) -> list[tuple[Transi
                          ambient_min_c=env.ambient_min_c, ambient_max_c=env.ambient_max_c,
                          model=job.search.model, load=job.small_signal.load,
                          re_bypassed=job.small_signal.re_bypassed)
-        point, _ = vertex_points(spec)
-        ev = evaluate(spec, point)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)
-            low = {k: np.nanmin(np.broadcast_to(v, ev.op.shape), -1)
-                   for k, v in ev.quantities.items() if np.ndim(v)}
-            high = {k: np.nanmax(np.broadcast_to(v, ev.op.shape), -1)
-                    for k, v in ev.quantities.items() if np.ndim(v)}
-        na = np.sum(ev.op.region != 0, axis=-1).astype(float)
-        low["non_active_corners"] = high["non_active_corners"] = na
-        low["vceo_needed"] = high["vceo_needed"] = np.full(na.shape, job.supply.max_ce_voltage)
         ratings = {role: rating[combos[:, k]] for k, role in enumerate(ROLES)}
-        margins = evaluate_limits(stage_limits(one, stage, spec, ratings), low, high)
-        ok = np.all(np.stack([m >= 0 for m in margins.values()]), axis=0)
+        ok, _, _ = vertex_screen(one, stage, spec, ratings)
         out += [(q, tuple(int(x) for x in combos[i])) for i in np.flatnonzero(ok)]
     return out
 

@@ -13,16 +13,14 @@ from __future__ import annotations
 
 import itertools
 import math
-import warnings
 from dataclasses import replace
 
 import numpy as np
 import pytest
+from vertex_reference import vertex_screen
 
 from stockbias.analysis.check import analyze_stage
-from stockbias.analysis.constraints import evaluate_limits, stage_limits
-from stockbias.analysis.stage import DeviceSpec, ResistorSpec, StageSpec, evaluate
-from stockbias.analysis.worst_case import vertex_points
+from stockbias.analysis.stage import DeviceSpec, ResistorSpec, StageSpec
 from stockbias.assign import ResolvedResistor
 from stockbias.eseries import series_values
 from stockbias.job import Job, parse_job
@@ -148,23 +146,10 @@ def _exhaustive(job: Job, inv: Inventory, top: int):
                                for i in idx])
                 arrays[role.name] = ResistorSpec(v, tol, dr)
             spec = _spec(job, net_name, q, arrays)
-            point, _ = vertex_points(spec)
-            ev = evaluate(spec, point)
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", RuntimeWarning)
-                low = {k: np.nanmin(np.broadcast_to(v, ev.op.shape), -1)
-                       for k, v in ev.quantities.items() if np.ndim(v)}
-                high = {k: np.nanmax(np.broadcast_to(v, ev.op.shape), -1)
-                        for k, v in ev.quantities.items() if np.ndim(v)}
-            na = np.sum(ev.op.region != 0, axis=-1).astype(float)
-            low["non_active_corners"] = high["non_active_corners"] = na
-            low["vceo_needed"] = high["vceo_needed"] = np.full(na.shape,
-                                                               job.supply.max_ce_voltage)
             ratings = {role.name: np.array([0.0 if c[k] is None else lines[c[k]].power_w
                                             for c in combos])
                        for k, role in enumerate(net.roles)}
-            margins = evaluate_limits(stage_limits(job, st, spec, ratings), low, high)
-            ok = np.all(np.stack([m >= 0 for m in margins.values()]), axis=0)
+            ok, low, high = vertex_screen(job, st, spec, ratings)
             icm = np.minimum(low["ic"] - t.ic_min, t.ic_max - high["ic"]) / t.ic
             for i in np.flatnonzero(ok):
                 used = [lines[x] for x in combos[i] if x is not None]

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import time
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Annotated
 
@@ -9,6 +12,7 @@ import typer
 
 from ..job import Job, load_job
 from ..parts import Inventory
+from ..render.console import make_console
 from ..stock_io import read_inventory
 
 JobArg = Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True,
@@ -29,3 +33,29 @@ def load(job_path: Path, inventory_path: Path | None) -> tuple[Job, Inventory | 
     job = load_job(job_path)
     inv = read_inventory(inventory_path) if inventory_path is not None else None
     return job, inv
+
+
+@contextmanager
+def search_progress(json_out: bool, label: str) -> Iterator[Callable[[str, float], None] | None]:
+    """A rich progress bar on stderr for searches that run longer than a second (none with
+    --json or when stderr is not a terminal); yields the callback the search takes."""
+    console = make_console(stderr=True)
+    if json_out or not console.is_terminal:
+        yield None
+        return
+    from rich.progress import Progress
+
+    bar = Progress(console=console, transient=True)
+    task = bar.add_task(label, total=1.0)
+    started = time.monotonic()
+
+    def progress(stage: str, fraction: float) -> None:
+        if time.monotonic() - started > 1.0 and not bar.live.is_started:
+            bar.start()
+        bar.update(task, completed=fraction, description=stage)
+
+    try:
+        yield progress
+    finally:
+        if bar.live.is_started:
+            bar.stop()

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import sys
-import time
 from pathlib import Path
 from typing import Annotated
 
@@ -12,7 +11,7 @@ import typer
 from ..errors import InputError
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import InventoryOpt, JobArg, JsonOpt, load
+from .common import InventoryOpt, JobArg, JsonOpt, load, search_progress
 
 
 def consolidate(
@@ -45,26 +44,9 @@ def consolidate(
             raise InputError("name at least one objective", column="--objectives",
                              text=objectives)
     kept = parse_keep(keep, job)
-    console = make_console(stderr=True)
-    progress = None
-    bar = None
-    if not json_out and console.is_terminal:
-        from rich.progress import Progress
-
-        bar = Progress(console=console, transient=True)
-        task = bar.add_task("consolidating", total=1.0)
-        started = time.monotonic()
-
-        def progress(stage: str, fraction: float) -> None:
-            if time.monotonic() - started > 1.0 and not bar.live.is_started:
-                bar.start()
-            bar.update(task, completed=fraction, description=stage)
-    try:
+    with search_progress(json_out, "consolidating") as progress:
         result = run(job, inv, keep=kept, objectives=order, time_limit_s=time_limit,
                      progress=progress)
-    finally:
-        if bar is not None and bar.live.is_started:
-            bar.stop()
     if json_out:
         payload = result.to_dict()
         payload["board"] = str(board_file)

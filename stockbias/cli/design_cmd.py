@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import time
 from pathlib import Path
 from typing import Annotated
 
@@ -11,7 +10,7 @@ import typer
 from ..errors import InputError
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import InventoryOpt, JobArg, JsonOpt, load
+from .common import InventoryOpt, JobArg, JsonOpt, load, search_progress
 
 
 def design(
@@ -38,25 +37,8 @@ def design(
 
     job, inv = load(job_file, inventory)
     assert inv is not None
-    console = make_console(stderr=True)
-    progress = None
-    bar = None
-    if not json_out and console.is_terminal:
-        from rich.progress import Progress
-
-        bar = Progress(console=console, transient=True)
-        task = bar.add_task("searching the shelf", total=1.0)
-        started = time.monotonic()
-
-        def progress(stage: str, fraction: float) -> None:
-            if time.monotonic() - started > 1.0 and not bar.live.is_started:
-                bar.start()
-            bar.update(task, completed=fraction, description=stage)
-    try:
+    with search_progress(json_out, "searching the shelf") as progress:
         result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress)
-    finally:
-        if bar is not None and bar.live.is_started:
-            bar.stop()
     payload = result.to_dict()
     payload["job"] = str(job_file)
     payload["inventory"] = str(inventory)

@@ -28,7 +28,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import InputError
 from ..job import Job, Stage
 from ..parts import Transistor
 from ..topologies import get_network
@@ -36,12 +35,12 @@ from .candidates import RoleCandidates
 from .prepass import (
     PLANS,
     corners,
+    cross_product_check,
     free_role_bounds,
     ie_terms,
     materialise,
     rc_allowed_power,
     row_cuts,
-    vertex_check,
 )
 
 __all__ = ["EXPONENTIAL_MAX_PER_STAGE", "StageOptions", "stage_options"]
@@ -168,21 +167,8 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
 def _exponential(job: Job, stage: Stage, stage_index: int, network: str, q: Transistor,
                  cands: dict[str, RoleCandidates]) -> StageOptions:
     """Exponential model: the full cross product, checked at every vertex."""
-    roles = tuple(cands)
-    sizes = [len(cands[r]) for r in roles]
-    total = int(np.prod(sizes))
-    if total > EXPONENTIAL_MAX_PER_STAGE:
-        raise InputError(
-            f"the exponential model is searched without closed-form pruning; stage "
-            f"'{stage.name}' has {total} assignments per transistor (limit "
-            f"{EXPONENTIAL_MAX_PER_STAGE}); search the board with model = \"constant_vbe\" "
-            "and check the result with the exponential model", column="model",
-            text="exponential")
-    mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
-    idx = {r: m.reshape(-1) for r, m in zip(roles, mesh, strict=True)}
-    chk = vertex_check(job, stage, network, q, {r: (cands[r], idx[r]) for r in roles})
-    ok = chk["ok"]
-    idx = {r: v[ok] for r, v in idx.items()}
-    n = int(ok.sum())
+    idx, _chk, _total = cross_product_check(job, stage, network, q, cands,
+                                            EXPONENTIAL_MAX_PER_STAGE, f"stage '{stage.name}'")
+    n = next(iter(idx.values())).size
     empty = np.full(n, -1, dtype=np.int64)
-    return StageOptions(stage_index, network, q, cands, roles, None, idx, empty, empty)
+    return StageOptions(stage_index, network, q, cands, tuple(cands), None, idx, empty, empty)

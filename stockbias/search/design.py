@@ -31,7 +31,6 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..analysis.check import CheckResult, analyze_stage
-from ..errors import InputError
 from ..job import TOPOLOGY_NAMES, Job
 from ..parts import Inventory, Transistor
 from ..topologies import get_network
@@ -41,6 +40,7 @@ from .prepass import (
     PLANS,
     Rows,
     corners,
+    cross_product_check,
     free_role_bounds,
     ie_terms,
     materialise,
@@ -294,25 +294,13 @@ class _Search:
     def _exponential_block(self, net_name: str, qi: int, q: Transistor,
                            cands: dict[str, RoleCandidates]) -> _Block:
         """Exponential model: the full cross product, every vertex (no closed-form cut)."""
-        roles = tuple(cands)
-        sizes = [len(cands[r]) for r in roles]
-        total = int(np.prod(sizes))
-        if total > EXPONENTIAL_MAX_DESIGNS:
-            raise InputError(
-                f"the exponential model is searched without closed-form pruning; {net_name} "
-                f"with this shelf has {total} assignments per transistor (limit "
-                f"{EXPONENTIAL_MAX_DESIGNS}); search with model = \"constant_vbe\" and check "
-                "the result with the exponential model", column="model", text="exponential")
-        mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
-        idx = {r: m.reshape(-1) for r, m in zip(roles, mesh, strict=True)}
-        chk = vertex_check(self.job, self.stage, net_name, q,
-                           {r: (cands[r], idx[r]) for r in roles})
+        idx, chk, total = cross_product_check(self.job, self.stage, net_name, q, cands,
+                                              EXPONENTIAL_MAX_DESIGNS,
+                                              f"{net_name} with this shelf")
         self.stats["designs_vertex_checked"] += total
-        ok = chk["ok"]
-        idx = {r: v[ok] for r, v in idx.items()}
-        self.stats["cores"] += int(ok.sum())
-        return _Block(net_name, qi, q, cands, roles, None, idx=idx, ic_hi=chk["ic_max"][ok],
-                      ic_lo=chk["ic_min"][ok], exact=True)
+        self.stats["cores"] += int(chk["ok"].size)
+        return _Block(net_name, qi, q, cands, tuple(cands), None, idx=idx, ic_hi=chk["ic_max"],
+                      ic_lo=chk["ic_min"], exact=True)
 
     def row_bounds(self, b: _Block) -> tuple[np.ndarray, np.ndarray]:
         """(row ids with any core, LB key per row): a componentwise lower bound of every
