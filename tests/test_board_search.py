@@ -23,11 +23,13 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from board_reference import board_of as _board_of
+from board_reference import recheck as _recheck
+from board_reference import resolved as _resolved
 from vertex_reference import vertex_screen
 
 from stockbias.analysis.check import analyze_stage
 from stockbias.analysis.stage import DeviceSpec, ResistorSpec, StageSpec
-from stockbias.assign import ResolvedResistor
 from stockbias.eseries import series_values
 from stockbias.job import Job, Stage, parse_job
 from stockbias.parts import Inventory, Resistor, Transistor
@@ -134,11 +136,6 @@ def _stage_feasible(job: Job, stage: Stage, inv: Inventory) -> list[tuple[Transi
     return out
 
 
-def _resolved(role: str, r: Resistor) -> ResolvedResistor:
-    return ResolvedResistor(role=role, value=r.value_ohm, tol=r.tolerance_pct / 100,
-                            tempco_ppm=r.tempco_ppm or 0.0, rating=r.power_w, parts=(r,))
-
-
 def _key(objectives, build: int, board: list[tuple[Transistor, list[Resistor]]]) -> tuple | None:
     """The board objective vector, or None when the shared stock rule fails."""
     uses = Counter(r.part_id for _, rs in board for r in rs)
@@ -197,26 +194,6 @@ def _exhaustive(job: Job, inv: Inventory):
 
 
 # --- reading the search's answer independently -------------------------------------
-def _board_of(design) -> list[tuple[Transistor, list[Resistor]]]:
-    out = []
-    for s in design.stages:
-        assert set(s.check.parts) == set(ROLES)
-        rs = []
-        for role in ROLES:
-            p = s.check.parts[role]
-            assert len(p.parts) == 1
-            rs.append(p.parts[0])
-        out.append((s.transistor, rs))
-    return out
-
-
-def _recheck(job: Job, design) -> None:
-    """Every returned stage passes analyze_stage, re-run here."""
-    for s in design.stages:
-        st = next(x for x in job.stages if x.name == s.name)
-        res = analyze_stage(replace(job, stages=(st,)), st, s.check.parts, s.transistor,
-                            samples=0, topology=s.topology)
-        assert res.ok, (s.name, [c.name for c in res.failing])
 
 
 def _reported(job: Job, design) -> tuple:
