@@ -10,6 +10,7 @@ file, the line, the key and the offending text.
 
 from __future__ import annotations
 
+import contextlib
 import difflib
 import math
 import re
@@ -36,6 +37,7 @@ __all__ = [
     "Target",
     "load_job",
     "parse_job",
+    "stage_key_error",
 ]
 
 TOPOLOGY_NAMES = ("divider", "collector_feedback", "dual_supply", "fixed_base")
@@ -547,3 +549,18 @@ def load_job(path: str | Path) -> Job:
     except UnicodeDecodeError:
         raise JobError("job file is not UTF-8 text", file=str(path)) from None
     return parse_job(text, str(path))
+
+
+def stage_key_error(job: Job, stage_name: str, key: str, message: str,
+                    text: str | None = None) -> JobError:
+    """A JobError about one key of a ``[[stage]]`` (``values.R1``, ``transistor``), with the
+    file and, where the file can be read again, its line."""
+    index = next((i for i, s in enumerate(job.stages) if s.name == stage_name), 0)
+    section, _, name = key.rpartition(".")
+    section = "stage" + (f".{section}" if section else "")
+    line = None
+    with contextlib.suppress(OSError, UnicodeDecodeError):
+        line = _Locator(Path(job.path).read_text(encoding="utf-8")).line_of(
+            section, name, index)
+    return JobError(f"stage '{stage_name}': {message}", file=job.path, line=line,
+                    column=f"{section}.{name}", text=text)

@@ -177,3 +177,32 @@ def test_check_without_values_or_stage_values_exit_2() -> None:
     result = runner.invoke(app, ["check", str(job), "-i", str(SHELF), "-t", "QN-GP40"])
     assert result.exit_code == 2
     assert "--values" in result.output
+
+
+@pytest.mark.parametrize(("old", "new", "where", "bad"), [
+    ('RE = "CF-680R"', 'RX = "CF-680R"', "key 'stage.values.RX': stage 'line_out': divider has "
+                                         "no role RX", "RX"),
+    ('R1 = "CF-15K"', 'R1 = "15 kV"', "key 'stage.values.R1': stage 'line_out': unit 'V'",
+     "15 kV"),
+    ('transistor = "QN-LB1"', 'transistor = "QX-9"', "key 'stage.transistor': stage 'gain': "
+                                                     "transistor QX-9 is not in the stock file",
+     "QX-9"),
+])
+def test_board_errors_name_file_line_key_and_text(tmp_path: Path, old: str, new: str,
+                                                  where: str, bad: str) -> None:
+    board = tmp_path / "board.toml"
+    text = BOARD.read_text()
+    assert old in text
+    board.write_text(text.replace(old, new))
+    line = next(i for i, row in enumerate(board.read_text().splitlines(), start=1)
+                if row.strip() == new)
+    for command in ("consolidate", "design"):
+        if command == "design" and "transistor" not in old:
+            continue          # design ignores [stage.values]
+        result = runner.invoke(app, [command, str(board), "-i", str(SHELF)])
+        assert result.exit_code == 2, result.output
+        out = result.output.strip()
+        assert len(out.splitlines()) == 1
+        assert out.startswith(f"{board}:{line}: ")
+        assert where in out
+        assert out.endswith(f"(text '{bad}')")            # the offending text

@@ -28,7 +28,7 @@ import numpy as np
 
 from ..analysis.check import CheckResult, analyze_stage
 from ..assign import ResolvedResistor
-from ..job import TOPOLOGY_NAMES, Job, Stage
+from ..job import TOPOLOGY_NAMES, Job, Stage, stage_key_error
 from ..parts import Inventory, Resistor, Transistor
 from ..topologies import get_network
 from .board_model import BoardModel, Choice, LineInfo, StageSetup
@@ -415,6 +415,11 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
     setups = []
     excluded: dict[str, list[dict[str, str]]] = {}
     n_opts = {}
+    for stage in job.stages:
+        if stage.transistor is not None and inventory.find_transistor(stage.transistor) is None:
+            raise stage_key_error(job, stage.name, "transistor", f"transistor "
+                                  f"{stage.transistor} is not in the stock file",
+                                  stage.transistor)
     for si, stage in enumerate(job.stages):
         sj = stage_job(job, stage)
         qs, out = usable_transistors(sj, inventory)

@@ -27,7 +27,7 @@ import numpy as np
 from ..analysis.check import analyze_stage, check_roles
 from ..assign import ResolvedResistor, resolve_resistor
 from ..errors import InputError
-from ..job import OBJECTIVES, Job
+from ..job import OBJECTIVES, Job, stage_key_error
 from ..parts import Inventory, Resistor, Transistor
 from ..topologies import get_network
 from .board import (
@@ -124,27 +124,34 @@ def _current(job: Job, inventory: Inventory
     """Each stage's current transistor and resolved parts (errors name the stage)."""
     out = []
     for st in job.stages:
-        where = f"stage '{st.name}'"
         if st.topology == "any":
-            raise InputError(f"{where}: consolidation needs the stage's topology",
-                             file=job.path, column="stage.topology", text="any")
+            raise stage_key_error(job, st.name, "topology", "consolidation needs the stage's "
+                                  "topology", "any")
         if st.transistor is None:
-            raise InputError(f"{where}: consolidation needs the stage's current transistor "
-                             "(transistor = \"PART_ID\")", file=job.path, column="stage.transistor")
+            raise stage_key_error(job, st.name, "transistor", "consolidation needs the stage's "
+                                  "current transistor (transistor = \"PART_ID\")")
         q = inventory.find_transistor(st.transistor)
         if q is None:
-            raise InputError(f"{where}: transistor {st.transistor} is not in the stock file",
-                             file=job.path, column="stage.transistor", text=st.transistor)
+            raise stage_key_error(job, st.name, "transistor", f"transistor {st.transistor} is "
+                                  "not in the stock file", st.transistor)
+        if not st.values:
+            raise stage_key_error(job, st.name, "values", "consolidation needs the stage's "
+                                  "current parts ([stage.values])")
         try:
             check_roles(st.topology, st.values)
         except InputError as exc:
-            raise InputError(f"{where}: {exc.message}", file=job.path, column="stage.values",
-                             text=exc.text) from None
+            one_role = exc.text and "=" not in exc.text
+            raise stage_key_error(job, st.name, f"values.{exc.text}" if one_role else "values",
+                                  exc.message, exc.text) from None
         parts = {}
         for role, text in st.values.items():
-            p = resolve_resistor(role, text, inventory, job.build.default_tolerance_pct,
-                                 source="stage.values")
-            parts[role] = p
+            try:
+                parts[role] = resolve_resistor(role, text, inventory,
+                                               job.build.default_tolerance_pct,
+                                               source="stage.values")
+            except InputError as exc:
+                raise stage_key_error(job, st.name, f"values.{role}", exc.message,
+                                      text) from None
         out.append((q, parts))
     return out
 
