@@ -206,3 +206,15 @@ def test_board_errors_name_file_line_key_and_text(tmp_path: Path, old: str, new:
         assert out.startswith(f"{board}:{line}: ")
         assert where in out
         assert out.endswith(f"(text '{bad}')")            # the offending text
+
+
+def test_consolidate_report(tmp_path: Path) -> None:
+    out = tmp_path / "board.html"
+    result = runner.invoke(app, ["consolidate", str(BOARD), "-i", str(SHELF), "--report",
+                                 str(out)])
+    assert result.exit_code == 0, result.output
+    html = out.read_text()
+    assert "Consolidation of distribution_amp_board.toml" in html
+    assert "Before: 14 BOM lines, 11 values" in html          # counted from the board file
+    for name in ("input", "gain", "split", "line_out"):
+        assert f"Stage {name}" in html
