@@ -5,10 +5,13 @@ from __future__ import annotations
 
 from dataclasses import replace
 
+import numpy as np
+
 from stockbias.analysis.check import analyze_stage
 from stockbias.assign import ResolvedResistor
+from stockbias.eseries import series_values
 from stockbias.job import Job
-from stockbias.parts import Resistor, Transistor
+from stockbias.parts import Inventory, Resistor, Transistor
 
 ROLES = ("R1", "R2", "RC", "RE")
 
@@ -38,3 +41,28 @@ def recheck(job: Job, design) -> None:
         res = analyze_stage(replace(job, stages=(st,)), st, s.check.parts, s.transistor,
                             samples=0, topology=s.topology)
         assert res.ok, (s.name, [c.name for c in res.failing])
+
+
+def generated_shelf(seed: int, n_lines: int, n_q: int, build: int,
+                    qty_scale: tuple[int, ...] = (2, 4, 8)) -> Inventory:
+    """A seeded shelf: n_lines E12 values 100 Ω…100 kΩ, NPN rows; invented test data."""
+    rng = np.random.default_rng(seed)
+    values = rng.choice(series_values("E12", 100.0, 100e3), size=n_lines, replace=False)
+    resistors = []
+    for i, v in enumerate(sorted(values)):
+        resistors.append(Resistor(
+            part_id=f"R{i:02d}", value_ohm=float(v),
+            tolerance_pct=float(rng.choice([1.0, 2.0, 5.0])), power_w=0.25,
+            tempco_ppm=float(rng.choice([0.0, 100.0])),
+            qty=int(rng.choice(qty_scale)) * build,
+            unit_cost=float(rng.choice([0.01, 0.02, 0.05])), line=i + 2))
+    transistors = []
+    for j in range(n_q):
+        lo = float(rng.choice([80, 100, 150]))
+        transistors.append(Transistor(
+            part_id=f"Q{j}", polarity="NPN", hfe_min=lo,
+            hfe_max=lo * float(rng.choice([1.5, 2.0, 3.0])), vceo_max=40.0, ic_max=0.1,
+            pd_max_w=0.5, vbe_min=0.6, vbe_max=0.72, qty=100,
+            unit_cost=float(rng.choice([0.03, 0.05])), line=100 + j))
+    return Inventory(path=f"<shelf {seed}>", resistors=tuple(resistors),
+                     transistors=tuple(transistors))

@@ -24,13 +24,13 @@ from dataclasses import replace
 import numpy as np
 import pytest
 from board_reference import board_of as _board_of
+from board_reference import generated_shelf as _shelf
 from board_reference import recheck as _recheck
 from board_reference import resolved as _resolved
 from vertex_reference import vertex_screen
 
 from stockbias.analysis.check import analyze_stage
 from stockbias.analysis.stage import DeviceSpec, ResistorSpec, StageSpec
-from stockbias.eseries import series_values
 from stockbias.job import Job, Stage, parse_job
 from stockbias.parts import Inventory, Resistor, Transistor
 from stockbias.search.board import design_board
@@ -67,28 +67,6 @@ supply_power_max = "{pmax}"
 
 
 # --- generated shelves and boards ---------------------------------------------------
-def _shelf(seed: int, n_lines: int, n_q: int, build: int,
-           qty_scale: tuple[int, ...] = (2, 4, 8)) -> Inventory:
-    rng = np.random.default_rng(seed)
-    values = rng.choice(series_values("E12", 100.0, 100e3), size=n_lines, replace=False)
-    resistors = []
-    for i, v in enumerate(sorted(values)):
-        resistors.append(Resistor(
-            part_id=f"R{i:02d}", value_ohm=float(v),
-            tolerance_pct=float(rng.choice([1.0, 2.0, 5.0])), power_w=0.25,
-            tempco_ppm=float(rng.choice([0.0, 100.0])),
-            qty=int(rng.choice(qty_scale)) * build,
-            unit_cost=float(rng.choice([0.01, 0.02, 0.05])), line=i + 2))
-    transistors = []
-    for j in range(n_q):
-        lo = float(rng.choice([80, 100, 150]))
-        transistors.append(Transistor(
-            part_id=f"Q{j}", polarity="NPN", hfe_min=lo,
-            hfe_max=lo * float(rng.choice([1.5, 2.0, 3.0])), vceo_max=40.0, ic_max=0.1,
-            pd_max_w=0.5, vbe_min=0.6, vbe_max=0.72, qty=100,
-            unit_cost=float(rng.choice([0.03, 0.05])), line=100 + j))
-    return Inventory(path=f"<shelf {seed}>", resistors=tuple(resistors),
-                     transistors=tuple(transistors))
 
 
 def _with_qty(inv: Inventory, qty: dict[str, int]) -> Inventory:
