@@ -23,6 +23,7 @@ from __future__ import annotations
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
+from typing import Any
 
 import numpy as np
 
@@ -64,7 +65,7 @@ class BoardStage:
     topology: str
     transistor: Transistor
     check: CheckResult
-    changed: dict[str, dict[str, object]] = field(default_factory=dict)
+    changed: dict[str, dict[str, Any]] = field(default_factory=dict)
     ic_margin: float = 0.0
 
     def to_dict(self) -> dict[str, object]:
@@ -105,7 +106,7 @@ class BoardDesign:
     distinct_values: int
     bom_lines: int
     changes: int
-    bom: list[dict[str, object]]
+    bom: list[dict[str, Any]]
 
     def to_dict(self) -> dict[str, object]:
         return {"rank": self.rank, "cost": self.cost, "cost_micro": self.cost_micro,
@@ -172,7 +173,7 @@ def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe
               ) -> tuple[str, list[list[Choice]], list[dict[str, int]], dict[str, float],
                          BoardModel, dict[tuple, CheckResult | None], dict[str, int]]:
     """Ranked board choices; every returned stage passes :func:`analyze_stage`."""
-    tq = {q.part_id: q.qty for q in inventory.transistors}
+    tq: dict[str, int | None] = {q.part_id: q.qty for q in inventory.transistors}
     info = LineInfo([universe.value_id.get(r.value_ohm, -1) for r in universe.lines],
                     universe.qty, tq, job.build.quantity)
     bm = BoardModel(setups, info, stock=stock)
@@ -303,7 +304,7 @@ def build_board(job: Job, inventory: Inventory, setups: list[StageSetup],
 
 
 def _changed(setup: StageSetup, g: StageOptions, design: dict[str, int],
-             universe: _Universe) -> dict[str, dict[str, object]]:
+             universe: _Universe) -> dict[str, dict[str, Any]]:
     if setup.current_network is None:
         return {}
     out = {}
@@ -319,9 +320,9 @@ def _changed(setup: StageSetup, g: StageOptions, design: dict[str, int],
 
 
 def bom_of(stages: list[tuple[str, Transistor, dict[str, ResolvedResistor]]], build_qty: int,
-           inventory: Inventory) -> list[dict[str, object]]:
+           inventory: Inventory) -> list[dict[str, Any]]:
     """Bill of materials: one row per resistor line (or outside value) and transistor line."""
-    rows: dict[tuple, dict[str, object]] = {}
+    rows: dict[tuple, dict[str, Any]] = {}
     for name, q, parts in stages:
         for role, p in parts.items():
             pieces = p.parts or (Resistor("", p.value, 100 * p.tol, p.rating),)
@@ -352,7 +353,7 @@ def bom_of(stages: list[tuple[str, Transistor, dict[str, ResolvedResistor]]], bu
     return out
 
 
-def bom_totals(bom: list[dict[str, object]]) -> dict[str, object]:
+def bom_totals(bom: list[dict[str, Any]]) -> dict[str, Any]:
     res = [r for r in bom if r["kind"] == "resistor"]
     return {"bom_lines": len(bom), "resistor_lines": len(res),
             "distinct_values": len({r["value_ohm"] for r in res}),
@@ -480,7 +481,8 @@ def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
 
         one = design(stage_job(job, replace(stage, topology=stage.topology)), inventory, top=1,
                      time_limit_s=max(5.0, deadline - time.monotonic()))
-        text = one.explanation.to_dict() if one.explanation is not None else {}
+        ex: Any = one.explanation
+        text = ex.to_dict() if ex is not None else {}
         return {"reason": f"stage '{name}' cannot be met from this stock on its own",
                 "stage": name, "stage_explanation": text,
                 "suggestion": text.get("suggestion", "see the stage explanation")}

@@ -104,11 +104,11 @@ class BoardModel:
                 gi = len(self.groups)
                 self.groups.append(g)
                 self.group_stage.append(s)
-                ov = [m.NewBoolVar(f"o{s}_{gi}_{k}") for k in range(g.size)]
+                ov = [m.new_bool_var(f"o{s}_{gi}_{k}") for k in range(g.size)]
                 self.o.append(ov)
                 stage_opts += ov
-                sel = m.NewBoolVar(f"sel{s}_{gi}")
-                m.Add(sum(ov) == sel) if ov else m.Add(sel == 0)
+                sel = m.new_bool_var(f"sel{s}_{gi}")
+                m.add(sum(ov) == sel) if ov else m.add(sel == 0)
                 self.sel[gi] = sel
                 q = g.transistor
                 q_uses.setdefault(q.part_id, []).append(sel)
@@ -124,8 +124,8 @@ class BoardModel:
                         core_cost[k] += int(c.cost[i])
                         core_parts[k] += int(c.parts[i])
                     for i, lits in by_i.items():
-                        xv = m.NewBoolVar(f"x{s}_{gi}_{r}_{i}")
-                        m.Add(xv == sum(lits))
+                        xv = m.new_bool_var(f"x{s}_{gi}_{r}_{i}")
+                        m.add(xv == sum(lits))
                         self.x[(s, gi, r, i)] = xv
                         self._uses(c, i, xv, line_uses, value_uses, s)
                 cost_terms += [cst * v for cst, v in zip(core_cost, ov, strict=True)]
@@ -133,38 +133,38 @@ class BoardModel:
                 if g.free is not None and g.size:
                     c = g.cands[g.free]
                     lo_all, hi_all = int(g.lo.min()), int(g.hi.max())
-                    fv = m.NewIntVar(0, hi_all, f"f{s}_{gi}")
+                    fv = m.new_int_var(0, hi_all, f"f{s}_{gi}")
                     self.f[gi] = fv
-                    covered = set()
+                    covered: set[int] = set()
                     for a, b in zip(g.lo.tolist(), g.hi.tolist(), strict=True):
                         covered.update(range(a, b + 1))
                     xs = []
                     for i in sorted(covered):
-                        xv = m.NewBoolVar(f"x{s}_{gi}_{g.free}_{i}")
+                        xv = m.new_bool_var(f"x{s}_{gi}_{g.free}_{i}")
                         self.x[(s, gi, g.free, i)] = xv
                         xs.append((i, xv))
                         self._uses(c, i, xv, line_uses, value_uses, s)
                         cost_terms.append(int(c.cost[i]) * xv)
                         part_terms.append(int(c.parts[i]) * xv)
-                    m.Add(sum(v for _, v in xs) == sel)
-                    m.Add(fv == sum(i * v for i, v in xs))
+                    m.add(sum(v for _, v in xs) == sel)
+                    m.add(fv == sum(i * v for i, v in xs))
                     for k, (a, b) in enumerate(zip(g.lo.tolist(), g.hi.tolist(), strict=True)):
                         if a > lo_all:
-                            m.Add(fv >= a).OnlyEnforceIf(ov[k])
+                            m.add(fv >= a).only_enforce_if(ov[k])
                         if b < hi_all:
-                            m.Add(fv <= b).OnlyEnforceIf(ov[k])
+                            m.add(fv <= b).only_enforce_if(ov[k])
                     del lo_all
             part_upper += 1 + max((len(g.cands) for g in st.options), default=0) * 2
             if stage_opts:
-                m.AddExactlyOne(stage_opts)
+                m.add_exactly_one(stage_opts)
             else:
-                m.AddBoolOr([])                      # no option: the board is infeasible
+                m.add_bool_or([])                      # no option: the board is infeasible
             self._changes(s, st)
         # BOM, values, stock
         bq = lines.build_qty
         self.u = {}
         for line, lits in line_uses.items():
-            uv = m.NewBoolVar(f"u{line}")
+            uv = m.new_bool_var(f"u{line}")
             by_stage: dict[int, list] = {}
             for st_i, v in lits:
                 by_stage.setdefault(st_i, []).append(v)
@@ -172,34 +172,34 @@ class BoardModel:
                 # y: stage st_i uses the line (at most one option per stage, so Σ over the
                 # stage's options that use the line is ≤ 1: a tighter bound than each x)
                 if len(vs) > 1:
-                    yv = m.NewBoolVar(f"y{st_i}_{line}")
+                    yv = m.new_bool_var(f"y{st_i}_{line}")
                     for v in vs:
-                        m.AddImplication(v, yv)
-                    m.AddBoolOr(vs).OnlyEnforceIf(yv)
-                    m.AddImplication(yv, uv)
+                        m.add_implication(v, yv)
+                    m.add_bool_or(vs).only_enforce_if(yv)
+                    m.add_implication(yv, uv)
                 else:
                     for v in vs:
-                        m.AddImplication(v, uv)
+                        m.add_implication(v, uv)
             lits = [v for _, v in lits]
             self.u[line] = uv
             qty = lines.qty[line]
             if stock and qty is not None:
-                m.Add(sum(lits) * bq <= qty)
+                m.add(sum(lits) * bq <= qty)
         self.w = {}
         for val, lits in value_uses.items():
-            wv = m.NewBoolVar(f"w{val}")
+            wv = m.new_bool_var(f"w{val}")
             for v in lits:
-                m.AddImplication(v, wv)
+                m.add_implication(v, wv)
             self.w[val] = wv
         self.t = {}
         for pid, lits in q_uses.items():
-            tv = m.NewBoolVar(f"t{pid}")
+            tv = m.new_bool_var(f"t{pid}")
             for v in lits:
-                m.AddImplication(v, tv)
+                m.add_implication(v, tv)
             self.t[pid] = tv
             qty = lines.transistor_qty.get(pid)
             if stock and qty is not None:
-                m.Add(sum(lits) * bq <= qty)
+                m.add(sum(lits) * bq <= qty)
         self.objectives: dict[str, cp_model.LinearExprT] = {
             "cost": sum(cost_terms),
             "part_count": sum(part_terms),
@@ -244,23 +244,24 @@ class BoardModel:
         g = self.groups[ch.group]
         lit = self.o[ch.group][ch.option]
         if g.free is None:
-            self.model.AddBoolOr([lit.Not()])
+            self.model.add_bool_or([lit.negated()])
         else:
             s = self.group_stage[ch.group]
-            self.model.AddBoolOr([lit.Not(), self.x[(s, ch.group, g.free, ch.free)].Not()])
+            free = self.x[(s, ch.group, g.free, ch.free)]
+            self.model.add_bool_or([lit.negated(), free.negated()])
 
     def forbid_board(self, choices: list[Choice]) -> None:
         lits = []
         for ch in choices:
             g = self.groups[ch.group]
-            lits.append(self.o[ch.group][ch.option].Not())
+            lits.append(self.o[ch.group][ch.option].negated())
             if g.free is not None:
                 s = self.group_stage[ch.group]
-                lits.append(self.x[(s, ch.group, g.free, ch.free)].Not())
-        self.model.AddBoolOr(lits)
+                lits.append(self.x[(s, ch.group, g.free, ch.free)].negated())
+        self.model.add_bool_or(lits)
 
     def clear_fixing(self) -> None:
-        proto = self.model.Proto()
+        proto = self.model.proto
         for idx in self._fixing:
             proto.constraints[idx].clear_linear()
         self._fixing = []
@@ -302,7 +303,7 @@ class BoardModel:
             for j in range(len(step) - 2, -1, -1):
                 weights[j] = weights[j + 1] * (self.upper(step[j + 1]) + 1)
             expr = sum(w * self.objectives[n] for w, n in zip(weights, step, strict=True))
-            self.model.Minimize(expr)
+            self.model.minimize(expr)
             solver = cp_model.CpSolver()
             solver.parameters.num_workers = 1
             solver.parameters.random_seed = seed
@@ -312,9 +313,9 @@ class BoardModel:
             for k, v in SOLVER_PARAMS.items():
                 setattr(solver.parameters, k, v)
             t_step = time.monotonic()
-            status = solver.Solve(self.model)
+            status = solver.solve(self.model)
             self.step_seconds.append(("+".join(step), round(time.monotonic() - t_step, 3),
-                                      solver.StatusName(status)))
+                                      solver.status_name(status)))
             if status in (cp_model.INFEASIBLE, cp_model.MODEL_INVALID):
                 if values:
                     raise RuntimeError("fixing an objective at its optimum made the board "
@@ -328,23 +329,23 @@ class BoardModel:
             if status != cp_model.OPTIMAL:
                 proven = False
                 bounds["+".join(step) if len(step) > 1 else step[0]] = float(
-                    solver.BestObjectiveBound())
+                    solver.best_objective_bound)
             for n in step:
-                values[n] = round(solver.Value(self.objectives[n]))
+                values[n] = round(solver.value(self.objectives[n]))
             choices = self._read(solver)
-            self.model.ClearHints()
+            self.model.clear_hints()
             for ov in self.o:
                 for v in ov:
-                    self.model.AddHint(v, solver.Value(v))
+                    self.model.add_hint(v, solver.value(v))
             for fv in self.f.values():
-                self.model.AddHint(fv, solver.Value(fv))
+                self.model.add_hint(fv, solver.value(fv))
             for n in step:
-                ct = self.model.Add(self.objectives[n] <= values[n])
-                self._fixing.append(ct.Index())
+                ct = self.model.add(self.objectives[n] <= values[n])
+                self._fixing.append(ct.index)
             if time.monotonic() > deadline and si < len(steps) - 1:
                 proven = False
                 break
-        self.model.ClearObjective()
+        self.model.clear_objective()
         return ("optimal" if proven and len(values) == len(objectives) else "feasible"), \
             choices, values, bounds
 
@@ -352,9 +353,9 @@ class BoardModel:
         out: list[Choice | None] = [None] * len(self.stages)
         for gi, ov in enumerate(self.o):
             for k, v in enumerate(ov):
-                if solver.Value(v):
+                if solver.value(v):
                     fv = self.f.get(gi)
-                    out[self.group_stage[gi]] = Choice(gi, k, int(solver.Value(fv))
+                    out[self.group_stage[gi]] = Choice(gi, k, int(solver.value(fv))
                                                        if fv is not None else -1)
         assert all(c is not None for c in out)
         return out  # type: ignore[return-value]
