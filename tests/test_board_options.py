@@ -101,3 +101,41 @@ def test_options_cover_every_vertex_feasible_design(case: dict) -> None:
     assert feasible, "the case must have feasible designs to be a test"
     assert feasible <= offered                       # soundness: nothing feasible is lost
     assert len(offered) < 0.2 * len(combos)          # and the screens prune the box
+
+
+def test_collector_feedback_options_are_exactly_the_vertex_feasible_designs() -> None:
+    """No free role: every option is a whole design, screened at every vertex at build time,
+    so the options equal the reference's vertex-feasible set (not only contain it)."""
+    from stockbias.parts import Inventory
+
+    job = parse_job(JOB.format(ic="1 mA", vce="0.8 V", swing="", pmax="60 mW")
+                    + '[search]\ntopology = "collector_feedback"\n', "<job>")
+    inv = Inventory("<lines>", _lines(7), (Q,))
+    shelf = build_shelf(job, inv, pairs=False)
+    net = get_network("collector_feedback")
+    cands = {r.name: shelf.candidates(r.optional, False) for r in net.roles}
+    opts = stage_options(job, job.stage, 0, "collector_feedback", Q, cands)
+    names = [r.name for r in net.roles]
+    offered = {tuple(int(cands[r].line_a[opts.core[r][k]]) for r in names)
+               for k in range(opts.size)}
+    # reference over every assignment (-1: the optional role left out)
+    choices = [([-1] if net.role(r).optional else []) + list(range(len(shelf.lines)))
+               for r in names]
+    combos = np.array(list(itertools.product(*choices)))
+    span = 35.0
+
+    def col(attr: str, k: int, absent: float) -> np.ndarray:
+        vals = np.array([getattr(r, attr) or 0.0 for r in shelf.lines], dtype=float)
+        return np.where(combos[:, k] < 0, absent, vals[np.maximum(combos[:, k], 0)])
+
+    res = {r: ResistorSpec(col("value_ohm", k, 0.0), col("tolerance_pct", k, 0.0) / 100,
+                           col("tempco_ppm", k, 0.0) * 1e-6 * span)
+           for k, r in enumerate(names)}
+    spec = StageSpec(network=net, resistors=res, device=DeviceSpec.from_transistor(Q),
+                     vcc=12.0, vcc_tol=0.05, vee=None, vee_tol=0.0, ambient_min_c=0.0,
+                     ambient_max_c=60.0, model="constant_vbe", load=10e3, re_bypassed=True)
+    ok, _, _ = vertex_screen(job, job.stage, spec,
+                             {r: col("power_w", k, 0.0) for k, r in enumerate(names)})
+    feasible = {tuple(int(x) for x in combos[i]) for i in np.flatnonzero(ok)}
+    assert feasible
+    assert offered == feasible

@@ -15,7 +15,9 @@ Screens, in order, each exact at a vertex:
 * divider only: R1, R2 and RE dissipation and the supply power at the vertex with
   VCC high, R1 low, R2 high, RE low and the IC-max device corner;
 * the free role's headroom, swing and dissipation window
-  (:func:`.prepass.free_role_bounds`).
+  (:func:`.prepass.free_role_bounds`);
+* networks without a free role (``collector_feedback``): every option is a whole design
+  and is checked at every vertex (:func:`.prepass.vertex_check`).
 
 What is not screened here (transistor dissipation, junction temperature, gain, the
 interior peaks of products) is left to the full check of each chosen stage; a stage
@@ -41,12 +43,15 @@ from .prepass import (
     materialise,
     rc_allowed_power,
     row_cuts,
+    vertex_check,
 )
 
 __all__ = ["EXPONENTIAL_MAX_PER_STAGE", "StageOptions", "stage_options"]
 
 _REL = 1e-12
 EXPONENTIAL_MAX_PER_STAGE = 200_000
+#: Options without a free role are screened at every vertex when there are at most this many.
+VERTEX_SCREEN_MAX = 200_000
 
 
 @dataclass
@@ -136,7 +141,13 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
     idx = {r: v[ok] for r, v in idx.items()}
     core_roles = (*plan.enumerated, plan.interval)
     if plan.free is None:
+        # every role is in the core: the options are whole designs, so screen them at every
+        # vertex now (the headroom and dissipation limits have no closed-form cut here)
         n = idx[plan.interval].size
+        if 0 < n <= VERTEX_SCREEN_MAX:
+            chk = vertex_check(job, stage, network, q, {r: (cands[r], idx[r]) for r in idx})
+            idx = {r: v[chk["ok"]] for r, v in idx.items()}
+            n = idx[plan.interval].size
         empty = np.full(n, -1, dtype=np.int64)
         return StageOptions(stage_index, network, q, cands, core_roles, None, idx, empty, empty)
     fc = cands[plan.free]
