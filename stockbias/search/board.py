@@ -29,12 +29,12 @@ import numpy as np
 
 from ..analysis.check import CheckResult, analyze_stage
 from ..assign import ResolvedResistor
-from ..job import TOPOLOGY_NAMES, Job, Stage, stage_key_error
+from ..job import Job, Stage, stage_key_error
 from ..parts import Inventory, Resistor, Transistor
 from ..topologies import get_network
 from .board_model import BoardModel, Choice, LineInfo, StageSetup
 from .board_options import StageOptions, stage_options
-from .candidates import RoleCandidates, Shelf, build_shelf, micro, usable_transistors
+from .candidates import Shelf, build_shelf, micro, stage_networks, usable_transistors
 from .prepass import vertex_check
 
 __all__ = [
@@ -143,7 +143,7 @@ class BoardResult:
 
 # --- the engine shared by design BOARD and consolidate -----------------------------
 @dataclass
-class _Universe:
+class Universe:
     """Resistor lines the board may take (stock lines, then parts from outside the stock)."""
 
     lines: list[Resistor]
@@ -152,9 +152,9 @@ class _Universe:
     value_id: dict[float, int]
 
 
-def _universe(shelf: Shelf) -> _Universe:
+def universe_of(shelf: Shelf) -> Universe:
     vals = [float(v) for v in shelf.values]
-    return _Universe(list(shelf.lines), [r.qty for r in shelf.lines], vals,
+    return Universe(list(shelf.lines), [r.qty for r in shelf.lines], vals,
                      {v: i for i, v in enumerate(vals)})
 
 
@@ -167,13 +167,19 @@ def board_objectives(job: Job) -> tuple[tuple[str, ...], list[str]]:
     return objs or ("cost",), notes
 
 
-def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe: _Universe,
+def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe: Universe,
               objectives: tuple[str, ...], top: int, deadline: float,
-              progress: Progress | None = None, stock: bool = True
+              progress: Progress | None = None, stock: bool = True,
+              limit_transistors: bool = True
               ) -> tuple[str, list[list[Choice]], list[dict[str, int]], dict[str, float],
                          BoardModel, dict[tuple, CheckResult | None], dict[str, int]]:
-    """Ranked board choices; every returned stage passes :func:`analyze_stage`."""
-    tq: dict[str, int | None] = {q.part_id: q.qty for q in inventory.transistors}
+    """Ranked board choices; every returned stage passes :func:`analyze_stage`.
+
+    ``limit_transistors`` False: transistor lines are not held to their stock (they are not
+    being chosen, as in consolidation).
+    """
+    tq: dict[str, int | None] = {q.part_id: q.qty if limit_transistors else None
+                                 for q in inventory.transistors}
     info = LineInfo([universe.value_id.get(r.value_ohm, -1) for r in universe.lines],
                     universe.qty, tq, job.build.quantity)
     bm = BoardModel(setups, info, stock=stock)
@@ -197,11 +203,10 @@ def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe
         if progress is not None:
             progress("verifying", min(1.0, (len(ranked) + 0.5) / top))
         all_ok = True
-        for s, ch in enumerate(choices):
-            res = _verify(job, setups[s], bm.groups[ch.group], ch, verified, stats)
-            if res is None:
+        for ch in choices:
+            if _verify(job, bm.groups[ch.group], ch, universe.lines, verified, stats) is None:
                 all_ok = False
-                _forbid_failing(job, setups[s], bm, ch, verified, stats)
+                _forbid_failing(job, bm, ch, stats)
         if not all_ok:
             stats["reverify_rounds"] += 1
             if stats["reverify_rounds"] > MAX_REVERIFY_ROUNDS:
@@ -227,6 +232,11 @@ def _design(g: StageOptions, ch: Choice) -> dict[str, int]:
     return out
 
 
+def _design_key(g: StageOptions, ch: Choice) -> tuple:
+    """What identifies a stage design among the verified ones."""
+    return (g.stage, g.network, g.transistor.part_id, tuple(sorted(_design(g, ch).items())))
+
+
 def resolved_parts(g: StageOptions, design: dict[str, int], universe_lines: list[Resistor]
                    ) -> dict[str, ResolvedResistor]:
     parts = {}
@@ -242,17 +252,14 @@ def resolved_parts(g: StageOptions, design: dict[str, int], universe_lines: list
     return parts
 
 
-_LINES: dict[int, list[Resistor]] = {}
-
-
-def _verify(job: Job, setup: StageSetup, g: StageOptions, ch: Choice,
+def _verify(job: Job, g: StageOptions, ch: Choice, lines: list[Resistor],
             verified: dict[tuple, CheckResult | None], stats: dict[str, int]
             ) -> CheckResult | None:
-    key = (g.stage, g.network, g.transistor.part_id, tuple(sorted(_design(g, ch).items())))
+    key = _design_key(g, ch)
     if key not in verified:
-        stage = next(s for s in job.stages if s.name == setup.name)
+        stage = job.stages[g.stage]
         sj = stage_job(job, stage)
-        parts = resolved_parts(g, _design(g, ch), _LINES[id(g.cands[next(iter(g.cands))])])
+        parts = resolved_parts(g, _design(g, ch), lines)
         samples = 2000 if stage.target.yield_min is not None else 0
         res = analyze_stage(sj, stage, parts, g.transistor, samples=samples,
                             seed=job.search.seed, topology=g.network)
@@ -261,15 +268,14 @@ def _verify(job: Job, setup: StageSetup, g: StageOptions, ch: Choice,
     return verified[key]
 
 
-def _forbid_failing(job: Job, setup: StageSetup, bm: BoardModel, ch: Choice,
-                    verified: dict, stats: dict[str, int]) -> None:
+def _forbid_failing(job: Job, bm: BoardModel, ch: Choice, stats: dict[str, int]) -> None:
     """Forbid the failing stage design and every design of its run that fails a vertex."""
     g = bm.groups[ch.group]
     bm.forbid_design(ch)
     stats["stage_designs_forbidden"] += 1
     if g.free is None:
         return
-    stage = next(s for s in job.stages if s.name == setup.name)
+    stage = job.stages[g.stage]
     sj = stage_job(job, stage)
     designs = g.designs(ch.option)
     roles = tuple(designs[0])
@@ -282,7 +288,7 @@ def _forbid_failing(job: Job, setup: StageSetup, bm: BoardModel, ch: Choice,
 
 
 def build_board(job: Job, inventory: Inventory, setups: list[StageSetup],
-                universe: _Universe, status: str, ranked: list[list[Choice]],
+                universe: Universe, status: str, ranked: list[list[Choice]],
                 values: list[dict[str, int]], bm: BoardModel,
                 verified: dict[tuple, CheckResult | None]) -> list[BoardDesign]:
     """Ranked choices → :class:`BoardDesign` objects with BOMs and per-stage changes."""
@@ -291,20 +297,17 @@ def build_board(job: Job, inventory: Inventory, setups: list[StageSetup],
         stages = []
         for s, ch in enumerate(choices):
             g = bm.groups[ch.group]
-            key = (g.stage, g.network, g.transistor.part_id,
-                   tuple(sorted(_design(g, ch).items())))
-            res = verified[key]
+            res = verified[_design_key(g, ch)]
             assert res is not None
             changed = _changed(setups[s], g, _design(g, ch), universe)
-            stage = next(x for x in job.stages if x.name == setups[s].name)
             stages.append(BoardStage(setups[s].name, g.network, g.transistor, res, changed,
-                                     ic_margin_of(res, stage)))
+                                     ic_margin_of(res, job.stages[g.stage])))
         out.append(_board_design(rank, stages, job.build.quantity, inventory))
     return out
 
 
 def _changed(setup: StageSetup, g: StageOptions, design: dict[str, int],
-             universe: _Universe) -> dict[str, dict[str, Any]]:
+             universe: Universe) -> dict[str, dict[str, Any]]:
     if setup.current_network is None:
         return {}
     out = {}
@@ -373,19 +376,6 @@ def _board_design(rank: int, stages: list[BoardStage], build_qty: int,
                        changes=sum(len(s.changed) for s in stages), bom=bom)
 
 
-def stage_networks(job: Job, stage: Stage) -> list[str]:
-    if stage.topology == "any":
-        return [n for n in TOPOLOGY_NAMES
-                if n != "dual_supply" or job.supply.negative_volts is not None]
-    return [stage.topology]
-
-
-def register_lines(cands: dict[str, RoleCandidates], lines: list[Resistor]) -> None:
-    """Remember the line universe the tables index (for re-verification)."""
-    for c in cands.values():
-        _LINES[id(c)] = lines
-
-
 def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
                  time_limit_s: float | None = None, progress: Progress | None = None
                  ) -> BoardResult:
@@ -412,7 +402,7 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
     deadline = t0 + limit
     objectives, notes = board_objectives(job)
     shelf = build_shelf(job, inventory, pairs=False)
-    universe = _universe(shelf)
+    universe = universe_of(shelf)
     setups = []
     excluded: dict[str, list[dict[str, str]]] = {}
     n_opts = {}
@@ -426,10 +416,9 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
         qs, out = usable_transistors(sj, inventory)
         excluded[stage.name] = [{"part_id": q.part_id, "reason": why} for q, why in out]
         groups = []
-        for net_name in stage_networks(job, stage):
+        for net_name in stage_networks(job, stage.topology):
             net = get_network(net_name)
             cands = {r.name: shelf.candidates(r.optional, False) for r in net.roles}
-            register_lines(cands, universe.lines)
             for q in qs:
                 groups.append(stage_options(sj, stage, si, net_name, q, cands))
         n_opts[stage.name] = sum(g.size for g in groups)
@@ -467,8 +456,8 @@ def _board_notes(job: Job) -> list[str]:
 
 
 def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
-                  universe: _Universe, objectives: tuple[str, ...], status: str,
-                  deadline: float) -> dict[str, object]:
+                  universe: Universe, objectives: tuple[str, ...], status: str,
+                  deadline: float, limit_transistors: bool = True) -> dict[str, object]:
     """Why no board was found, and one change that would help."""
     if status == "unknown":
         return {"reason": "the time limit ran out before any board was found",
@@ -479,7 +468,7 @@ def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
         stage = next(s for s in job.stages if s.name == name)
         from .design import design
 
-        one = design(stage_job(job, replace(stage, topology=stage.topology)), inventory, top=1,
+        one = design(stage_job(job, stage), inventory, top=1,
                      time_limit_s=max(5.0, deadline - time.monotonic()))
         ex: Any = one.explanation
         text = ex.to_dict() if ex is not None else {}
@@ -489,7 +478,8 @@ def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
     # every stage has options: either the full check rules them out, or stock is shared
     status2, ranked, _v, _b, bm, _ver, _st = run_board(
         job, inventory, setups, universe, objectives, 1,
-        max(deadline, time.monotonic() + 10.0), stock=False)
+        max(deadline, time.monotonic() + 10.0), stock=False,
+        limit_transistors=limit_transistors)
     if not ranked:
         return {"reason": "no stage combination passes the full check at every corner",
                 "suggestion": "widen the IC window or lower the headroom of the tightest "
@@ -503,7 +493,9 @@ def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
             if int(c.arrangement[i]) >= 0:
                 pid = universe.lines[int(c.line_a[i])].part_id
                 need[pid] = need.get(pid, 0) + job.build.quantity
-        need[g.transistor.part_id] = need.get(g.transistor.part_id, 0) + job.build.quantity
+        if limit_transistors:
+            need[g.transistor.part_id] = (need.get(g.transistor.part_id, 0)
+                                          + job.build.quantity)
     for pid, n in sorted(need.items()):
         part = inventory.find_resistor(pid) or inventory.find_transistor(pid)
         if part is not None and n > part.qty:

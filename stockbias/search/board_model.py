@@ -108,7 +108,7 @@ class BoardModel:
                 self.o.append(ov)
                 stage_opts += ov
                 sel = m.new_bool_var(f"sel{s}_{gi}")
-                m.add(sum(ov) == sel) if ov else m.add(sel == 0)
+                m.add(sum(ov) == sel)
                 self.sel[gi] = sel
                 q = g.transistor
                 q_uses.setdefault(q.part_id, []).append(sel)
@@ -153,7 +153,6 @@ class BoardModel:
                             m.add(fv >= a).only_enforce_if(ov[k])
                         if b < hi_all:
                             m.add(fv <= b).only_enforce_if(ov[k])
-                    del lo_all
             part_upper += 1 + max((len(g.cands) for g in st.options), default=0) * 2
             if stage_opts:
                 m.add_exactly_one(stage_opts)
@@ -178,25 +177,16 @@ class BoardModel:
                     m.add_bool_or(vs).only_enforce_if(yv)
                     m.add_implication(yv, uv)
                 else:
-                    for v in vs:
-                        m.add_implication(v, uv)
+                    m.add_implication(vs[0], uv)
             lits = [v for _, v in lits]
             self.u[line] = uv
             qty = lines.qty[line]
             if stock and qty is not None:
                 m.add(sum(lits) * bq <= qty)
-        self.w = {}
-        for val, lits in value_uses.items():
-            wv = m.new_bool_var(f"w{val}")
-            for v in lits:
-                m.add_implication(v, wv)
-            self.w[val] = wv
+        self.w = {val: self._used(lits, f"w{val}") for val, lits in value_uses.items()}
         self.t = {}
         for pid, lits in q_uses.items():
-            tv = m.new_bool_var(f"t{pid}")
-            for v in lits:
-                m.add_implication(v, tv)
-            self.t[pid] = tv
+            self.t[pid] = self._used(lits, f"t{pid}")
             qty = lines.transistor_qty.get(pid)
             if stock and qty is not None:
                 m.add(sum(lits) * bq <= qty)
@@ -210,6 +200,13 @@ class BoardModel:
         self._fixing: list[int] = []
         self.part_upper = part_upper
         self.step_seconds: list[tuple[str, float, str]] = []
+
+    def _used(self, lits: list, name: str) -> cp_model.IntVar:
+        """A boolean at least every literal of ``lits`` (used when any of them is)."""
+        var = self.model.new_bool_var(name)
+        for v in lits:
+            self.model.add_implication(v, var)
+        return var
 
     @staticmethod
     def _uses(c, i: int, xv, line_uses: dict, value_uses: dict, stage: int) -> None:

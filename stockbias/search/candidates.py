@@ -256,3 +256,14 @@ def usable_transistors(job: Job, inventory: Inventory,
         else:
             keep.append(q)
     return keep, out
+
+
+def stage_networks(job: Job, topology: str) -> list[str]:
+    """The networks a stage searches: its topology, or for ``any`` every network the
+    supplies permit (``dual_supply`` needs a negative rail)."""
+    from ..job import TOPOLOGY_NAMES
+
+    if topology != "any":
+        return [topology]
+    return [n for n in TOPOLOGY_NAMES
+            if n != "dual_supply" or job.supply.negative_volts is not None]

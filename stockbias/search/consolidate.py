@@ -32,15 +32,14 @@ from ..parts import Inventory, Resistor, Transistor
 from ..topologies import get_network
 from .board import (
     BoardDesign,
-    _Universe,
-    _universe,
+    Universe,
     bom_of,
     bom_totals,
     build_board,
     explain_board,
-    register_lines,
     run_board,
     stage_job,
+    universe_of,
 )
 from .board_model import StageSetup
 from .board_options import stage_options
@@ -197,7 +196,7 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
     keep = set(keep)
     current = _current(job, inventory)
     shelf = build_shelf(job, inventory, pairs=False)
-    universe: _Universe = _universe(shelf)
+    universe: Universe = universe_of(shelf)
     line_of = {r.part_id: i for i, r in enumerate(universe.lines)}
     virtual: dict[tuple, int] = {}
     setups: list[StageSetup] = []
@@ -256,7 +255,6 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                     idx = 0
             cands[role.name] = table
             cur[role.name] = idx
-        register_lines(cands, universe.lines)
         opts = stage_options(sj, st, si, st.topology, q, cands)
         setups.append(StageSetup(st.name, [opts], st.topology, cur))
         if progress is not None:
@@ -265,10 +263,9 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                                                                       strict=True)],
                         job.build.quantity, inventory)
     # transistors stay: not limited by the model (the BOM flags a short line)
-    inv_free_q = Inventory(inventory.path, inventory.resistors,
-                           tuple(_unlimited(q) for q in inventory.transistors))
     status, ranked, values, bound, bm, verified, rstats = run_board(
-        job, inv_free_q, setups, universe, objectives, 1, deadline, progress)
+        job, inventory, setups, universe, objectives, 1, deadline, progress,
+        limit_transistors=False)
     designs = build_board(job, inventory, setups, universe, status, ranked, values, bm,
                           verified)
     after = designs[0] if designs else None
@@ -285,13 +282,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
         result.assumptions.append("the current board fails its targets in "
                                   f"{', '.join(failing)}; the consolidated one meets them")
     if after is None:
-        result.explanation = explain_board(job, inv_free_q, setups, universe, objectives,
-                                           status, deadline)
+        result.explanation = explain_board(job, inventory, setups, universe, objectives,
+                                           status, deadline, limit_transistors=False)
     result.solve_seconds = time.monotonic() - t0
     return result
 
-
-def _unlimited(q):
-    from dataclasses import replace
-
-    return replace(q, qty=10**12)

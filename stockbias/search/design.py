@@ -31,10 +31,17 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..analysis.check import CheckResult, analyze_stage
-from ..job import TOPOLOGY_NAMES, Job
+from ..job import Job
 from ..parts import Inventory, Transistor
 from ..topologies import get_network
-from .candidates import RoleCandidates, Shelf, build_shelf, micro, usable_transistors
+from .candidates import (
+    RoleCandidates,
+    Shelf,
+    build_shelf,
+    micro,
+    stage_networks,
+    usable_transistors,
+)
 from .model import ModelDesign
 from .prepass import (
     PLANS,
@@ -254,11 +261,7 @@ class _Search:
         self.pairs = job.build.allow_pairs and self.shelf.with_pairs is not None
         self.transistors, self.excluded = usable_transistors(job, inventory)
         topo = self.stage.topology
-        if topo == "any":
-            self.networks = [n for n in TOPOLOGY_NAMES
-                             if n != "dual_supply" or job.supply.negative_volts is not None]
-        else:
-            self.networks = [topo]
+        self.networks = stage_networks(job, topo)
         self.blocks: list[_Block] = []
         self.pool = _Pool()
         self.verified: dict[tuple, CheckResult | None] = {}
