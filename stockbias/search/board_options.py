@@ -39,6 +39,8 @@ from .prepass import (
     corners,
     cross_product_check,
     free_role_bounds,
+    free_role_keep,
+    free_role_range,
     ie_terms,
     materialise,
     rc_allowed_power,
@@ -152,20 +154,12 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
         return StageOptions(stage_index, network, q, cands, core_roles, None, idx, empty, empty)
     fc = cands[plan.free]
     h, low_need, ic_top = free_role_bounds(job, stage, network, q, cands, idx)
-    present = fc.value > 0
-    f_hi = float(np.min(fc.high[present] / fc.value[present])) if present.any() else 1.0
-    f_lo = float(np.max(fc.low[present] / fc.value[present])) if present.any() else 1.0
-    with np.errstate(invalid="ignore", divide="ignore"):
-        j1 = np.searchsorted(fc.value, np.where(np.isfinite(h), h / f_hi, h) * (1 + _REL),
-                             "right")
-        j0 = np.searchsorted(fc.value, low_need / f_lo * (1 - _REL), "left")
+    j0, j1 = free_role_range(fc, h, low_need)
     counts = np.maximum(j1 - j0, 0)
     total = int(counts.sum())
     row = np.repeat(np.arange(counts.size), counts)
     fj = np.repeat(j0, counts) + np.arange(total) - np.repeat(np.cumsum(counts) - counts, counts)
-    allowed = rc_allowed_power(job, stage, fc.rating[fj])
-    keep = ((fc.high[fj] <= h[row] * (1 + _REL)) & (fc.low[fj] >= low_need[row] * (1 - _REL))
-            & (ic_top[row] ** 2 * fc.high[fj] <= allowed * (1 + 1e-9)))
+    keep = free_role_keep(job, stage, fc, row, fj, h, low_need, ic_top)
     if not net.role(plan.free).optional:
         keep &= fc.arrangement[fj] >= 0
     row, fj = row[keep], fj[keep]

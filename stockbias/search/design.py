@@ -49,6 +49,8 @@ from .prepass import (
     corners,
     cross_product_check,
     free_role_bounds,
+    free_role_keep,
+    free_role_range,
     ie_terms,
     materialise,
     rc_allowed_power,
@@ -429,12 +431,7 @@ class _Search:
         fc = b.cands[b.free]
         h, low_need, ic_top = free_role_bounds(self.job, self.stage, b.network,
                                                b.transistor, b.cands, idx)
-        f_hi = float(np.min(fc.high / fc.value))
-        f_lo = float(np.max(fc.low / fc.value))
-        with np.errstate(invalid="ignore", divide="ignore"):
-            j1 = np.searchsorted(fc.value, np.where(np.isfinite(h), h / f_hi, h)
-                                 * (1 + _REL), "right")
-            j0 = np.searchsorted(fc.value, low_need / f_lo * (1 - _REL), "left")
+        j0, j1 = free_role_range(fc, h, low_need)
         first_col = {"cost": "cost", "part_count": "parts"}.get(first)
         levels = self._free_levels(b, first_col) if first_col is not None else None
         if levels is None:
@@ -521,10 +518,7 @@ class _Search:
         if free is not None:
             fc = b.cands[b.free]
             h, low_need, ic_top, row, fj = free
-            allowed = rc_allowed_power(self.job, self.stage, fc.rating[fj])
-            keep = ((fc.high[fj] <= h[row] * (1 + _REL))
-                    & (fc.low[fj] >= low_need[row] * (1 - _REL))
-                    & (ic_top[row] ** 2 * fc.high[fj] <= allowed * (1 + 1e-9)))
+            keep = free_role_keep(self.job, self.stage, fc, row, fj, h, low_need, ic_top)
             row, fj = row[keep], fj[keep]
             idx = {r: v[row] for r, v in idx.items()}
             idx[b.free] = fj

@@ -66,6 +66,8 @@ __all__ = [
     "cross_product_check",
     "enumerate_cores",
     "free_role_bounds",
+    "free_role_keep",
+    "free_role_range",
     "ie_terms",
     "materialise",
     "row_cuts",
@@ -382,6 +384,31 @@ def free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor,
         with np.errstate(divide="ignore"):
             low_need = np.where(g > 0, 1.0 / g, np.inf)
     return h, low_need, ic_top
+
+
+def free_role_range(fc: RoleCandidates, h: np.ndarray, low_need: np.ndarray
+                    ) -> tuple[np.ndarray, np.ndarray]:
+    """Per core, the superset [j0, j1) of the free role's sorted table whose nominal values
+    can meet the high-end bound ``h`` and the low-end need ``low_need`` (ohm) of
+    :func:`free_role_bounds`; :func:`free_role_keep` then filters exactly."""
+    present = fc.value > 0
+    f_hi = float(np.min(fc.high[present] / fc.value[present])) if present.any() else 1.0
+    f_lo = float(np.max(fc.low[present] / fc.value[present])) if present.any() else 1.0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        j1 = np.searchsorted(fc.value, np.where(np.isfinite(h), h / f_hi, h) * (1 + _REL),
+                             "right")
+        j0 = np.searchsorted(fc.value, low_need / f_lo * (1 - _REL), "left")
+    return j0, j1
+
+
+def free_role_keep(job: Job, stage: Stage, fc: RoleCandidates, row: np.ndarray,
+                   fj: np.ndarray, h: np.ndarray, low_need: np.ndarray,
+                   ic_top: np.ndarray) -> np.ndarray:
+    """Which (core ``row``, free candidate ``fj``) pairs meet the headroom, swing and
+    dissipation bounds of :func:`free_role_bounds` (each exact at a vertex)."""
+    allowed = rc_allowed_power(job, stage, fc.rating[fj])
+    return ((fc.high[fj] <= h[row] * (1 + _REL)) & (fc.low[fj] >= low_need[row] * (1 - _REL))
+            & (ic_top[row] ** 2 * fc.high[fj] <= allowed * (1 + 1e-9)))
 
 
 def rc_allowed_power(job: Job, stage: Stage, rating: np.ndarray) -> np.ndarray:
