@@ -142,6 +142,8 @@ def test_consolidate_impossible_board_exit_1(tmp_path: Path) -> None:
     assert payload["status"] == "infeasible"
     assert payload["explanation"]["stage"] == "input"
     assert payload["bom_after"] is None
+    # nothing was found, so nothing may claim to meet the targets
+    assert not any("consolidated one meets" in a for a in payload["assumptions"])
 
 
 def test_design_board_json_schema() -> None:

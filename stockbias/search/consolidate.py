@@ -280,7 +280,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
     failing = [n for n, ok in before_ok.items() if not ok]
     if failing:
         result.assumptions.append("the current board fails its targets in "
-                                  f"{', '.join(failing)}; the consolidated one meets them")
+                                  f"{', '.join(failing)}"
+                                  + ("; the consolidated one meets them" if after else ""))
     if after is None:
         result.explanation = explain_board(job, inventory, setups, universe, objectives,
                                            status, deadline, limit_transistors=False)
