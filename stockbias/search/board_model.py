@@ -303,6 +303,7 @@ class BoardModel:
             self.model.minimize(expr)
             solver = cp_model.CpSolver()
             solver.parameters.num_workers = 1
+            solver.parameters.catch_sigint_signal = False  # Ctrl-C reaches Python
             solver.parameters.random_seed = seed
             solver.parameters.max_time_in_seconds = max(deadline - time.monotonic(), 0.05)
             # core-based lower bounds suit sums of literals; cost has large coefficients

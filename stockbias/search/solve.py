@@ -35,6 +35,7 @@ class RankedSolve:
 def _solver(seed: int, seconds: float) -> cp_model.CpSolver:
     s = cp_model.CpSolver()
     s.parameters.num_workers = 1
+    s.parameters.catch_sigint_signal = False  # Ctrl-C reaches Python as KeyboardInterrupt
     s.parameters.random_seed = seed
     s.parameters.max_time_in_seconds = max(seconds, 0.01)
     return s
