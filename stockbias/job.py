@@ -81,11 +81,13 @@ class Target:
     gain_min: float | None = None
     gain_max: float | None = None
     yield_min: float | None = None
+    ic_set: float | None = None  # the job's ``ic`` when the window is ic ± ic_window_pct, A
 
     @property
     def ic(self) -> float:
-        """Centre of the window (geometric mean), A."""
-        return math.sqrt(self.ic_min * self.ic_max)
+        """The target current, A: the job's ``ic``, or, for a window given as ic_min and
+        ic_max, its centre (geometric mean)."""
+        return self.ic_set if self.ic_set is not None else math.sqrt(self.ic_min * self.ic_max)
 
 
 @dataclass(frozen=True)
@@ -353,7 +355,7 @@ class _Parser:
             raise self.error("yield_min is a fraction: more than 0 and at most 1", section,
                              "yield_min", t["yield_min"], occurrence)
         return Target(ic_min, ic_max, vce_min, q["swing_pk"], q["gain_min"], q["gain_max"],
-                      q["yield_min"])
+                      q["yield_min"], ic_set=q["ic"] if not has_bounds else None)
 
     def limits(self, t: dict[str, Any], section: str, base: Limits | None = None,
                occurrence: int = 0) -> Limits:
