@@ -107,8 +107,11 @@ def test_netlist_states_the_card_and_the_parts() -> None:
     for key in ("IS=", "BF=", "BR=", "NF=", "NR=", "XTB=", "XTI=", "EG=", "TNOM=27"):
         assert key in model
     assert "IS derived" in ex.text and "geometric mean of hFE" in ex.text
-    assert any(x.startswith("R_R1 ") and "CF-47K" in x and "at B3" in x for x in lines)
-    assert "R_REa e rail_e 2200 ; CF-2K2" in ex.text and "R_REb e rail_e 2200" in ex.text
+    # each part's id and location on a comment line just above its element card
+    at = lines.index("R_R1 0 b 47000")  # PNP: R1 ties the base to the grounded rail
+    assert lines[at - 1].startswith("* R_R1: CF-47K ") and lines[at - 1].endswith(" at B3")
+    at = lines.index("R_REa e rail_e 2200")
+    assert lines[at - 1].startswith("* R_REa: CF-2K2 ") and "R_REb e rail_e 2200" in lines
     assert "B_ICBO qb qc I = 2.5e-08 * pow(2, (temper - 25) / 10)" in ex.text  # PNP: B to C
     assert ".op" in lines and ".dc TEMP 0 55 5" in lines and lines[-1] == ".end"
     assert ex.text.isascii()

@@ -27,6 +27,7 @@ from pathlib import Path
 
 from stockbias.analysis.device import TNOM_DEFAULT_C, XTB_DEFAULT
 from stockbias.errors import StockbiasError
+from stockbias.inert_text import check_spice_name, netlist_comment, netlist_text
 from stockbias.topologies import Network, get_network, polarity_sign, rail_voltages
 
 __all__ = [
@@ -54,6 +55,8 @@ MODEL_CARD_DEFAULTS: dict[str, float] = {
 _NODE_NAMES = {"B": "b", "C": "c", "E": "e", "GND": "0"}
 _RAIL_NODE = {"RAIL_C": "rail_c", "RAIL_E": "rail_e"}
 _TIMEOUT_S = 60.0
+# Longest comment line, characters: the caller's own sentences fit; free text is cut earlier.
+_COMMENT_LIMIT = 2000
 
 
 class SimulatorError(StockbiasError):
@@ -111,27 +114,36 @@ def write_netlist(
     temp_c : float
         Circuit temperature, °C.
     title : str
-        Title line.
+        Title line (free text: made inert by :func:`~stockbias.inert_text.netlist_text`).
     comments : sequence of str, optional
-        Comment lines put after the title (``* `` is added).
+        Comment lines put after the title (``* `` is added; free text, made inert).
     role_parts : Mapping, optional
         role → (arrangement, [(ohm, label), ...]) to write a role as its stock
         parts: ``"single"`` (one part), ``"series"`` or ``"parallel"`` (two);
-        each label becomes an inline comment.  Roles not named here are
-        written from ``resistances``.
+        each label (free text, made inert) becomes a comment line naming the
+        element just above it.  Roles not named here are written from
+        ``resistances``.
     leakage : (float, float), optional
         (collector–base leakage at 25 °C, ampere; doubling step, °C): a
         behavioural current source from collector to base inside the ammeters
         that follows the circuit temperature (``temper``).
     card_comments : sequence of str, optional
-        Comment lines put just above the ``.model`` line.
+        Comment lines put just above the ``.model`` line (free text, made inert).
     analyses : sequence of str
-        Analysis lines (default ``.op`` alone).
+        Analysis lines written by the caller's code, never from a file (default
+        ``.op`` alone); each must be one line of printable ASCII.
 
     Returns
     -------
     str
-        The netlist, ending with ``.end``.
+        The netlist, ending with ``.end``.  Free text appears only on ``* ``
+        comment lines and the title line, as one line of printable ASCII each;
+        element, node and model names are from ``[A-Za-z0-9_]``.
+
+    Raises
+    ------
+    ValueError
+        For an unsafe role name or an analysis line that is not one printable line.
     """
     net = get_network(network)
     sign = polarity_sign(polarity)
@@ -139,8 +151,11 @@ def write_netlist(
     card = _card(model_card)
     rails = rail_voltages(net, pol, vcc, vee)
     nodes = dict(_NODE_NAMES)
-    lines = [" ".join(str(title).split()) or "stockbias stage"]
-    lines += [f"* {c}".rstrip() for c in comments]
+    for a in analyses:
+        if not a.isascii() or not a.isprintable():
+            raise ValueError(f"analysis line is not one printable ASCII line: {a!r}")
+    lines = [" ".join(netlist_text(title).split()) or "stockbias stage"]
+    lines += [netlist_comment(c, _COMMENT_LIMIT) for c in comments]
     lines.append(f"* network {net.name}, {pol}; values in ohm, volt, ampere")
     for rail, node in _RAIL_NODE.items():
         v = float(rails[rail])
@@ -150,6 +165,7 @@ def write_netlist(
             nodes[rail] = node
             lines.append(f"V_{rail} {node} 0 DC {_num(v)}")
     for role in net.roles:
+        check_spice_name(role.name)
         value = resistances.get(role.name)
         a, b = nodes[role.node_a], nodes[role.node_b]
         if role_parts is not None and role.name in role_parts:
@@ -178,7 +194,7 @@ def write_netlist(
             f"{_num(doubling)} C",
             f"B_ICBO {ends} I = {_num(icbo25)} * pow(2, (temper - 25) / {_num(doubling)})",
         ]
-    lines += [f"* {c}".rstrip() for c in card_comments]
+    lines += [netlist_comment(c, _COMMENT_LIMIT) for c in card_comments]
     params = [
         f"IS={_num(card['is_a'])}",
         f"BF={_num(card['bf'])}",
@@ -204,6 +220,10 @@ def write_netlist(
         *analyses,
         ".end",
     ]
+    # Every line is one printable ASCII line: nothing can start a card of its own.
+    bad = next((x for x in lines if not (x.isascii() and x.isprintable())), None)
+    if bad is not None:
+        raise ValueError(f"netlist line is not one printable ASCII line: {bad!r}")
     return "\n".join(lines) + "\n"
 
 
@@ -213,17 +233,22 @@ def _part_lines(role: str, a: str, b: str, arrangement: str,
     for value, _ in parts:
         if not (float(value) > 0 and math.isfinite(float(value))):
             raise ValueError(f"role {role}: resistance must be finite and > 0 (ohm)")
+    # A label is free text (part id, location): it goes on its own comment line
+    # naming the element, never onto the element card itself.
     if arrangement == "single" and len(parts) == 1:
         value, label = parts[0]
-        return [f"R_{role} {a} {b} {_num(value)}" + (f" ; {label}" if label else "")]
+        name = f"R_{role}"
+        return ([netlist_comment(f"{name}: {label}", _COMMENT_LIMIT)] if label else []) + [
+            f"{name} {a} {b} {_num(value)}"]
     if arrangement not in ("series", "parallel") or len(parts) != 2:
         raise ValueError(f"role {role}: a pair is 'series' or 'parallel' with two parts")
     (va, la), (vb, lb) = parts
     mid = f"{role.lower()}_mid" if arrangement == "series" else b
     out = [f"* {role}: {arrangement} pair"]
-    out.append(f"R_{role}a {a} {mid} {_num(va)}" + (f" ; {la}" if la else ""))
-    out.append(f"R_{role}b {mid if arrangement == 'series' else a} {b} {_num(vb)}"
-               + (f" ; {lb}" if lb else ""))
+    out += [netlist_comment(f"R_{role}a: {la}", _COMMENT_LIMIT)] if la else []
+    out.append(f"R_{role}a {a} {mid} {_num(va)}")
+    out += [netlist_comment(f"R_{role}b: {lb}", _COMMENT_LIMIT)] if lb else []
+    out.append(f"R_{role}b {mid if arrangement == 'series' else a} {b} {_num(vb)}")
     return out
 
 

@@ -14,6 +14,13 @@ exponential-model nominal point of ``check``: IS at 27 °C from IS at 25 °C,
 BF and BR at 27 °C by (300.15/298.15)^XTB.  Where the row has no IS, IS is
 derived from the middle of the VBE range at the hFE test current; BF is the
 geometric mean of the hFE range (a stock row has no BF of its own).
+
+Text from the stock file, the job and the command line (part ids, locations,
+stage names, paths) only ever reaches ``* `` comment lines and the title, made
+inert by :func:`stockbias.inert_text.netlist_text`: one line of printable
+ASCII, line breaks and control characters shown as ``<U+XXXX>``.  Element,
+node and model names are generated from the roles (``R_R1``, ``QSTAGE``) and a
+comment line above each element says which stock part it is.
 """
 
 from __future__ import annotations
@@ -29,6 +36,7 @@ from ..analysis.check import build_spec
 from ..analysis.spice import write_netlist
 from ..analysis.stage import evaluate
 from ..assign import ResolvedResistor
+from ..inert_text import netlist_text
 from ..job import Job
 from ..parts import Transistor
 from ..units import format_quantity
@@ -38,13 +46,19 @@ __all__ = ["ExportedNetlist", "export_netlist", "model_card"]
 _T25 = device.STOCK_REFERENCE_C + device.CELSIUS_TO_KELVIN
 _TNOM_C = device.TNOM_DEFAULT_C
 _TNOM = _TNOM_C + device.CELSIUS_TO_KELVIN
-_ASCII = {"Ω": "ohm", "±": "+/-", "µ": "u", "°C": "C", "–": "-", "‖": "||", "θ": "theta"}
+# Our own sentences may be long; free text from a file is capped by _free first.
+_OWN_LIMIT = 2000
 
 
 def _ascii(text: str) -> str:
-    for a, b in _ASCII.items():
-        text = text.replace(a, b)
-    return text.encode("ascii", "replace").decode("ascii")
+    """Our own text as one line of printable ASCII (``Ω`` → ``ohm``)."""
+    return netlist_text(text, _OWN_LIMIT)
+
+
+def _free(text: str) -> str:
+    """Free text from a file or the command line (part id, location, stage name,
+    path) as an inert, capped piece of a comment line."""
+    return netlist_text(text)
 
 
 def _q(value: float, unit: str) -> str:
@@ -120,9 +134,9 @@ def _part_label(p: ResolvedResistor, i: int) -> str:
     if p.off_stock and i >= len(p.parts):
         return f"not a stock part: {_q(p.value, 'ohm')} at +/-{100 * p.tol:.3g} %"
     part = p.parts[i]
-    label = (f"{part.part_id} {_q(part.value_ohm, 'ohm')} +/-{part.tolerance_pct:g} % "
+    label = (f"{_free(part.part_id)} {_q(part.value_ohm, 'ohm')} +/-{part.tolerance_pct:g} % "
              f"{_q(part.power_w, 'W')}")
-    return f"{label} at {part.location}" if part.location else label
+    return f"{label} at {_free(part.location)}" if part.location else label
 
 
 def export_netlist(job: Job, parts: Mapping[str, ResolvedResistor], transistor: Transistor,
@@ -176,9 +190,10 @@ def export_netlist(job: Job, parts: Mapping[str, ResolvedResistor], transistor: 
     env = job.environment
     sweep = _sweep(env.ambient_min_c, env.ambient_max_c)
     comments = [
-        f"stage '{stage.name}' of job {_ascii(job.path)}" + (f"; {_ascii(source)}"
-                                                             if source else ""),
-        f"{transistor.polarity} {transistor.part_id}: hFE {transistor.hfe_min:g}.."
+        f"stage '{_free(stage.name)}' of job {_free(job.path)}" + (f"; {_free(source)}"
+                                                                  if source else ""),
+        f"Q1 (model QSTAGE): {transistor.polarity} {_free(transistor.part_id)}: hFE "
+        f"{transistor.hfe_min:g}.."
         f"{transistor.hfe_max:g} at {_q(transistor.hfe_test_ic, 'A')}, VBE "
         f"{transistor.vbe_min:.3g}..{transistor.vbe_max:.3g} V, VCEO "
         f"{_q(transistor.vceo_max, 'V')}, PD {_q(transistor.pd_max_w, 'W')}",
@@ -205,7 +220,7 @@ def export_netlist(job: Job, parts: Mapping[str, ResolvedResistor], transistor: 
         analyses.append("* the ambient range is one temperature: no sweep")
     text = write_netlist(
         topo, resistances, transistor.polarity, s.volts, s.negative_volts, card, t_nom,
-        title=f"stockbias export: {topo} stage with {transistor.part_id}",
+        title=f"stockbias export: {topo} stage with {_free(transistor.part_id)}",
         comments=[_ascii(c) for c in comments], role_parts=role_parts,
         leakage=(icbo_nom, 10.0) if icbo_nom > 0 else None,
         card_comments=[_ascii(n) for n in notes], analyses=analyses)
