@@ -28,6 +28,7 @@ __all__ = [
     "parallel",
     "r_o",
     "r_pi",
+    "stage_response",
     "transconductance",
 ]
 
@@ -159,6 +160,53 @@ def _node_ratios(
         v_e = (b1 * a22 - a12 * b2) / det
         v_c = (a11 * b2 - a21 * b1) / det
     return np.asarray(v_e, dtype=float), np.asarray(v_c, dtype=float)
+
+
+def stage_response(
+    gm: ArrayLike,
+    g_pi: ArrayLike,
+    r_ac_load: ArrayLike,
+    re_unbypassed: ArrayLike = 0.0,
+    r_out: ArrayLike = np.inf,
+    r_feedback: ArrayLike = np.inf,
+    r_bias: ArrayLike = np.inf,
+) -> tuple[_Array, _Array]:
+    """Voltage gain v_c/v_b and input resistance of a stage, exact hybrid-π with rₒ.
+
+    The emitter and collector nodes are solved together (module notes); the
+    current drawn from the base drive is then gπ·(v_b − v_e) into the base,
+    (v_b − v_c)/RB into the feedback resistor and v_b/R_bias into the bias
+    network, all exact with rₒ and RE_u present.
+
+    Parameters
+    ----------
+    gm : float or ndarray
+        Transconductance ∂IC/∂VBE at fixed VCE, siemens.
+    g_pi : float or ndarray
+        Base conductance ∂IB/∂VBE, siemens (1/rπ).
+    r_ac_load : float or ndarray
+        AC collector load to AC ground (RC‖RL), ohm.
+    re_unbypassed : float or ndarray, optional
+        Unbypassed emitter resistance, ohm (default 0).
+    r_out : float or ndarray, optional
+        Transistor output resistance rₒ, ohm (default inf).
+    r_feedback : float or ndarray, optional
+        Collector–base feedback resistor, ohm (default inf: none).
+    r_bias : float or ndarray, optional
+        Bias network from base to AC ground, ohm (default inf: none).
+
+    Returns
+    -------
+    (ndarray, ndarray)
+        Gain, V/V (negative: the stage inverts), and input resistance, ohm.
+    """
+    g_m = _f(gm)
+    g_p = _f(g_pi)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        beta = g_m / g_p
+    v_e, v_c = _node_ratios(g_m, beta, r_ac_load, re_unbypassed, r_out, r_feedback)
+    i_in = g_p * (1.0 - v_e) + _conductance(r_feedback) * (1.0 - v_c) + _conductance(r_bias)
+    return v_c, _conductance(i_in)
 
 
 def ce_voltage_gain(

@@ -17,8 +17,12 @@ Axes of the tolerance box (DESIGN §2, "Extreme value analysis"):
 =============  ==========================================================
 ``vcc``        VCC·(1 ± tol)
 ``vee``        VEE·(1 ± tol), ``dual_supply`` only
-``R:<role>``   R·(1 ± tol)·(1 ± |tempco|·max|T − 25 °C|) — the tempco is
-               taken as ± (either sign), so its drift widens the band
+``R:<role>``   the part's band over tolerance and tempco drift across the
+               ambient range, independent of the ambient axis:
+               R·(1 ± tol)·(1 + tc·(T − 25 °C)) at its lowest and highest
+               (a signed tc drifts one way; an unsigned one either way,
+               ±|tc|·max|T − 25 °C|); a pair's exact band from its parts
+               (:mod:`stockbias.resistor_band`)
 ``hfe``        hFE min … max at 25 °C, moved to temperature with
                (T/298.15 K)^XTB
 ``vbe``        VBE min … max at 25 °C, moved with the VBE tempco
@@ -40,26 +44,19 @@ import numpy as np
 from ..topologies import Network, get_network
 from . import device
 from .operating_point import ACTIVE, OperatingPoint, solve_constant_vbe, solve_exponential
-from .small_signal import (
-    ce_voltage_gain,
-    collector_feedback_gain,
-    collector_feedback_input_resistance,
-    input_resistance,
-    parallel,
-    r_o,
-    r_pi,
-    transconductance,
-)
+from .small_signal import parallel, r_o, r_pi, stage_response, transconductance
 
 __all__ = [
     "AXIS_NOMINAL_RULE",
     "SMALL_SIGNAL_QUANTITIES",
     "DeviceSpec",
     "Evaluation",
+    "ResistorPiece",
     "ResistorSpec",
     "StagePoint",
     "StageSpec",
     "evaluate",
+    "gummel_poon_of",
     "self_heated_temperature",
 ]
 
@@ -76,19 +73,46 @@ AXIS_NOMINAL_RULE = {
 
 
 @dataclass(frozen=True)
+class ResistorPiece:
+    """One physical part of a role, as Monte Carlo draws it.
+
+    value : ohm; tol : fraction; tempco_ppm : ppm/°C; signed : the coefficient has that sign
+    (False: either sign, drawn uniform in ±|tempco_ppm|).
+    """
+
+    value: float
+    tol: float
+    tempco_ppm: float = 0.0
+    signed: bool = False
+
+
+@dataclass(frozen=True)
 class ResistorSpec:
-    """One resistor role.  value : ohm; tol, drift : fractions (0.05 = ±5 %)."""
+    """One resistor role.  value : ohm; tol, drift : fractions (0.05 = ±5 %).
+
+    The band is R·(1 ± tol)·(1 ± drift) unless ``band`` gives its exact (low, high) in ohm
+    (an asymmetric band: a signed tempco, a pair of unequal parts).  ``pieces`` and
+    ``arrangement`` (``single``, ``series``, ``parallel``) say what the role is built from,
+    so Monte Carlo can draw each part (empty: one part at ±tol, ±drift).
+    """
 
     value: float | np.ndarray
     tol: float | np.ndarray
     drift: float | np.ndarray = 0.0
+    band: tuple[float | np.ndarray, float | np.ndarray] | None = None
+    pieces: tuple[ResistorPiece, ...] = ()
+    arrangement: str = "single"
 
     @property
     def low(self) -> np.ndarray:
+        if self.band is not None:
+            return np.asarray(self.band[0], dtype=float)
         return np.asarray(self.value) * (1 - np.asarray(self.tol)) * (1 - np.asarray(self.drift))
 
     @property
     def high(self) -> np.ndarray:
+        if self.band is not None:
+            return np.asarray(self.band[1], dtype=float)
         return np.asarray(self.value) * (1 + np.asarray(self.tol)) * (1 + np.asarray(self.drift))
 
 
@@ -215,7 +239,7 @@ class StageSpec:
         if self.network.supply == "dual" and np.any(np.asarray(self.vee_tol) > 0):
             out.append("vee")
         out += [f"R:{role}" for role, spec in self.resistors.items()
-                if np.any(np.asarray(spec.tol) + np.asarray(spec.drift) > 0)]
+                if np.any(spec.high > spec.low)]
         if np.any(np.asarray(self.device.hfe_max) > np.asarray(self.device.hfe_min)):
             out.append("hfe")
         if np.any(np.asarray(self.device.vbe_max) > np.asarray(self.device.vbe_min)):
@@ -328,6 +352,20 @@ def solve_point(spec: StageSpec, point: StagePoint,
         op = solve_constant_vbe(spec.network, r, d.polarity, point.vcc, point.vee, beta, vbe,
                                 d.vce_sat, icbo)
         return op, beta
+    gp = gummel_poon_of(spec, point, temp)
+    op = solve_exponential(spec.network, r, d.polarity, point.vcc, point.vee, gp, t_k, icbo)
+    beta_dc = np.where(op.ib > 0, op.ic / np.where(op.ib > 0, op.ib, 1.0), np.asarray(gp.bf))
+    return op, np.asarray(beta_dc, dtype=float)
+
+
+def gummel_poon_of(spec: StageSpec, point: StagePoint, temp_c: np.ndarray) -> device.GummelPoon:
+    """Gummel–Poon parameters of the exponential model at a point, device at ``temp_c`` (°C).
+
+    IS at 25 °C comes from the row's IS (moved from TNOM) shifted by the point's VBE
+    within its range, or, without IS, from the point's VBE at the hFE test current;
+    BF is the point's hFE at 25 °C; both then move to ``temp_c``.
+    """
+    d = spec.device
     t25 = device.STOCK_REFERENCE_C + device.CELSIUS_TO_KELVIN
     nf = np.asarray(d.nf, dtype=float)
     if d.is_a is None:
@@ -337,11 +375,37 @@ def solve_point(spec: StageSpec, point: StagePoint,
                                               + device.CELSIUS_TO_KELVIN, d.xti, d.eg_ev)
         vbe_mid = 0.5 * (np.asarray(d.vbe_min) + np.asarray(d.vbe_max))
         is25 = is_nom * np.exp((vbe_mid - point.vbe) / (nf * device.thermal_voltage(t25)))
-    gp = device.gummel_poon_at(is25, point.hfe, d.br, d.nf, d.nr, d.vaf_v, d.xti, d.eg_ev,
-                               d.xtb, device.STOCK_REFERENCE_C, temp)
-    op = solve_exponential(spec.network, r, d.polarity, point.vcc, point.vee, gp, t_k, icbo)
-    beta_dc = np.where(op.ib > 0, op.ic / np.where(op.ib > 0, op.ib, 1.0), np.asarray(gp.bf))
-    return op, np.asarray(beta_dc, dtype=float)
+    return device.gummel_poon_at(is25, point.hfe, d.br, d.nf, d.nr, d.vaf_v, d.xti, d.eg_ev,
+                                 d.xtb, device.STOCK_REFERENCE_C, temp_c)
+
+
+def _exponential_small_signal(spec: StageSpec, point: StagePoint, op: OperatingPoint,
+                              temp_c: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """gm, gπ and rₒ of the Gummel–Poon equations at the solved point (S, S, ohm).
+
+    The derivatives of IC and IB in (VBE, VBC) are taken exactly and moved to
+    (VBE, VCE): gm = ∂IC/∂VBE + ∂IC/∂VBC (= IC/(NF·VT) − 1/rₒ in the active region),
+    1/rₒ = −∂IC/∂VBC, gπ = ∂IB/∂VBE.  The leakage source (ICBO) has no derivative;
+    ∂IB/∂VBC (the reverse-biased collector diode, at most IS/(BR·NR·VT)) is left out.
+    """
+    gp = gummel_poon_of(spec, point, temp_c)
+    vt = device.thermal_voltage(np.asarray(temp_c, dtype=float) + device.CELSIUS_TO_KELVIN)
+    vbe = np.asarray(op.vbe, dtype=float)
+    vbc = vbe - np.asarray(op.vce, dtype=float)
+    is_a, bf, br = (np.asarray(x, dtype=float) for x in (gp.is_a, gp.bf, gp.br))
+    vtf, vtr = np.asarray(gp.nf) * vt, np.asarray(gp.nr) * vt
+    with np.errstate(over="ignore"):
+        ef = np.exp(np.minimum(vbe / vtf, 700.0))
+        er = np.exp(np.minimum(vbc / vtr, 700.0))
+    inv_vaf = 1.0 / np.asarray(gp.vaf, dtype=float)
+    early = 1.0 - vbc * inv_vaf
+    i_f, i_r = is_a * (ef - 1.0), is_a * (er - 1.0)
+    dic_dvbe = is_a * ef / vtf * early
+    dic_dvbc = -is_a * er / vtr * early - (i_f - i_r) * inv_vaf - is_a * er / vtr / br
+    g_o = -dic_dvbc
+    with np.errstate(divide="ignore"):
+        ro = np.asarray(1.0 / g_o, dtype=float)
+    return dic_dvbe + dic_dvbc, is_a * ef / vtf / bf, ro
 
 
 SMALL_SIGNAL_QUANTITIES = frozenset({"gm", "gain", "gain_abs", "rin", "swing_to_cutoff"})
@@ -403,28 +467,32 @@ def evaluate(spec: StageSpec, point: StagePoint, *, small_signal: bool = True,
     if not small_signal:
         return Evaluation(op=op, quantities=q, beta=np.asarray(beta), temp_c=temp_c)
 
-    # Small-signal figures, only where the transistor is active.
+    # Small-signal figures, only where the transistor is active.  Constant VBE: the
+    # hand model gm = IC/VT, rπ = β/gm.  Exponential: the exact derivatives of the
+    # Gummel–Poon equations (gm = IC/(NF·VT) − 1/rₒ, gπ = IB/(NF·VT)).
     active = op.region == ACTIVE
-    vt = device.thermal_voltage(temp_c + device.CELSIUS_TO_KELVIN)
     ic_pos = np.where(active, op.ic, np.nan)
-    gm = transconductance(ic_pos, vt)
-    rpi = r_pi(beta, gm)
-    vcb = np.maximum(op.vce - op.vbe, 0.0)
-    ro = r_o(ic_pos, np.asarray(d.vaf_v, dtype=float), vcb)
+    if spec.model == "exponential":
+        gm_x, g_pi, ro = _exponential_small_signal(spec, point, op, temp_c)
+        gm = np.where(active, gm_x, np.nan)
+        g_pi = np.where(active, g_pi, np.nan)
+    else:
+        vt = device.thermal_voltage(temp_c + device.CELSIUS_TO_KELVIN)
+        gm = transconductance(ic_pos, vt)
+        g_pi = 1.0 / r_pi(beta, gm)
+        vcb = np.maximum(op.vce - op.vbe, 0.0)
+        ro = r_o(ic_pos, np.asarray(d.vaf_v, dtype=float), vcb)
     re_u: float | np.ndarray = 0.0
     if not spec.re_bypassed and "RE" in point.r:
         re_u = point.r["RE"]
     rc = point.r["RC"]
     if spec.network.name == "collector_feedback":
-        gain = collector_feedback_gain(gm, beta, rc, point.r["RB"], spec.load, re_u, ro)
-        rin = collector_feedback_input_resistance(point.r["RB"], gain, rpi, beta, re_u)
+        r_fb, r_bias = point.r["RB"], np.inf
+    elif spec.network.name == "divider":
+        r_fb, r_bias = np.inf, parallel(point.r["R1"], point.r["R2"])
     else:
-        gain = ce_voltage_gain(gm, beta, rc, spec.load, re_u, ro)
-        if spec.network.name == "divider":
-            r_bias = parallel(point.r["R1"], point.r["R2"])
-        else:
-            r_bias = point.r["RB"]
-        rin = input_resistance(r_bias, beta, rpi, re_u)
+        r_fb, r_bias = np.inf, point.r["RB"]
+    gain, rin = stage_response(gm, g_pi, parallel(rc, spec.load), re_u, ro, r_fb, r_bias)
     q["gm"] = gm
     q["gain"] = np.where(active, gain, np.nan)
     q["gain_abs"] = np.abs(q["gain"])
