@@ -15,6 +15,7 @@ from rich.console import Console
 from rich.table import Table
 
 from ..errors import InputError
+from ..inert_text import spreadsheet_row
 from ..selection import Need
 from ..stock_write import Reservation
 
@@ -32,16 +33,24 @@ def pick_order(needs: Sequence[Need]) -> list[Need]:
 
 
 def _row(n: Need) -> list[str]:
-    return [n.location, n.part_id, n.kind, n.description, " ".join(n.roles), str(n.per_board),
-            str(n.quantity), "" if n.in_stock is None else str(n.in_stock),
-            "" if n.remaining is None else str(n.remaining)]
+    # Text columns (location and part id come from the stock file) go through
+    # spreadsheet_cell, which quotes a formula-like lead with "'".  The counts
+    # (per_board, pull, in_stock, remaining) are integers we computed and stay
+    # numbers: a negative "remaining" (a short line) must add up in a spreadsheet.
+    return spreadsheet_row([n.location, n.part_id, n.kind, n.description, " ".join(n.roles),
+                            int(n.per_board), int(n.quantity), n.in_stock, n.remaining])
 
 
 def pick_list_csv(needs: Sequence[Need]) -> str:
-    """The pick list as CSV text (header :data:`PICK_LIST_COLUMNS`, ``\\n`` line ends)."""
+    """The pick list as CSV text (header :data:`PICK_LIST_COLUMNS`, ``\\n`` line ends).
+
+    A text cell that a spreadsheet would take as a formula (``=``, ``+``, ``-``,
+    ``@``, tab or carriage return first) starts with ``'`` instead; see
+    :func:`stockbias.inert_text.spreadsheet_cell`.
+    """
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(PICK_LIST_COLUMNS)
+    writer.writerow(spreadsheet_row(PICK_LIST_COLUMNS))
     for n in pick_order(needs):
         writer.writerow(_row(n))
     return buf.getvalue()
