@@ -1,46 +1,84 @@
 """The `stockbias` command: one typer app, one module per command group.
 
-Every error leaves as one line on stderr and an exit code (DESIGN §3):
-0 done, 1 a valid job that cannot be met, 2 bad input (also typer's own
-usage errors).  No traceback reaches the user for an error they caused.
+Every run ends in one of these exit codes, with at most one line on stderr
+for anything but success (DESIGN §3):
+
+* 0 done (a check that passes);
+* 1 a valid job that cannot be met (no feasible design, a failing check);
+* 2 bad input, also typer's own usage errors; ``stockbias`` alone prints the
+  help and exits 2 (no command given);
+* 3 internal error: an exception nobody anticipated.  One line names it and
+  the file in the system temporary folder that holds the full report;
+* 130 interrupted (Ctrl-C): no output file is written.
+
+No traceback reaches the user.
 """
 
 from __future__ import annotations
 
 import sys
 from collections.abc import Sequence
-from typing import Any
+from typing import Annotated, Any
 
 import typer
 from typer.core import TyperGroup
 
 try:  # typer >= 0.29 carries its own copy of click
-    from typer._click.exceptions import ClickException, UsageError
+    from typer._click.exceptions import ClickException, NoArgsIsHelpError, UsageError
 except ImportError:  # pragma: no cover - older typer depends on click
-    from click.exceptions import ClickException, UsageError  # type: ignore[no-redef]
+    from click.exceptions import (  # type: ignore[no-redef]
+        ClickException,
+        NoArgsIsHelpError,
+        UsageError,
+    )
 
+from .. import __version__
 from ..errors import StockbiasError, StockFileError
+from .failsafe import (
+    EXIT_BAD_INPUT,
+    EXIT_INTERNAL,
+    EXIT_INTERRUPTED,
+    interrupt_handled,
+    watch_interrupts,
+    write_crash_report,
+)
 
 
 def _flatten(message: str) -> str:
     return " ".join(part.strip() for part in message.splitlines() if part.strip())
 
 
+def _interrupted() -> None:
+    interrupt_handled.set()
+    typer.echo("stockbias: interrupted", err=True)
+    sys.exit(EXIT_INTERRUPTED)
+
+
 class _OneLineErrors(TyperGroup):
     """A command group whose errors are always one line and an exit code."""
+
+    def invoke(self, ctx: Any) -> Any:
+        try:
+            return super().invoke(ctx)
+        except KeyboardInterrupt:
+            # typer would turn it into a silent exit 130; say what happened
+            raise typer.Abort() from None
 
     def main(self, args: Sequence[str] | None = None, prog_name: str | None = None,
              complete_var: str | None = None, standalone_mode: bool = True,
              windows_expand_args: bool = True, **extra: Any) -> Any:
+        argv = list(sys.argv[1:] if args is None else args)
         try:
             rv = super().main(args=args, prog_name=prog_name, complete_var=complete_var,
                               standalone_mode=False, windows_expand_args=windows_expand_args,
                               **extra)
+        except NoArgsIsHelpError:  # the help is already shown; no command is a usage error
+            sys.exit(EXIT_BAD_INPUT)
         except UsageError as exc:
             where = f" ({exc.ctx.command_path})" if exc.ctx is not None else ""
             typer.echo(f"stockbias: usage error{where}: {_flatten(exc.format_message())}",
                        err=True)
-            sys.exit(2)
+            sys.exit(EXIT_BAD_INPUT)
         except StockFileError as exc:
             for line in exc.lines():
                 typer.echo(line, err=True)
@@ -51,13 +89,33 @@ class _OneLineErrors(TyperGroup):
         except ClickException as exc:
             typer.echo(f"stockbias: {_flatten(exc.format_message())}", err=True)
             sys.exit(exc.exit_code)
-        except typer.Abort:
-            typer.echo("stockbias: aborted", err=True)
-            sys.exit(130)
+        except (typer.Abort, KeyboardInterrupt):
+            _interrupted()
+        except OSError as exc:
+            if exc.filename is None:
+                _internal_error(exc, argv)
+            # a file the user named cannot be read or written: their input, not our bug
+            typer.echo(f"{exc.filename}: {exc.strerror or _flatten(str(exc))}", err=True)
+            sys.exit(EXIT_BAD_INPUT)
+        except Exception as exc:
+            _internal_error(exc, argv)
         code = rv if isinstance(rv, int) else 0
+        if code == EXIT_INTERRUPTED:  # typer's own reading of Ctrl-C while parsing options
+            _interrupted()
         if standalone_mode:
             sys.exit(code)
         return code
+
+
+def _internal_error(exc: BaseException, argv: list[str]) -> None:
+    """One line for an exception nobody anticipated, the traceback in a report; exit 3."""
+    path = write_crash_report(exc, ["stockbias", *argv])
+    where = (f"a full report was written to {path}" if path
+             else "no report could be written (the temporary folder is not writable)")
+    typer.echo(f"stockbias: internal error: {type(exc).__name__}: "
+               f"{_flatten(str(exc))[:300]}; {where}; please attach it to a bug report",
+               err=True)
+    sys.exit(EXIT_INTERNAL)
 
 
 app = typer.Typer(
@@ -67,7 +125,23 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
+    context_settings={"help_option_names": ["-h", "--help"]},
 )
+
+
+def _show_version(value: bool) -> None:
+    if value:
+        typer.echo(f"stockbias {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _root(
+    version: Annotated[bool, typer.Option(
+        "--version", callback=_show_version, is_eager=True,
+        help="Show the version and exit.")] = False,
+) -> None:
+    """Bias bipolar transistor stages with the parts on your shelf."""
 
 
 def _register() -> None:
@@ -90,9 +164,13 @@ def _register() -> None:
     app.add_typer(stock_cmd.app, name="stock")
 
 
-_register()
+try:
+    _register()
+except KeyboardInterrupt:  # pragma: no cover - Ctrl-C while the commands load
+    _interrupted()
 
 
 def main() -> None:
-    """Console-script entry point."""
+    """Console-script entry point (Ctrl-C ends even a long native solve, see failsafe)."""
+    watch_interrupts()
     app()
