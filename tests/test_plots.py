@@ -64,12 +64,9 @@ def test_histogram_needs_monte_carlo() -> None:
 
 def test_design_plot_from_a_hand_made_list(tmp_path: Path) -> None:
     designs = [
-        {"rank": 1, "topology": "divider", "cost": 0.07,
-         "constraints": [{"name": "ic_min", "margin": 1.2e-4}, {"name": "ic_max", "margin": 3e-5}]},
-        {"rank": 2, "topology": "collector_feedback", "cost": 0.09,
-         "constraints": [{"name": "ic_min", "margin": 2.5e-4}, {"name": "ic_max", "margin": 2e-4}]},
-        {"rank": 3, "topology": "divider", "cost": 0.11,
-         "constraints": [{"name": "ic_min", "margin": -1e-5}, {"name": "ic_max", "margin": 4e-4}]},
+        {"rank": 1, "topology": "divider", "cost": 0.07, "ic_margin": 0.02},
+        {"rank": 2, "topology": "collector_feedback", "cost": 0.09, "ic_margin": 0.1333},
+        {"rank": 3, "topology": "divider", "cost": 0.11, "ic_margin": -0.0067},
     ]
     paths = write_design_plots(designs, tmp_path)
     assert [p.name for p in paths] == ["design_cost_margin.png", "design_cost_margin.svg"]
@@ -108,13 +105,22 @@ def test_importing_the_package_does_not_import_matplotlib() -> None:
 
 def test_design_plot_labels_tied_designs_once() -> None:
     """Designs at the same cost and margin share one label; equal costs are staggered."""
-    def d(rank: int, cost: float, m_lo: float) -> dict:
-        return {"rank": rank, "cost": cost, "topology": "divider",
-                "constraints": [{"name": "ic_min", "margin": m_lo},
-                                {"name": "ic_max", "margin": 1.0}]}
-    fig = design_margin_figure([d(1, 0.1, 2e-5), d(2, 0.1, 2e-5), d(3, 0.1, 5e-5),
-                                d(4, 0.2, 2e-5)])
+    def d(rank: int, cost: float, margin: float) -> dict:
+        return {"rank": rank, "cost": cost, "topology": "divider", "ic_margin": margin}
+    fig = design_margin_figure([d(1, 0.1, 0.02), d(2, 0.1, 0.02), d(3, 0.1, 0.05),
+                                d(4, 0.2, 0.02)])
     texts = [t for t in fig.axes[0].texts]
     assert sorted(t.get_text() for t in texts) == ["#1, #2", "#3", "#4"]
     offsets = {t.get_text(): t.xyann[1] for t in texts}
     assert offsets["#1, #2"] != offsets["#3"]           # same cost: staggered
+
+
+def test_design_plot_margin_is_percent_of_target() -> None:
+    """The x axis is the designs' ic_margin in % of the target (one unit with the tables)."""
+    fig = design_margin_figure([{"rank": 1, "cost": 0.1, "topology": "divider",
+                                 "ic_margin": 0.0425}])
+    ax = fig.axes[0]
+    xs = ax.collections[0].get_offsets()[:, 0]
+    assert list(xs) == pytest.approx([4.25], abs=1e-12)   # hand calculation: 0.0425 → 4.25 %
+    assert "% of the target" in ax.get_xlabel()
+    assert "IC target" in ax.get_xlabel() and "min(" in ax.get_xlabel()

@@ -54,8 +54,7 @@ def test_report_is_self_contained_and_complete(check_result) -> None:
                                         "parts": {"R1": {"part_id": ["CF-22K", "CF-22K"],
                                                          "value_ohm": 44e3,
                                                          "arrangement": "series"}},
-                                        "constraints": [{"name": "ic_min", "margin": 1e-4},
-                                                        {"name": "ic_max", "margin": 2e-4}]}])
+                                        "ic_margin": 0.0667}])
     parser = _Tags()
     parser.feed(text)
     tags = [t for t, _ in parser.tags]

@@ -15,22 +15,35 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..assign import ResolvedResistor, resolve_resistor
+from ..assign import ResolvedResistor, resolve_resistor, tempco_assumption
 from ..errors import InputError
 from ..job import Job, Stage
 from ..parts import Inventory, Transistor
 from ..topologies import get_network
 from . import device
-from .constraints import ConstraintResult, Limit, evaluate_limits, stage_limits
+from .constraints import ConstraintResult, Limit, evaluate_limits, ic_margin, stage_limits
 from .montecarlo import MonteCarloResult, monte_carlo
-from .stage import DeviceSpec, ResistorSpec, StageSpec, evaluate, solve_point
+from .stage import DeviceSpec, StageSpec, evaluate, solve_point
 from .thermal import self_heated_point
 from .worst_case import REPORTED, WorstCase, point_at_unit, rss, worst_case
 
-__all__ = ["CheckResult", "analyze", "analyze_stage", "build_spec", "check_roles"]
+__all__ = ["CheckResult", "analyze", "analyze_stage", "build_spec", "check_roles",
+           "not_active_reason"]
 
 NOMINAL_KEYS = ("ic", "ib", "ie", "vb", "vc", "ve", "vce", "supply_power", "pd")
-ACTIVE_ONLY = ("gm", "gain", "rin")
+#: Nominal figures that only mean something in the active region (β is IC/IB there; in
+#: saturation IC/IB is a forced ratio, not the device's current gain).
+ACTIVE_ONLY = ("beta", "gm", "gain", "rin")
+STABILITY_KEYS = ("s_icbo", "s_vbe", "s_beta")
+RSS_KEYS = ("ic", "vce")
+
+
+def not_active_reason(region: str) -> str | None:
+    """Why the active-region figures are withheld at the nominal point (None when active)."""
+    if region == "active":
+        return None
+    state = "cut off" if region == "cutoff" else region
+    return f"{state} at the nominal point: active-region figures do not apply"
 
 
 @dataclass(frozen=True)
@@ -44,19 +57,28 @@ class CheckResult:
     parts: dict[str, ResolvedResistor]
     nominal: dict[str, object]
     worst: WorstCase
-    rss: dict[str, dict[str, float]]
+    rss: dict[str, object]   # "ic", "vce": {nominal, min, max} or None, and "reason"
     monte_carlo: MonteCarloResult | None
     constraints: list[ConstraintResult]
-    stability: dict[str, float]
+    stability: dict[str, float | str | None]
     thermal: dict[str, object]
     assumptions: list[str]
     warnings: list[str]
     cautions: list[str]
     axes: tuple[str, ...] = field(default_factory=tuple)
+    ic_target: float = math.nan  # A: the target current the IC margin is a fraction of
 
     @property
     def ok(self) -> bool:
         return all(c.ok for c in self.constraints)
+
+    @property
+    def ic_margin(self) -> float:
+        """Smallest distance of the worst-case IC to the window, as a fraction of the target
+        (:func:`stockbias.analysis.constraints.ic_margin`)."""
+        by = {c.name: c for c in self.constraints}
+        lo, hi = by["ic_min"], by["ic_max"]
+        return float(ic_margin(lo.worst, hi.worst, lo.limit, hi.limit, self.ic_target))
 
     @property
     def failing(self) -> list[ConstraintResult]:
@@ -74,6 +96,7 @@ class CheckResult:
             "rss": self.rss,
             "monte_carlo": None if self.monte_carlo is None else self.monte_carlo.to_dict(),
             "constraints": [c.to_dict() for c in self.constraints],
+            "ic_margin": self.ic_margin, "ic_target": self.ic_target,
             "stability": self.stability,
             "thermal": self.thermal,
             "assumptions": self.assumptions, "warnings": self.warnings,
@@ -85,8 +108,7 @@ def build_spec(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
                transistor: Transistor, topology: str | None = None) -> StageSpec:
     """The :class:`StageSpec` of a stage with resolved parts."""
     env = job.environment
-    span = max(abs(env.ambient_min_c - 25.0), abs(env.ambient_max_c - 25.0))
-    resistors = {role: ResistorSpec(p.value, p.tol, abs(p.tempco_ppm) * 1e-6 * span)
+    resistors = {role: p.spec(env.ambient_min_c, env.ambient_max_c)
                  for role, p in parts.items()}
     return StageSpec(
         network=get_network(topology or stage.topology), resistors=resistors,
@@ -108,15 +130,23 @@ def _nominal(spec: StageSpec) -> dict[str, object]:
     for role in spec.resistors:
         out[f"p_{role}"] = _scalar(ev.quantities[f"p_{role}"])
     out["region"] = region
-    out["beta"] = _scalar(ev.beta)
     out["temperature_c"] = spec.nominal_ambient_c
+    values = {"beta": ev.beta, **{k: ev.quantities[k] for k in ACTIVE_ONLY if k != "beta"}}
     for k in ACTIVE_ONLY:  # never active-region figures for a saturated or cut-off point
-        out[k] = _scalar(ev.quantities[k]) if region == "active" else None
+        out[k] = _scalar(values[k]) if region == "active" else None
+    out["not_active_reason"] = not_active_reason(region)
     return out
 
 
-def _stability(spec: StageSpec) -> dict[str, float]:
-    """S_ICBO, S_VBE, S_β as numerical derivatives of IC at the nominal point."""
+def _stability(spec: StageSpec, region: str) -> dict[str, float | str | None]:
+    """S_ICBO, S_VBE, S_β as numerical derivatives of IC at the nominal point.
+
+    They describe how the active-region IC moves; at a saturated or cut-off nominal point
+    they are None with the reason.
+    """
+    reason = not_active_reason(region)
+    if reason is not None:
+        return {**dict.fromkeys(STABILITY_KEYS), "reason": reason}
     p0 = spec.nominal_point()
     t = spec.nominal_ambient_c
     scale = _scalar(device.beta_at(1.0, t + device.CELSIUS_TO_KELVIN,
@@ -135,6 +165,7 @@ def _stability(spec: StageSpec) -> dict[str, float]:
         / ((icbo0 + h_i - max(icbo0 - h_i, 0.0)) * leak),
         "s_vbe": (ic_at(vbe=vbe0 + h_v) - ic_at(vbe=vbe0 - h_v)) / (2 * h_v),
         "s_beta": (ic_at(hfe=hfe0 + h_b) - ic_at(hfe=hfe0 - h_b)) / (2 * h_b * scale),
+        "reason": None,
     }
 
 
@@ -185,6 +216,9 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
     high = {q: np.asarray(b.max) for q, b in wc.bounds.items()}
     low["non_active_corners"] = high["non_active_corners"] = np.asarray(
         float(wc.non_active_corners))
+    for lim in limits:  # a quantity undefined at every corner has no bound: NaN
+        low.setdefault(lim.quantity, np.asarray(math.nan))
+        high.setdefault(lim.quantity, np.asarray(math.nan))
     needed = job.supply.max_ce_voltage
     low["vceo_needed"] = high["vceo_needed"] = np.asarray(needed)
     thermal = _thermal(spec, wc)
@@ -193,8 +227,12 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
         extra.append(Limit("thermal_runaway", "runaway_factor", "max", 1.0, "",
                            "∂PD/∂TJ·θJA below 1 at the hottest corner"))
         low["runaway_factor"] = high["runaway_factor"] = np.asarray(thermal["runaway_factor"])
-    # Quantities that are only defined in the active region are NaN at a saturated corner:
-    # their limits fail there (evaluate_limits counts NaN as failing).
+    # Quantities that are only defined in the active region (gain, swing to cut-off) are
+    # NaN at a saturated or cut-off corner, and the vertex bounds above skip those corners.
+    # Their limits state the value such a corner takes (Limit.outside_active: 0, the stage
+    # does not amplify or swing there), and evaluate_limits folds it in: such a corner fails
+    # gain_min and swing_cutoff and is named as their worst corner below; it never exceeds
+    # gain_max.
     margins = evaluate_limits([*limits, *extra], low, high)
     results: list[ConstraintResult] = []
     for lim in [*limits, *extra]:
@@ -208,6 +246,10 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
         else:
             worst = b.min if lim.kind == "min" else b.max
             corner = b.corner_min if lim.kind == "min" else b.corner_max
+        if lim.outside_active is not None and wc.non_active_corners:
+            v = lim.outside_active
+            if math.isnan(worst) or (v < worst if lim.kind == "min" else v > worst):
+                worst, corner = v, wc.non_active_example
         results.append(ConstraintResult(lim.name, _scalar(lim.limit), worst, m, m >= 0,
                                         lim.unit, lim.description, corner))
     mc = None
@@ -224,12 +266,16 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
     elif yield_limit is not None:
         raise InputError("the job sets yield_min, so the check needs Monte Carlo samples "
                          "(--samples more than 0)", column="--samples", text=str(samples))
-    rss_out = {}
-    for q in ("ic", "vce"):
-        nom, lo, hi = rss(spec, q)
-        rss_out[q] = {"nominal": nom, "min": lo, "max": hi}
     warnings = [w for p in parts.values() for w in p.warnings]
     nominal = _nominal(spec)
+    region = str(nominal["region"])
+    # RSS spreads are first-order sensitivities of the active-region point
+    reason = not_active_reason(region)
+    rss_out: dict[str, object] = {**dict.fromkeys(RSS_KEYS), "reason": reason}
+    if reason is None:
+        for q in RSS_KEYS:
+            nom, lo, hi = rss(spec, q)
+            rss_out[q] = {"nominal": nom, "min": lo, "max": hi}
     ic_nom = float(nominal["ic"])  # type: ignore[arg-type]
     if ic_nom > 0 and (ic_nom > 10 * transistor.hfe_test_ic or
                        ic_nom < transistor.hfe_test_ic / 10):
@@ -246,13 +292,13 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
     if not thermal.get("theta_ja_from_data"):
         assumptions.append(f"θJA {thermal['theta_ja']:.3g} °C/W derived from the PD rating "
                            "(linear derating to TJ max)")
-    assumptions.append("resistor tempco taken as ± its magnitude over the ambient range")
+    assumptions.append(tempco_assumption(parts))
     return CheckResult(
         stage=stage.name, topology=network.name, model=job.search.model,
         transistor=transistor, parts=dict(parts), nominal=nominal, worst=wc, rss=rss_out,
-        monte_carlo=mc, constraints=results, stability=_stability(spec), thermal=thermal,
-        assumptions=assumptions, warnings=warnings,
-        cautions=cautions(job, results, thermal), axes=wc.axes)
+        monte_carlo=mc, constraints=results, stability=_stability(spec, region),
+        thermal=thermal, assumptions=assumptions, warnings=warnings,
+        cautions=cautions(job, results, thermal), axes=wc.axes, ic_target=stage.target.ic)
 
 
 def cautions(job: Job, results: list[ConstraintResult], thermal: dict[str, object]) -> list[str]:
@@ -337,6 +383,7 @@ def analyze(job: Job, values: Mapping[str, str], transistor: str,
         raise InputError(f"no transistor with that part id in {inventory.path}; transistors: "
                          f"{ids}", column="--transistor", text=transistor)
     tol = job.build.default_tolerance_pct if tolerance_pct is None else tolerance_pct
-    parts = {role: resolve_resistor(role, text, inventory, tol)
+    ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
+    parts = {role: resolve_resistor(role, text, inventory, tol, ambient=ambient)
              for role, text in values.items()}
     return analyze_stage(job, stage, parts, t, samples=samples, seed=seed)

@@ -5,6 +5,10 @@ Monte Carlo yield (per drawn board) and the search (arrays over candidates).
 A limit names the quantity it bounds, whether that quantity must stay at or
 above (``"min"``) or at or below (``"max"``) the limit, and the limit itself
 in the quantity's unit.  The margin is positive when the constraint passes.
+
+The IC margin that ranks and reports designs has one definition, :func:`ic_margin`
+(DESIGN §2, objective ``ic_margin``): the smallest distance of the worst-case IC to the
+window, as a fraction of the target current (shown in % of the target).
 """
 
 from __future__ import annotations
@@ -19,12 +23,46 @@ from ..job import Job, Stage
 from .ratings import allowed_resistor_power, transistor_pd_allowed
 from .stage import StageSpec
 
-__all__ = ["ConstraintResult", "Limit", "evaluate_limits", "stage_limits"]
+__all__ = ["IC_MARGIN_DEFINITION", "ConstraintResult", "Limit", "evaluate_limits", "ic_margin",
+           "stage_limits"]
+
+#: The IC margin as arithmetic, printed once wherever the margin is shown.
+IC_MARGIN_DEFINITION = ("IC margin = min(IC worst-case min − IC min, IC max − IC worst-case max)"
+                        " / IC target, in % of the target")
+
+
+def ic_margin(ic_low: float | np.ndarray, ic_high: float | np.ndarray, ic_min: float,
+              ic_max: float, ic_target: float) -> float | np.ndarray:
+    """The smallest distance of the worst-case IC to the window, as a fraction of the target.
+
+    Parameters
+    ----------
+    ic_low, ic_high : float or ndarray
+        Worst-case lowest and highest collector current, A.
+    ic_min, ic_max : float
+        The target window, A.
+    ic_target : float
+        The target current, A (``Target.ic``: the job's ``ic``, or the window's centre).
+
+    Returns
+    -------
+    float or ndarray
+        ``min(ic_low − ic_min, ic_max − ic_high) / ic_target``, dimensionless (negative: the
+        worst case leaves the window).
+    """
+    m = np.minimum(np.asarray(ic_low, dtype=float) - ic_min,
+                   ic_max - np.asarray(ic_high, dtype=float)) / ic_target
+    return float(m) if m.ndim == 0 else m
 
 
 @dataclass(frozen=True)
 class Limit:
-    """One constraint.  ``kind`` "min": quantity ≥ limit; "max": quantity ≤ limit."""
+    """One constraint.  ``kind`` "min": quantity ≥ limit; "max": quantity ≤ limit.
+
+    ``outside_active``: the value the quantity takes for this limit where the transistor is
+    saturated or cut off and the quantity itself is undefined (NaN); None: undefined, so the
+    limit fails there.
+    """
 
     name: str
     quantity: str
@@ -32,6 +70,7 @@ class Limit:
     limit: float | np.ndarray
     unit: str
     description: str
+    outside_active: float | None = None
 
 
 @dataclass(frozen=True)
@@ -77,11 +116,18 @@ def stage_limits(job: Job, stage: Stage, spec: StageSpec,
         out.append(Limit("swing_saturation", "swing_to_saturation", "min", t.swing_pk, "V",
                          "peak swing before saturation (VCE − VCE(sat))"))
         out.append(Limit("swing_cutoff", "swing_to_cutoff", "min", t.swing_pk, "V",
-                         "peak swing before cut-off (IC·(RC‖RL))"))
+                         "peak swing before cut-off (IC·(RC‖RL); 0 where saturated or cut "
+                         "off)", outside_active=0.0))
+    # A saturated or cut-off transistor does not amplify: its small-signal gain is taken as
+    # 0 there.  So such a corner fails gain_min (0 < gain_min, which job.py keeps positive),
+    # and it cannot exceed gain_max; the gain_max bound is the largest gain of the active
+    # corners (the active_region limit fails such a design on its own).
     if t.gain_min is not None:
-        out.append(Limit("gain_min", "gain_abs", "min", t.gain_min, "V/V", "|voltage gain|"))
+        out.append(Limit("gain_min", "gain_abs", "min", t.gain_min, "V/V",
+                         "|voltage gain| (0 where saturated or cut off)", outside_active=0.0))
     if t.gain_max is not None:
-        out.append(Limit("gain_max", "gain_abs", "max", t.gain_max, "V/V", "|voltage gain|"))
+        out.append(Limit("gain_max", "gain_abs", "max", t.gain_max, "V/V",
+                         "|voltage gain| (0 where saturated or cut off)", outside_active=0.0))
     if lim.supply_power_max is not None:
         out.append(Limit("supply_power", "supply_power", "max", lim.supply_power_max, "W",
                          "power drawn from the supplies"))
@@ -107,13 +153,27 @@ def evaluate_limits(limits: list[Limit], low: dict[str, np.ndarray],
                     high: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     """Margins of every limit given the lower and upper bounds of each quantity.
 
-    Returns name → margin array (positive passes; NaN bounds count as failing).
+    A NaN bound (the quantity is undefined at some corner: not active there) counts as
+    failing, unless the limit gives the quantity's value outside the active region
+    (``Limit.outside_active``).  Then, where ``high["non_active_corners"]`` shows a corner
+    that is not active, that value joins the bounds (the lower bound of a "min" limit is
+    at most it, the upper bound of a "max" limit at least it), and it stands in for a NaN
+    bound.  Callers that reduce over corners with ``nanmin``/``nanmax`` and callers whose
+    reduction propagates NaN get the same verdict for "min" limits.
+
+    Returns name → margin array (positive passes).
     """
     out = {}
+    not_active = high.get("non_active_corners")
     for lim in limits:
-        if lim.kind == "min":
-            m = np.asarray(low[lim.quantity], dtype=float) - lim.limit
-        else:
-            m = lim.limit - np.asarray(high[lim.quantity], dtype=float)
+        side = low if lim.kind == "min" else high
+        q = np.asarray(side[lim.quantity], dtype=float)
+        if lim.outside_active is not None:
+            v = lim.outside_active
+            if not_active is not None:
+                some = np.asarray(not_active, dtype=float) > 0
+                q = np.where(some, (np.fmin if lim.kind == "min" else np.fmax)(q, v), q)
+            q = np.where(np.isnan(q), v, q)
+        m = q - lim.limit if lim.kind == "min" else lim.limit - q
         out[lim.name] = np.where(np.isnan(m), -math.inf, m)
     return out

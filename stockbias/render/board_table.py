@@ -5,6 +5,7 @@ from __future__ import annotations
 from rich.console import Console
 from rich.table import Table
 
+from ..analysis.constraints import IC_MARGIN_DEFINITION
 from ..job import Job
 from ..units import format_quantity
 
@@ -40,7 +41,7 @@ def _stages_table(title: str, stages: list[dict], show_changes: bool) -> Table:
         roles += [r for r in s["parts"] if r not in roles]
     table = Table(title=title, title_justify="left")
     for col in ("stage", "topology", "transistor", *roles, "IC worst case", "VCE min",
-                "margin", *(("changed",) if show_changes else ())):
+                "IC margin", *(("changed",) if show_changes else ())):
         table.add_column(col)
     for s in stages:
         wc = s["worst_case"]
@@ -116,6 +117,7 @@ def render_board(console: Console, job: Job, result) -> None:
     if result.designs:
         best = result.designs[0]
         console.print(_bom_table("BOM of rank 1", best.bom, job.build.quantity))
+        console.print(f"{IC_MARGIN_DEFINITION}, each stage against its own target.")
         console.print("Every stage was re-verified with the same analysis as `stockbias check`.")
         _cautions(console, [s.check for s in best.stages])
     _explanation(console, result.explanation)
@@ -144,6 +146,7 @@ def render_consolidate(console: Console, job: Job, result) -> None:
         after = bom_totals(result.after.bom)
         saved = result.before["bom_lines"] - after["bom_lines"]
         console.print("After: " + _totals(after) + f" — {saved} BOM line(s) fewer")
+        console.print(f"{IC_MARGIN_DEFINITION}, each stage against its own target.")
         console.print("Every stage was re-verified with the same analysis as `stockbias check`.")
         _cautions(console, [s.check for s in result.after.stages])
     _explanation(console, result.explanation)

@@ -6,11 +6,11 @@ from rich.console import Console
 from rich.table import Table
 
 from ..analysis.check import CheckResult
-from ..analysis.constraints import ConstraintResult
+from ..analysis.constraints import IC_MARGIN_DEFINITION, ConstraintResult
 from ..job import Job
 from ..units import format_quantity
 
-__all__ = ["corner_text", "render_check", "render_constraints"]
+__all__ = ["CORNER_LEGEND", "corner_text", "render_check", "render_constraints"]
 
 _UNITS = {"ic": "A", "ib": "A", "ie": "A", "vb": "V", "vc": "V", "ve": "V", "vce": "V",
           "supply_power": "W", "pd": "W", "tj": "°C", "gain": "", "rin": "ohm"}
@@ -24,31 +24,53 @@ _AXIS_LABELS = {"vcc": "VCC", "vee": "|VEE|", "hfe": "hFE", "vbe": "VBE", "icbo"
 def _q(value: float, unit: str) -> str:
     if unit in ("", "corners"):
         return f"{value:.3g}"
+    if unit == "V/V":  # a voltage gain: a plain ratio, no scale prefix
+        return f"{value:.3g} V/V"
     return format_quantity(value, unit)
 
 
+#: What a corner in the tables means (the drift rule and the rail convention), one line.
+CORNER_LEGEND = (
+    "A corner names each parameter's setting (+ the high end of its range, − the low end, "
+    "~ a value inside) and the value the analysis used there: supplies as set, the negative "
+    "rail by magnitude (|VEE|+ is the largest magnitude); each resistor with its tolerance "
+    "and tempco drift applied (R·(1 ± tol)·(1 + tempco·(T − 25 °C)) at its extreme over the "
+    "ambient range, either sign for an unsigned tempco); β = hFE·(T/298.15 K)^XTB, "
+    "VBE = VBE(25 °C) − 2 mV/°C·(T − 25 °C) (exponential model: the VBE at the hFE test "
+    "current), ICBO doubling every 10 °C, at the device temperature: the ambient, or TJ "
+    "where the junction is self-heated.")
+
+_CORNER_UNITS = {"vcc": "V", "vee": "V", "vbe": "V", "icbo": "A"}
+
+
 def corner_text(corner: dict | None) -> str:
-    """A compact corner: ``VCC+ R1− R2+ hFE+ VBE− 55 °C`` (interior values spelled out)."""
+    """A corner with the values used: ``VCC+ 12.6 V, R1− 9.31 kΩ, hFE+ β 342, 55 °C``.
+
+    The sign after a name is the setting (+ high end, − low end, ~ inside); the value
+    beside it is the one the analysis used at the corner's device temperature
+    (``used``: β(T), VBE(T), ICBO(T); resistors with tolerance and drift).  The
+    negative rail is named by magnitude: ``|VEE|+`` is its largest magnitude.
+    """
     if not corner:
         return ""
     parts = []
     for axis, item in corner.items():
         setting, value = item["setting"], float(item["value"])
+        used = float(item.get("used", value))
         if axis == "junction_c":
-            parts.append(f"TJ {value:.3g} °C self-heated")
+            parts.append(f"TJ {used:.4g} °C self-heated")
             continue
         if axis == "ambient_c":
-            parts.append(f"{value:.3g} °C" if setting != "interior" else f"T~{value:.3g} °C")
+            parts.append(f"{used:.4g} °C" if setting != "interior" else f"TA~{used:.4g} °C")
             continue
         label = _AXIS_LABELS.get(axis, axis)
-        if axis == "vee":
-            setting = {"min": "max", "max": "min"}.get(setting, setting) if value < 0 else setting
-        if setting == "interior":
-            unit = {"vcc": "V", "vee": "V", "vbe": "V", "icbo": "A", "hfe": ""}.get(axis, "ohm")
-            parts.append(f"{label}~{_q(abs(value), unit)}")
+        mark = {"max": "+", "min": "−"}.get(setting, "~")
+        if axis == "hfe":
+            parts.append(f"{label}{mark} β {used:.4g}")
         else:
-            parts.append(f"{label}{'+' if setting == 'max' else '−'}")
-    return " ".join(parts)
+            unit = _CORNER_UNITS.get(axis, "ohm")
+            parts.append(f"{label}{mark} {format_quantity(abs(used), unit, digits=4)}")
+    return ", ".join(parts)
 
 
 def render_constraints(console: Console, constraints: list[ConstraintResult],
@@ -99,11 +121,15 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
                       "worst-case corner")
     render_constraints(console, result.constraints)
 
+    console.print(f"IC margin {100 * result.ic_margin:.2f} % of the target "
+                  f"{_q(result.ic_target, 'A')} ({IC_MARGIN_DEFINITION})")
+
     nom = result.nominal
     region = str(nom["region"])
-    console.print(f"[bold]Nominal Q-point[/bold] ({nom['temperature_c']:g} °C, β "
-                  f"{float(nom['beta']):.3g}, nominal values and supply): "  # type: ignore[arg-type]
-                  f"region {region.upper()}")
+    beta = "β n/a" if nom.get("beta") is None else \
+        f"β {float(nom['beta']):.3g}"  # type: ignore[arg-type]
+    console.print(f"[bold]Nominal Q-point[/bold] ({nom['temperature_c']:g} °C, {beta}, "
+                  f"nominal values and supply): region {region.upper()}")
     line = "  ".join(f"{_LABELS[k]} {_q(float(nom[k]), _UNITS[k])}"  # type: ignore[arg-type]
                      for k in ("ic", "ib", "vce", "vb", "vc", "ve", "pd", "supply_power"))
     console.print("  " + line)
@@ -112,9 +138,9 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
                       f"{_q(float(nom['rin']), 'ohm')}, gm "  # type: ignore[arg-type]
                       f"{_q(float(nom['gm']), 'A')}/V")  # type: ignore[arg-type]
     else:
-        console.print(f"  [yellow]The transistor is {region} at the nominal point: the voltages "
-                      "above are the real ones; no active-region figures (gain, gm, input "
-                      "resistance) are given.[/yellow]")
+        console.print(f"  [yellow]Not applicable: {nom['not_active_reason']} (β, gain, gm, "
+                      "input resistance, RSS spreads, stability factors); the voltages and "
+                      "currents above are the real ones.[/yellow]")
 
     wc = result.worst
     table = Table(title=f"Worst case over {wc.n_vertices} corners (extreme values; maxima of "
@@ -128,11 +154,13 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
             continue
         unit = _UNITS.get(q, "W")
         rss = result.rss.get(q)
-        rss_txt = f"{_q(rss['min'], unit)} … {_q(rss['max'], unit)}" if rss else ""
+        rss_txt = f"{_q(rss['min'], unit)} … {_q(rss['max'], unit)}" \
+            if isinstance(rss, dict) else ("n/a" if q in ("ic", "vce") else "")
         label = _LABELS.get(q, f"P {q[2:]}")
         table.add_row(label, _q(b.min, unit), _q(b.max, unit), rss_txt,
                       corner_text(b.corner_min), corner_text(b.corner_max))
     console.print(table)
+    console.print(CORNER_LEGEND, style="dim")
     if wc.non_active_corners:
         console.print(f"[yellow]{wc.non_active_corners} of {wc.n_vertices} corners are not in "
                       f"the active region ({', '.join(wc.regions_seen)}); e.g. at "
@@ -147,8 +175,13 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
                       f"(95 % interval {100 * y.low:.2f}–{100 * y.high:.2f} %); failing boards "
                       f"by constraint: {fails}")
     st = result.stability
-    console.print(f"[bold]Stability[/bold] at the nominal point: S_ICBO = {st['s_icbo']:.3g}, "
-                  f"S_VBE = {_q(st['s_vbe'], 'A')}/V, S_β = {_q(st['s_beta'], 'A')} per unit β")
+    if st.get("reason"):
+        console.print(f"[bold]Stability[/bold] factors: not applicable ({st['reason']})")
+    else:
+        console.print(f"[bold]Stability[/bold] at the nominal point: S_ICBO = "
+                      f"{float(st['s_icbo']):.3g}, S_VBE = "  # type: ignore[arg-type]
+                      f"{_q(float(st['s_vbe']), 'A')}/V, S_β = "  # type: ignore[arg-type]
+                      f"{_q(float(st['s_beta']), 'A')} per unit β")  # type: ignore[arg-type]
     th = result.thermal
     if "tj_self_heated_c" in th:
         source = "from the stock data" if th["theta_ja_from_data"] else \

@@ -5,6 +5,7 @@ from __future__ import annotations
 from rich.console import Console
 from rich.table import Table
 
+from ..analysis.constraints import IC_MARGIN_DEFINITION
 from ..job import Job
 from ..units import format_quantity
 
@@ -62,9 +63,9 @@ def render_design(console: Console, job: Job, result) -> None:
             table.add_row(*cells)
         console.print(table)
         console.print(f"IC window {format_quantity(t.ic_min, 'A')}–"
-                      f"{format_quantity(t.ic_max, 'A')}; margin = smallest distance of the "
-                      "worst-case IC to the window, as a share of the target. Every design "
-                      "was re-verified with the same analysis as `stockbias check`.")
+                      f"{format_quantity(t.ic_max, 'A')}, target {format_quantity(t.ic, 'A')}; "
+                      f"margin: {IC_MARGIN_DEFINITION}. Every design was re-verified with the "
+                      "same analysis as `stockbias check`.")
         cautions = {c for d in result.designs for c in d.check.cautions}
         for c in sorted(cautions):
             console.print(f"[yellow]Caution:[/yellow] {c}")

@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 
 from ..analysis.check import CheckResult
+from ..analysis.constraints import IC_MARGIN_DEFINITION
 from ..errors import InputError
 from ..job import Job
 
@@ -203,12 +204,10 @@ def ic_histogram_figure(result: CheckResult, job: Job) -> Any:
 
 
 def _ic_margin(design: Mapping[str, Any]) -> float | None:
-    """Worst-case IC margin of a design dict, A (smaller of the two window margins)."""
-    cons = design.get("constraints") or []
-    margins = [float(c["margin"]) for c in cons
-               if isinstance(c, Mapping) and c.get("name") in ("ic_min", "ic_max")
-               and c.get("margin") is not None]
-    return min(margins) if margins else None
+    """The design's ``ic_margin`` (fraction of the target, as every result reports it)."""
+    m = design.get("ic_margin")
+    return float(m) if isinstance(m, (int, float)) and not isinstance(m, bool) \
+        and math.isfinite(m) else None
 
 
 def design_margin_figure(designs: Sequence[Mapping[str, Any]], title: str = "") -> Any:
@@ -218,8 +217,8 @@ def design_margin_figure(designs: Sequence[Mapping[str, Any]], title: str = "") 
     ----------
     designs : sequence of dict
         Each with ``rank``, ``cost`` (stock-file currency), ``topology`` and
-        ``constraints`` holding the ``ic_min`` and ``ic_max`` margins, A (the
-        smaller one is plotted).
+        ``ic_margin`` (fraction of the target, see
+        :func:`stockbias.analysis.constraints.ic_margin`; plotted in % of the target).
     """
     import matplotlib as mpl
 
@@ -235,22 +234,22 @@ def design_margin_figure(designs: Sequence[Mapping[str, Any]], title: str = "") 
                    "fixed_base": "^"}
         for topo in dict.fromkeys(p[3] for p in points):
             sel = [p for p in points if p[3] == topo]
-            ax.scatter([p[2] * 1e6 for p in sel], [p[1] for p in sel], s=40,
+            ax.scatter([p[2] * 100 for p in sel], [p[1] for p in sel], s=40,
                        marker=markers.get(topo, "o"), facecolor="white", edgecolor="black",
                        lw=1.1, label=topo or "design", zorder=3)
         # designs at the same point share one label; labels of equal-cost designs are
         # staggered so that tied costs stay readable
         spots: dict[tuple[float, float], list[int]] = {}
         for rank, cost, margin, _ in points:
-            spots.setdefault((round(cost, 9), round(margin * 1e6, 3)), []).append(rank)
+            spots.setdefault((round(cost, 9), round(margin * 100, 6)), []).append(rank)
         per_cost: dict[float, int] = {}
-        for (cost, margin_ua), ranks in sorted(spots.items(), key=lambda kv: kv[1][0]):
+        for (cost, margin_pct), ranks in sorted(spots.items(), key=lambda kv: kv[1][0]):
             k = per_cost.get(cost, 0)
             per_cost[cost] = k + 1
-            ax.annotate(", ".join(f"#{r}" for r in ranks), (margin_ua, cost),
+            ax.annotate(", ".join(f"#{r}" for r in ranks), (margin_pct, cost),
                         textcoords="offset points", xytext=(5, 4 + 10 * k), fontsize=8)
         ax.axvline(0, color="#b0413e", ls="--", lw=1, label="zero margin (window edge)")
-        ax.set_xlabel("worst-case IC margin to the target window (µA)")
+        ax.set_xlabel(f"worst-case IC margin (% of the target)\n{IC_MARGIN_DEFINITION}")
         ax.set_ylabel("cost per board (stock-file currency)")
         ax.set_title(title or f"Cost against worst-case IC margin, top {len(points)} designs")
         ax.grid(True, color="0.9", lw=0.6)

@@ -20,11 +20,12 @@ from pathlib import Path
 from typing import Any
 
 from ..analysis.check import CheckResult
+from ..analysis.constraints import IC_MARGIN_DEFINITION
 from ..errors import InputError
 from ..job import Job
 from ..parts import Inventory
 from ..units import format_quantity
-from .check_table import corner_text
+from .check_table import CORNER_LEGEND, corner_text
 
 __all__ = ["CAUTION_FOOTER", "render_report", "render_report_html"]
 
@@ -73,8 +74,10 @@ def _e(value: object) -> str:
 def _q(value: object, unit: str) -> str:
     if value is None or isinstance(value, bool) or not isinstance(value, (int, float)):
         return "n/a" if value is None else str(value)
-    if unit in ("", "corners", "V/V"):
+    if unit in ("", "corners"):
         return f"{float(value):.4g}"
+    if unit == "V/V":  # a voltage gain: a plain ratio, no scale prefix
+        return f"{float(value):.4g} V/V"
     return format_quantity(float(value), unit, digits=4)
 
 
@@ -206,10 +209,21 @@ def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
     rows = [[_e(_LABELS[k]), _e(_q(nom.get(k), _UNITS[k]))]
             for k in ("ic", "ib", "vce", "vb", "vc", "ve", "pd", "supply_power", "gain", "rin")
             if k in nom]
+    reason = nom.get("not_active_reason")
     out.append(f"<h3>Nominal Q-point</h3><p>{_e(nom.get('temperature_c'))} °C, β "
                f"{_e(_q(nom.get('beta'), ''))}, nominal values and supply; region "
                f"<b>{_e(nom.get('region'))}</b></p>"
+               + (f"<p class=\"fail\">Not applicable: {_e(reason)} (β, gain, gm, input "
+                  "resistance, RSS spreads, stability factors); the voltages and currents "
+                  "are the real ones.</p>" if reason else "")
                + _table(["quantity", "value"], rows, numeric=(1,)))
+    st = r.stability
+    if st.get("reason"):
+        out.append(f"<p>Stability factors: not applicable ({_e(st['reason'])}).</p>")
+    else:
+        out.append(f"<p>Stability at the nominal point: S_ICBO {_e(_q(st.get('s_icbo'), ''))}, "
+                   f"S_VBE {_e(_q(st.get('s_vbe'), 'A'))}/V, S_β "
+                   f"{_e(_q(st.get('s_beta'), 'A'))} per unit β.</p>")
 
     rows = []
     for c in sorted(r.constraints, key=lambda c: (c.ok, c.name)):
@@ -222,6 +236,8 @@ def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
     out.append("<h3>Constraints at the worst corner (failures first)</h3>" + _table(
         ["", "constraint", "what", "limit", "worst", "margin", "at corner"], rows,
         numeric=(3, 4, 5)))
+    out.append(f"<p>IC margin <b>{100 * r.ic_margin:.2f} %</b> of the target "
+               f"{_e(_q(r.ic_target, 'A'))} ({_e(IC_MARGIN_DEFINITION)}).</p>")
 
     wc = r.worst
     rows = []
@@ -234,8 +250,7 @@ def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
                      _e(_q(b.max, unit)), _e(corner_text(b.corner_min)),
                      _e(corner_text(b.corner_max))])
     out.append(f"<h3>Worst case over {wc.n_vertices} corners</h3>"
-               "<p class=\"small\">A corner names each parameter's setting: + its high end, − "
-               "its low end, ~ a value inside the range.</p>"
+               f"<p class=\"small\">{_e(CORNER_LEGEND)}</p>"
                + _table(["quantity", "min", "max", "corner of min", "corner of max"], rows,
                         numeric=(1, 2)))
     if wc.non_active_corners:

@@ -5,6 +5,7 @@ from __future__ import annotations
 from rich.console import Console
 from rich.table import Table
 
+from ..analysis.constraints import IC_MARGIN_DEFINITION
 from ..job import Job
 from ..search.substitute import SubstituteResult
 from ..units import format_quantity
@@ -51,9 +52,7 @@ def render_substitute(console: Console, job: Job, result: SubstituteResult) -> N
         name = f"{q.part_id} ({q.polarity}, hFE {q.hfe_min:g}–{q.hfe_max:g})"
         margin = ""
         if c.check is not None and (c.drop_in or c.changes):
-            by = {x.name: x for x in c.check.constraints}
-            m = min(by["ic_min"].margin, by["ic_max"].margin)
-            margin = format_quantity(m, "A")
+            margin = f"{100 * c.check.ic_margin:.2f} %"
         if c.ruled_out:
             table.add_row(str(rank), name, "[red]ruled out[/red]", "", "", "", c.ruled_out)
         elif c.drop_in:
@@ -76,7 +75,7 @@ def render_substitute(console: Console, job: Job, result: SubstituteResult) -> N
             table.add_row(str(rank), name, "[red]no fix[/red]", "", "", "",
                           f"fails {fails}; {c.note}")
     console.print(table)
-    console.print("IC margin: the smallest distance of the worst-case IC to the window. Every "
+    console.print(f"{IC_MARGIN_DEFINITION} ({format_quantity(t.ic, 'A')}). Every "
                   "verdict is the full worst-case check (the same as `stockbias check`); a "
                   "rework is the fewest resistor changes, then the lowest added cost, then the "
                   "largest margin.")

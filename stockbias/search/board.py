@@ -28,6 +28,7 @@ from typing import Any
 import numpy as np
 
 from ..analysis.check import CheckResult, analyze_stage
+from ..analysis.constraints import ic_margin
 from ..assign import ResolvedResistor
 from ..job import Job, Stage, stage_key_error
 from ..parts import Inventory, Resistor, Transistor
@@ -91,7 +92,7 @@ def ic_margin_of(res: CheckResult, stage: Stage) -> float:
     """Smallest distance of the worst-case IC to the window, as a fraction of the target."""
     t = stage.target
     b = res.worst.bounds["ic"]
-    return float(min(float(b.min) - t.ic_min, t.ic_max - float(b.max)) / t.ic)
+    return float(ic_margin(b.min, b.max, t.ic_min, t.ic_max, t.ic))
 
 
 @dataclass(frozen=True)
@@ -245,10 +246,7 @@ def resolved_parts(g: StageOptions, design: dict[str, int], universe_lines: list
         if int(c.arrangement[i]) < 0:
             continue
         a = universe_lines[int(c.line_a[i])]
-        parts[role] = ResolvedResistor(role=role, value=a.value_ohm, tol=a.tolerance_pct / 100,
-                                       tempco_ppm=a.tempco_ppm or 0.0, rating=a.power_w,
-                                       parts=(a,) if a.part_id else (),
-                                       off_stock=not a.part_id)
+        parts[role] = ResolvedResistor.of_part(role, a, off_stock=not a.part_id)
     return parts
 
 
