@@ -43,7 +43,6 @@ from ..assign import ResolvedResistor, resolve_resistor
 from ..errors import InputError
 from ..job import Job
 from ..parts import Inventory, Resistor, Transistor
-from ..resistor_band import piece_band
 from ..topologies import get_network
 from .candidates import micro
 
@@ -174,7 +173,8 @@ def _stock_ok(parts: Mapping[str, ResolvedResistor], inventory: Inventory, build
 
 
 def _as_resolved(role: str, r: Resistor) -> ResolvedResistor:
-    return ResolvedResistor.of_part(role, r)
+    return ResolvedResistor(role=role, value=r.value_ohm, tol=r.tolerance_pct / 100,
+                            tempco_ppm=r.tempco_ppm or 0.0, rating=r.power_w, parts=(r,))
 
 
 class _Screen:
@@ -185,7 +185,8 @@ class _Screen:
         self.base = base
         self.q = q
         self.spec0 = build_spec(job, job.stage, base, q)
-        self.ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
+        self.span = max(abs(job.environment.ambient_min_c - 25.0),
+                        abs(job.environment.ambient_max_c - 25.0))
         ratings = {role: p.rating for role, p in base.items()}
         limits = stage_limits(job, job.stage, self.spec0, ratings)
         self.quantities = {lim.quantity for lim in limits}
@@ -194,24 +195,21 @@ class _Screen:
 
     def arrays(self, roles: tuple[str, ...], cand: dict[str, list[Resistor]],
                idx: np.ndarray) -> dict[str, tuple[np.ndarray, np.ndarray]]:
-        """Each role's exact band (low, high) over tolerance and tempco drift, per combination
-        (a kept pair's asymmetric band; a signed tempco drifting one way)."""
+        """Each role's band (low, high) over tolerance and tempco drift, per combination."""
         bands = {}
         for role, p in self.base.items():
-            lo, hi = p.band(*self.ambient)
-            bands[role] = (np.full(len(idx), lo), np.full(len(idx), hi))
+            spec = ResistorSpec(p.value, p.tol, abs(p.tempco_ppm) * 1e-6 * self.span)
+            bands[role] = (np.full(len(idx), float(spec.low)), np.full(len(idx),
+                                                                       float(spec.high)))
         for j, role in enumerate(roles):
             table = self.tables.get(role)
             if table is None:
                 rows = cand[role]
-                lo, hi = piece_band([r.value_ohm for r in rows],
-                                    [r.tolerance_pct / 100 for r in rows],
-                                    [r.tempco_ppm or 0.0 for r in rows],
-                                    [r.tempco_signed for r in rows], *self.ambient)
-                table = np.stack([lo, hi], axis=1)
+                table = np.array([[r.value_ohm, r.tolerance_pct / 100,
+                                   abs(r.tempco_ppm or 0.0) * 1e-6 * self.span] for r in rows])
                 self.tables[role] = table
-            lo, hi = table[idx[:, j]].T
-            bands[role] = (lo, hi)
+            v, tol, drift = table[idx[:, j]].T
+            bands[role] = (v * (1 - tol) * (1 - drift), v * (1 + tol) * (1 + drift))
         return bands
 
     def prefilter(self, roles: tuple[str, ...], cand: dict[str, list[Resistor]],
@@ -248,15 +246,15 @@ class _Screen:
         """
         resistors: dict[str, ResistorSpec] = {}
         ratings: dict[str, float | np.ndarray] = {}
-        bands = self.arrays(roles, cand, idx)
         for role, p in self.base.items():
-            resistors[role] = p.spec(*self.ambient)
+            resistors[role] = ResistorSpec(p.value, p.tol, abs(p.tempco_ppm) * 1e-6 * self.span)
             ratings[role] = p.rating
         for j, role in enumerate(roles):
             rows = [cand[role][i] for i in idx[:, j]]
             resistors[role] = ResistorSpec(
                 np.array([r.value_ohm for r in rows]),
-                np.array([r.tolerance_pct / 100 for r in rows]), band=bands[role])
+                np.array([r.tolerance_pct / 100 for r in rows]),
+                np.array([abs(r.tempco_ppm or 0.0) * 1e-6 * self.span for r in rows]))
             ratings[role] = np.array([r.power_w for r in rows])
         spec = StageSpec(self.spec0.network, resistors, self.spec0.device, self.spec0.vcc,
                          self.spec0.vcc_tol, self.spec0.vee, self.spec0.vee_tol,
@@ -394,9 +392,7 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
         raise InputError(f"no transistor with that part id in {inventory.path}",
                          column="--transistor", text=current)
     tol = job.build.default_tolerance_pct if tolerance_pct is None else tolerance_pct
-    ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
-    base = {role: resolve_resistor(role, text, inventory, tol, ambient=ambient)
-            for role, text in values.items()}
+    base = {role: resolve_resistor(role, text, inventory, tol) for role, text in values.items()}
     limit = job.search.time_limit_s if time_limit_s is None else time_limit_s
     out: list[SubstituteCandidate] = []
     for q in inventory.transistors:
