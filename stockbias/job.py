@@ -20,6 +20,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import JobError, NotationError
+from .job_ranges import implausible
 from .units import parse_quantity
 
 __all__ = [
@@ -237,7 +238,7 @@ class _Parser:
               occurrence: int = 0) -> JobError:
         column = f"{section}.{key}" if key else section
         return JobError(message, file=self.path, line=self.loc.line_of(section, key, occurrence),
-                        column=column, text=None if text is None else str(text))
+                        column=column, text=None if text is None else _shown(text))
 
     def quantity(self, table: dict[str, Any], section: str, key: str,
                  default: float | None = None, occurrence: int = 0) -> float | None:
@@ -249,14 +250,21 @@ class _Parser:
             raise self.error("expected a number or a quantity in quotes such as \"1.5 mA\"",
                              section, key, raw, occurrence)
         if isinstance(raw, (int, float)):
-            value = float(raw)
+            try:
+                value = float(raw)
+            except OverflowError:  # a TOML integer beyond any float
+                value = math.inf
             if not math.isfinite(value):
                 raise self.error("value must be finite", section, key, raw, occurrence)
-            return value
-        try:
-            return parse_quantity(raw, unit or "")
-        except NotationError as exc:
-            raise self.error(exc.message, section, key, raw, occurrence) from None
+        else:
+            try:
+                value = parse_quantity(raw, unit or "")
+            except NotationError as exc:
+                raise self.error(exc.message, section, key, raw, occurrence) from None
+        problem = implausible(key, value)
+        if problem is not None:
+            raise self.error(problem, section, key, raw, occurrence)
+        return value
 
     def check_keys(self, table: dict[str, Any], section: str, allowed: set[str],
                    occurrence: int = 0) -> None:
@@ -438,7 +446,7 @@ class _Parser:
             raise self.error("objectives must be a list such as [\"cost\", \"part_count\"]",
                              "search", "objectives", objectives)
         for name in objectives:
-            if name not in OBJECTIVES:
+            if not isinstance(name, str) or name not in OBJECTIVES:
                 raise self.error(f"unknown objective; use any of {', '.join(OBJECTIVES)}",
                                  "search", "objectives", name)
         if len(set(objectives)) != len(objectives):
@@ -474,6 +482,12 @@ class _Parser:
         stages: list[Stage] = []
         names: set[str] = set()
         for i, raw in enumerate(raw_stages):
+            if not isinstance(raw, dict):
+                raise self.error("stages are written as [[stage]] tables", "stage", None, raw, i)
+            for sub in ("target", "limits", "values"):
+                if sub in raw and not isinstance(raw[sub], dict):
+                    raise self.error(f"{sub} is a table: write [stage.{sub}] under the "
+                                     "[[stage]]", "stage", sub, raw[sub], i)
             self.check_keys(raw, "stage", _STAGE_KEYS, i)
             name = raw.get("name")
             if not isinstance(name, str) or not name.strip():
@@ -508,14 +522,33 @@ class _Parser:
         return tuple(stages)
 
 
+def _shown(value: Any) -> str:
+    """The offending text for a message: as found, shortened past 60 characters."""
+    text = str(value)
+    return text if len(text) <= 60 else f"{text[:40]}… ({len(text)} characters)"
+
+
+def _first_line(text: str, pattern: str) -> int | None:
+    found = re.search(pattern, text)
+    return text.count("\n", 0, found.start()) + 1 if found else None
+
+
 def parse_job(text: str, path: str = "<job>") -> Job:
-    """Parse the text of a job file; see :func:`load_job`."""
+    """Parse the text of a job file; see :func:`load_job`.  A leading byte-order mark is
+    ignored (editors on some systems save UTF-8 with one)."""
+    text = text.removeprefix("\ufeff")
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         match = re.search(r"line (\d+)", str(exc))
         raise JobError(f"not valid TOML: {exc}", file=path,
                        line=int(match.group(1)) if match else None) from None
+    except ValueError:  # Python refuses integers of more than 4300 digits
+        raise JobError("a number with thousands of digits; no job value needs more than a "
+                       "few", file=path, line=_first_line(text, r"\w{4000}")) from None
+    except RecursionError:
+        raise JobError("arrays or tables nested too deeply to be a job", file=path,
+                       line=_first_line(text, r"[\[{](?:\s*[\[{]){99}")) from None
     parser = _Parser(path, text)
     known = {*_SECTIONS, "stage"}
     for section in doc:
@@ -545,7 +578,7 @@ def load_job(path: str | Path) -> Job:
     """
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        text = path.read_text(encoding="utf-8-sig")
     except OSError as exc:
         raise JobError(f"cannot read the job file: {exc.strerror}", file=str(path)) from None
     except UnicodeDecodeError:
@@ -562,7 +595,7 @@ def stage_key_error(job: Job, stage_name: str, key: str, message: str,
     section = "stage" + (f".{section}" if section else "")
     line = None
     with contextlib.suppress(OSError, UnicodeDecodeError):
-        line = _Locator(Path(job.path).read_text(encoding="utf-8")).line_of(
+        line = _Locator(Path(job.path).read_text(encoding="utf-8-sig")).line_of(
             section, name, index)
     return JobError(f"stage '{stage_name}': {message}", file=job.path, line=line,
                     column=f"{section}.{name}", text=text)

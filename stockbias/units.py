@@ -241,13 +241,23 @@ def parse_quantity(text: str, unit: str, *, decimal_comma: bool = False) -> floa
         if prefix_exp and unit not in _PREFIX_READ:
             raise _fail(text, f"no SI prefix on {_WORDS[unit]}; write the plain number")
         mantissa = match["number"]
-        exponent = prefix_exp + int(match["exp"] or 0)
+        exponent = prefix_exp + _exponent(match["exp"])
 
     # One decimal string, converted once: "4.7e3" is exactly 4700.0, not 4.7 * 1e3.
     value = float(f"{sign}{mantissa}e{exponent}")
     if not math.isfinite(value):
         raise _fail(text, "out of range; expected a finite number")
     return value
+
+
+def _exponent(digits: str | None) -> int:
+    """The written exponent as an int; beyond ±10**6 it only needs to be beyond any float
+    (Python refuses to read integers of more than 4300 digits)."""
+    if digits is None:
+        return 0
+    sign = -1 if digits.startswith("-") else 1
+    body = digits.lstrip("+-").lstrip("0") or "0"
+    return sign * (int(body) if len(body) <= 6 else 10**6)
 
 
 def _unreadable_suffix(text: str, suffix: str, unit: str) -> NotationError:
