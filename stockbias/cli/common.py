@@ -25,7 +25,8 @@ ValuesOpt = Annotated[list[str], typer.Option(
     "A|B. Repeatable.")]
 TransistorOpt = Annotated[str, typer.Option("--transistor", "-t",
                                             help="Stock part id of the transistor.")]
-SeedOpt = Annotated[int, typer.Option("--seed", help="Monte Carlo seed.")]
+SeedOpt = Annotated[int, typer.Option("--seed", min=0, max=2**31 - 1,
+                                      help="Monte Carlo seed, 0 to 2147483647.")]
 
 
 def load(job_path: Path, inventory_path: Path | None) -> tuple[Job, Inventory | None]:
