@@ -90,16 +90,68 @@ def _axis_value_name(axis: str) -> str:
     return {"ambient": "ambient_c"}.get(axis, axis[2:] if axis.startswith("R:") else axis)
 
 
-def corner_setting(spec: StageSpec, u: dict[str, float]) -> dict[str, dict[str, object]]:
-    """Describe a point given by unit coordinates (0 = low end, 1 = high end) per axis."""
+def _used_values(spec: StageSpec, values: dict[str, float],
+                 device_temp_c: float | None) -> dict[str, dict[str, float]]:
+    """What the solve uses for each device axis at a point: hFE(T), VBE(T), ICBO(T).
+
+    ``values`` maps axes to their physical 25 °C setting; the device sits at
+    ``device_temp_c`` (default: the point's ambient).  Returns, per axis name, the
+    extra keys of its corner entry (``used``; ``is_a`` for the exponential model).
+    """
+    from . import device
+    from .stage import gummel_poon_of
+
+    point = spec.point_from({a: np.asarray(v) for a, v in values.items()})
+    temp = float(np.asarray(point.ambient_c)) if device_temp_c is None else device_temp_c
+    t_k = temp + device.CELSIUS_TO_KELVIN
+    d = spec.device
+    out: dict[str, dict[str, float]] = {}
+    beta = device.beta_at(point.hfe, t_k, xtb=np.asarray(d.xtb, dtype=float))
+    out["hfe"] = {"used": float(np.asarray(beta).reshape(-1)[0])}
+    out["icbo"] = {"used": float(np.asarray(device.icbo_at(point.icbo, temp)).reshape(-1)[0])}
+    if spec.model == "constant_vbe":
+        vbe = device.vbe_at(point.vbe, temp, d.vbe_tempco)
+        out["vbe"] = {"used": float(np.asarray(vbe).reshape(-1)[0])}
+    else:  # the VBE setting is an IS; its VBE at the hFE test current, at temperature
+        gp = gummel_poon_of(spec, point, np.asarray(temp))
+        is_t = float(np.asarray(gp.is_a).reshape(-1)[0])
+        vt = float(device.thermal_voltage(t_k)) * float(np.asarray(gp.nf).reshape(-1)[0])
+        i_test = float(np.asarray(d.hfe_test_ic).reshape(-1)[0])
+        out["vbe"] = {"used": vt * float(np.log1p(i_test / is_t)), "is_a": is_t}
+    return out
+
+
+def corner_setting(spec: StageSpec, u: dict[str, float],
+                   device_temp_c: float | None = None) -> dict[str, dict[str, object]]:
+    """Describe a point given by unit coordinates (0 = low end, 1 = high end) per axis.
+
+    Each axis gets ``setting`` (``min``, ``max`` or ``interior``), ``value`` (its
+    physical setting: supplies and resistors as used, hFE, VBE and ICBO as the
+    25 °C stock data) and ``used``, the value the solve used: supplies and each
+    resistor with its tolerance and drift applied (the same at any ambient), hFE
+    as β(T) = hFE·(T/298.15 K)^XTB, VBE as VBE + tempco·(T − 25 °C) (exponential
+    model: the VBE at the hFE test current from IS(T), with ``is_a`` = IS(T)), ICBO
+    doubled every 10 °C, all at the device temperature (the ambient, or the
+    ``junction_c`` entry when self-heated).  Rails are named by magnitude: for the
+    negative rail ``vee`` (value signed) ``max`` is the largest |VEE|.
+    """
     out: dict[str, dict[str, object]] = {}
+    values: dict[str, float] = {}
     for axis, x in u.items():
         lo, hi = (float(np.asarray(v).reshape(-1)[0]) for v in spec.axis_range(axis))
         x = float(x)
         value = lo + x * (hi - lo)
-        # for vee (signed negative) "min" is the end of smaller magnitude
+        values[axis] = value
+        # vee is signed negative and its range runs from the smaller magnitude (min)
         setting = "min" if x <= 1e-9 else ("max" if x >= 1 - 1e-9 else "interior")
-        out[_axis_value_name(axis)] = {"setting": setting, "value": value}
+        out[_axis_value_name(axis)] = {"setting": setting, "value": value, "used": value}
+    extra = _used_values(spec, values, device_temp_c)
+    for axis in ("hfe", "vbe", "icbo"):
+        if axis in out:
+            out[axis].update(extra[axis])
+    if device_temp_c is not None:
+        out["junction_c"] = {"setting": "self_heated", "value": device_temp_c,
+                             "used": device_temp_c}
     return out
 
 
@@ -232,10 +284,8 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
         starts[n] = np.vstack([bits[order % len(bits)], np.full((1, len(axes)), 0.5)])
     refined_max = _refine_max(spec, axes, to_refine, starts) if to_refine else {}
     def corner_of(i: int, u: np.ndarray) -> dict[str, dict[str, object]]:
-        c = corner_setting(spec, dict(zip(axes, u, strict=True)))
-        if i >= n_vertex:
-            c["junction_c"] = {"setting": "self_heated", "value": float(tj_heated[i - n_vertex])}
-        return c
+        tj = float(tj_heated[i - n_vertex]) if i >= n_vertex else None
+        return corner_setting(spec, dict(zip(axes, u, strict=True)), tj)
 
     for name, values in table.items():
         i_min, i_max = int(np.nanargmin(values)), int(np.nanargmax(values))

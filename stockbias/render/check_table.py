@@ -10,7 +10,7 @@ from ..analysis.constraints import IC_MARGIN_DEFINITION, ConstraintResult
 from ..job import Job
 from ..units import format_quantity
 
-__all__ = ["corner_text", "render_check", "render_constraints"]
+__all__ = ["CORNER_LEGEND", "corner_text", "render_check", "render_constraints"]
 
 _UNITS = {"ic": "A", "ib": "A", "ie": "A", "vb": "V", "vc": "V", "ve": "V", "vce": "V",
           "supply_power": "W", "pd": "W", "tj": "°C", "gain": "", "rin": "ohm"}
@@ -29,28 +29,48 @@ def _q(value: float, unit: str) -> str:
     return format_quantity(value, unit)
 
 
+#: What a corner in the tables means (the drift rule and the rail convention), one line.
+CORNER_LEGEND = (
+    "A corner names each parameter's setting (+ the high end of its range, − the low end, "
+    "~ a value inside) and the value the analysis used there: supplies as set, the negative "
+    "rail by magnitude (|VEE|+ is the largest magnitude); each resistor with its tolerance "
+    "and tempco drift applied (R·(1 ± tol)·(1 + tempco·(T − 25 °C)) at its extreme over the "
+    "ambient range, either sign for an unsigned tempco); β = hFE·(T/298.15 K)^XTB, "
+    "VBE = VBE(25 °C) − 2 mV/°C·(T − 25 °C) (exponential model: the VBE at the hFE test "
+    "current), ICBO doubling every 10 °C, at the device temperature: the ambient, or TJ "
+    "where the junction is self-heated.")
+
+_CORNER_UNITS = {"vcc": "V", "vee": "V", "vbe": "V", "icbo": "A"}
+
+
 def corner_text(corner: dict | None) -> str:
-    """A compact corner: ``VCC+ R1− R2+ hFE+ VBE− 55 °C`` (interior values spelled out)."""
+    """A corner with the values used: ``VCC+ 12.6 V, R1− 9.31 kΩ, hFE+ β 342, 55 °C``.
+
+    The sign after a name is the setting (+ high end, − low end, ~ inside); the value
+    beside it is the one the analysis used at the corner's device temperature
+    (``used``: β(T), VBE(T), ICBO(T); resistors with tolerance and drift).  The
+    negative rail is named by magnitude: ``|VEE|+`` is its largest magnitude.
+    """
     if not corner:
         return ""
     parts = []
     for axis, item in corner.items():
         setting, value = item["setting"], float(item["value"])
+        used = float(item.get("used", value))
         if axis == "junction_c":
-            parts.append(f"TJ {value:.3g} °C self-heated")
+            parts.append(f"TJ {used:.4g} °C self-heated")
             continue
         if axis == "ambient_c":
-            parts.append(f"{value:.3g} °C" if setting != "interior" else f"T~{value:.3g} °C")
+            parts.append(f"{used:.4g} °C" if setting != "interior" else f"TA~{used:.4g} °C")
             continue
         label = _AXIS_LABELS.get(axis, axis)
-        if axis == "vee":
-            setting = {"min": "max", "max": "min"}.get(setting, setting) if value < 0 else setting
-        if setting == "interior":
-            unit = {"vcc": "V", "vee": "V", "vbe": "V", "icbo": "A", "hfe": ""}.get(axis, "ohm")
-            parts.append(f"{label}~{_q(abs(value), unit)}")
+        mark = {"max": "+", "min": "−"}.get(setting, "~")
+        if axis == "hfe":
+            parts.append(f"{label}{mark} β {used:.4g}")
         else:
-            parts.append(f"{label}{'+' if setting == 'max' else '−'}")
-    return " ".join(parts)
+            unit = _CORNER_UNITS.get(axis, "ohm")
+            parts.append(f"{label}{mark} {format_quantity(abs(used), unit, digits=4)}")
+    return ", ".join(parts)
 
 
 def render_constraints(console: Console, constraints: list[ConstraintResult],
@@ -140,6 +160,7 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
         table.add_row(label, _q(b.min, unit), _q(b.max, unit), rss_txt,
                       corner_text(b.corner_min), corner_text(b.corner_max))
     console.print(table)
+    console.print(CORNER_LEGEND, style="dim")
     if wc.non_active_corners:
         console.print(f"[yellow]{wc.non_active_corners} of {wc.n_vertices} corners are not in "
                       f"the active region ({', '.join(wc.regions_seen)}); e.g. at "

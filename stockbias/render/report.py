@@ -25,7 +25,7 @@ from ..errors import InputError
 from ..job import Job
 from ..parts import Inventory
 from ..units import format_quantity
-from .check_table import corner_text
+from .check_table import CORNER_LEGEND, corner_text
 
 __all__ = ["CAUTION_FOOTER", "render_report", "render_report_html"]
 
@@ -250,8 +250,7 @@ def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
                      _e(_q(b.max, unit)), _e(corner_text(b.corner_min)),
                      _e(corner_text(b.corner_max))])
     out.append(f"<h3>Worst case over {wc.n_vertices} corners</h3>"
-               "<p class=\"small\">A corner names each parameter's setting: + its high end, − "
-               "its low end, ~ a value inside the range.</p>"
+               f"<p class=\"small\">{_e(CORNER_LEGEND)}</p>"
                + _table(["quantity", "min", "max", "corner of min", "corner of max"], rows,
                         numeric=(1, 2)))
     if wc.non_active_corners:
