@@ -42,14 +42,17 @@ def _row(n: Need) -> list[str]:
 
 
 def pick_list_csv(needs: Sequence[Need]) -> str:
-    """The pick list as CSV text (header :data:`PICK_LIST_COLUMNS`, ``\\n`` line ends).
+    """The pick list as CSV text (header :data:`PICK_LIST_COLUMNS`, RFC 4180).
+
+    Rows end with CRLF as RFC 4180 says, so that a field holding a carriage
+    return or a line feed is quoted and a reader splits rows only between them.
 
     A text cell that a spreadsheet would take as a formula (``=``, ``+``, ``-``,
     ``@``, tab or carriage return first) starts with ``'`` instead; see
     :func:`stockbias.inert_text.spreadsheet_cell`.
     """
     buf = io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
+    writer = csv.writer(buf, lineterminator="\r\n")
     writer.writerow(spreadsheet_row(PICK_LIST_COLUMNS))
     for n in pick_order(needs):
         writer.writerow(_row(n))
