@@ -16,32 +16,45 @@ what a resolved selection takes from the shelf for a build.
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .assign import ResolvedResistor, parse_assignments, resolve_resistor
 from .errors import InputError, UnmetError
 from .job import TOPOLOGY_NAMES, Job
 from .parts import Inventory, Transistor
+
+if TYPE_CHECKING:
+    from .analysis.check import CheckResult
 from .topologies import get_network
 from .units import format_quantity
 
 __all__ = [
+    "ACCEPT_CHANGED_OPTION",
     "Need",
     "ResultFileError",
     "Selection",
     "bench_needs",
+    "check_inputs",
     "choose",
+    "failing_summary",
     "from_design",
     "from_result_file",
     "from_search",
     "from_values",
+    "input_record",
     "resolve_selection",
+    "verify_selection",
 ]
+
+#: The option that lets a saved result whose job or stock file changed be used after a
+#: re-verification against the current files.
+ACCEPT_CHANGED_OPTION = "--accept-changed-inputs"
 
 _ARRANGEMENT_SIGN = {"series": "+", "parallel": "|"}
 
@@ -66,12 +79,20 @@ class Selection:
         role → assignment text (part id, value, ``A+B`` or ``A|B``).
     source : str
         Where the choice came from, for reports (``"design rank 2 of r.json"``).
+    inputs : dict or None
+        For a saved result, what it records of the files it was computed from
+        (``{"job": {"path", "sha256", "size"}, "inventory": {...}}``); ``{}`` when it
+        records nothing; None for a selection that is not from a saved result.
+    file : str or None
+        The saved result's path (None when not from a file).
     """
 
     topology: str
     transistor_id: str
     values: dict[str, str]
     source: str
+    inputs: dict[str, Any] | None = field(default=None, compare=False)
+    file: str | None = field(default=None, compare=False)
 
     def job_for(self, job: Job) -> Job:
         """The job with its stage set to this selection's topology."""
@@ -171,6 +192,9 @@ def from_result_file(path: str | Path, rank: int = 1) -> Selection:
     file = str(path)
     try:
         doc = json.loads(path.read_text(encoding="utf-8"))
+    except RecursionError:
+        raise ResultFileError("the JSON is nested too deeply to be a saved result", file=file) \
+            from None
     except OSError as exc:
         raise ResultFileError(f"cannot read the result file: {exc.strerror}", file=file) \
             from None
@@ -200,8 +224,102 @@ def from_result_file(path: str | Path, rank: int = 1) -> Selection:
                                   f"{len(designs)} design(s)", file=file, column="designs",
                                   text=str(rank))
         index = rank - 1
-    return from_design(designs[index], f"design rank {rank} of {file}", file=file,
-                       where=f"designs[{index}]")
+    sel = from_design(designs[index], f"design rank {rank} of {file}", file=file,
+                      where=f"designs[{index}]")
+    inputs = doc.get("inputs")
+    return replace(sel, inputs=dict(inputs) if isinstance(inputs, dict) else {}, file=file)
+
+
+def input_record(path: str | Path) -> dict[str, object]:
+    """What a saved result records of one input file: its path, SHA-256 and size, bytes."""
+    data = Path(path).read_bytes()
+    return {"path": str(path), "sha256": hashlib.sha256(data).hexdigest(), "size": len(data)}
+
+
+_INPUT_WORDS = {"job": ("job file", "the job"), "inventory": ("stock file", "the shelf")}
+
+
+def check_inputs(selection: Selection, job_path: str | Path, inventory_path: str | Path, *,
+                 accept_changed: bool = False) -> list[str]:
+    """Check that a saved result belongs to this job file and this stock file.
+
+    Compares the SHA-256 the result records (``design --save``) with the files'
+    now.  A selection that is not from a saved result passes unchecked.
+
+    Returns
+    -------
+    list of str
+        What changed, in words (``"the stock file shelf.csv"``); non-empty only with
+        ``accept_changed``, and then the caller must re-verify the design
+        (:func:`verify_selection`).
+
+    Raises
+    ------
+    ResultFileError
+        A file changed (or the result records none), without ``accept_changed``:
+        the message names the file and both ways on.
+    """
+    if selection.inputs is None:
+        return []
+    result_file = selection.file or "<result>"
+    way_on = (f"run design again and save a new result, or pass {ACCEPT_CHANGED_OPTION} "
+              "to re-verify this design against the current files")
+    changed: list[str] = []
+    for key, now_path in (("job", job_path), ("inventory", inventory_path)):
+        noun, _ = _INPUT_WORDS[key]
+        record = selection.inputs.get(key)
+        recorded = record.get("sha256") if isinstance(record, dict) else None
+        if not isinstance(recorded, str):
+            what = f"the result records no SHA-256 of its {noun}"
+            if not accept_changed:
+                raise ResultFileError(f"{what}, so it cannot be matched with {now_path}; "
+                                      f"{way_on}", file=result_file, column=f"inputs.{key}")
+            changed.append(f"the {noun} {now_path} (not recorded)")
+            continue
+        try:
+            now = input_record(now_path)
+        except OSError as exc:
+            raise InputError(f"cannot read the {noun}: {exc.strerror}", file=str(now_path)) \
+                from None
+        if now["sha256"] == recorded:
+            continue
+        was = record.get("path", "?") if isinstance(record, dict) else "?"
+        if not accept_changed:
+            raise ResultFileError(
+                f"the {noun} {now_path} is not the one this result was designed from "
+                f"({was}, SHA-256 {recorded[:12]}…, now {str(now['sha256'])[:12]}…); "
+                f"{way_on}", file=result_file, column=f"inputs.{key}.sha256")
+        changed.append(f"the {noun} {now_path}")
+    return changed
+
+
+def verify_selection(job: Job, selection: Selection, inventory: Inventory) -> CheckResult:
+    """Re-check a selection against the job and shelf with the code ``check`` uses.
+
+    Monte Carlo runs (2000 boards, the job's seed) only when the job sets a yield
+    target, as in the design search's own re-verification.
+    """
+    from .analysis.check import analyze_stage
+
+    job = selection.job_for(job)
+    parts, t = resolve_selection(job, selection, inventory)
+    samples = 2000 if job.stage.target.yield_min is not None else 0
+    return analyze_stage(job, job.stage, parts, t, samples=samples, seed=job.search.seed,
+                         topology=selection.topology)
+
+
+def failing_summary(result: CheckResult) -> str:
+    """The failing limits of a check in words: name, worst value, limit and margin."""
+    def words(x: float, unit: str) -> str:
+        if not math.isfinite(x):
+            return "n/a"
+        try:
+            return format_quantity(x, unit)
+        except (KeyError, ValueError):
+            return f"{x:.4g} {unit}".strip()
+
+    return "; ".join(f"{c.name} (worst {words(c.worst, c.unit)} against limit "
+                     f"{words(c.limit, c.unit)})" for c in result.failing)
 
 
 def from_search(job: Job, inventory: Inventory, rank: int, *,

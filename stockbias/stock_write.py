@@ -24,6 +24,14 @@ new one, whole):
 5. ``os.replace`` swaps the files, then the folder is fsynced.
 
 A crash can leave a ``.<name>.*.tmp`` file behind; it is never read.
+
+Every step works on the real file (symbolic links resolved): a link to the
+stock file stays a link and the file it points to is the one changed, and a
+link and the real path share one lock.  A file with several hard links is
+refused (replacing it would leave the other names with the old quantities).
+A dry run takes no lock and creates nothing.  A folder where the lock, the
+temporary file or the backup cannot be written is a one-line
+:class:`~stockbias.errors.InputError`.
 """
 
 from __future__ import annotations
@@ -225,9 +233,16 @@ def _layout(data: bytes, delimiter: str) -> tuple[int, int]:
 # --- locking and writing -------------------------------------------------------
 
 @contextlib.contextmanager
-def _locked(path: Path, timeout_s: float) -> Iterator[None]:
+def _locked(path: Path, timeout_s: float, shown: str | None = None) -> Iterator[None]:
+    """Hold ``.<name>.lock`` next to ``path`` (the real path: one lock per file)."""
+    shown = str(path) if shown is None else shown
     lock = path.with_name(f".{path.name}.lock")
-    fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
+    try:
+        fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
+    except OSError as exc:
+        raise InputError(f"cannot create the lock file {lock.name} in {path.parent}: "
+                         f"{exc.strerror}; a reservation needs to write in the stock file's "
+                         "folder; nothing written", file=shown) from None
     try:
         deadline = time.monotonic() + timeout_s
         while True:
@@ -240,12 +255,25 @@ def _locked(path: Path, timeout_s: float) -> Iterator[None]:
                 if time.monotonic() >= deadline:
                     raise StockLockedError(
                         f"another process has held the lock {lock.name} for "
-                        f"{timeout_s:g} s; nothing written, try again", file=str(path)) \
+                        f"{timeout_s:g} s; nothing written, try again", file=shown) \
                         from None
                 time.sleep(0.05)
         yield
     finally:
         os.close(fd)  # closing releases the lock
+
+
+def _refuse_hard_links(path: Path, shown: str) -> None:
+    """A reservation replaces the file: a file with several names would be split."""
+    try:
+        links = os.stat(path).st_nlink
+    except OSError as exc:
+        raise InputError(f"cannot read the stock file: {exc.strerror}", file=shown) from None
+    if links > 1:
+        raise InputError(f"the stock file has {links} names (hard links); a reservation "
+                         "replaces the file and the other names would keep the old "
+                         "quantities; keep one name and reserve on it; nothing written",
+                         file=shown)
 
 
 def _fingerprint(path: Path) -> tuple[str, int, int, int]:
@@ -335,15 +363,21 @@ def reserve_stock(path: str | Path, takes: Callable[[Inventory], Mapping[str, in
     StockFileError
         The file is not a valid stock file.
     """
-    path = Path(path)
+    given = str(path)
+    # Everything (lock, read, temporary file, backup, replace) works on the real file, so
+    # that a symbolic link stays a link and two names of one file share one lock.
+    path = Path(os.path.realpath(path))
     step = fault or (lambda _name: None)
-    with _locked(path, lock_timeout_s):
+    if not dry_run:
+        _refuse_hard_links(path, given)
+    lock = contextlib.nullcontext() if dry_run else _locked(path, lock_timeout_s, given)
+    with lock:
         data = path.read_bytes()
         fingerprint = _fingerprint(path)
         inventory = read_inventory(path)
         if hashlib.sha256(data).hexdigest() != inventory.sha256:
             raise StockChangedError("the stock file changed while it was being read; "
-                                    "nothing written, try again", file=str(path))
+                                    "nothing written, try again", file=given)
         step("read")
         wanted = {pid: int(n) for pid, n in takes(inventory).items() if int(n) != 0}
         changes, short = [], []
@@ -354,10 +388,10 @@ def reserve_stock(path: str | Path, takes: Callable[[Inventory], Mapping[str, in
                 row = inventory.part(pid)
             except KeyError:
                 raise InputError(f"part {pid} is not in the stock file; nothing written",
-                                 file=str(path), column="part_id", text=pid) from None
+                                 file=given, column="part_id", text=pid) from None
             if n < 0:
                 raise InputError(f"cannot take a negative number of pieces of {pid}",
-                                 file=str(path), line=row.line, column="qty", text=str(n))
+                                 file=given, line=row.line, column="qty", text=str(n))
             if n > row.qty:
                 short.append((pid, row.line, row.qty, n))
                 continue
@@ -365,24 +399,29 @@ def reserve_stock(path: str | Path, takes: Callable[[Inventory], Mapping[str, in
             new_qty[row.line] = row.qty - n
             expected[pid] = row.qty - n
         if short:
-            raise ShortStockError(_short_message(short, build_label), file=str(path))
+            raise ShortStockError(_short_message(short, build_label), file=given)
         header_line, qty_index = _layout(data, inventory.delimiter)
         new_data = rewrite_quantities(data, header_line, qty_index, inventory.delimiter,
                                       new_qty)
         changes.sort(key=lambda c: c.line)
-        result = Reservation(str(path), tuple(changes), None, inventory.sha256,
+        result = Reservation(given, tuple(changes), None, inventory.sha256,
                              hashlib.sha256(new_data).hexdigest(), written=False)
         if dry_run or not changes:
             return result
-        backup = _replace(path, data, new_data, inventory, expected, fingerprint,
-                          now or datetime.now(), step)
+        try:
+            backup = _replace(path, data, new_data, inventory, expected, fingerprint,
+                              now or datetime.now(), step, given)
+        except OSError as exc:
+            raise InputError(f"cannot write in {path.parent}: {exc.strerror}; a reservation "
+                             "writes a temporary file and a backup next to the stock file; "
+                             "nothing written", file=given) from None
         return Reservation(result.path, result.changes, str(backup), result.sha256_before,
                            result.sha256_after, written=True)
 
 
 def _replace(path: Path, data: bytes, new_data: bytes, inventory: Inventory,
              expected: Mapping[str, int], fingerprint: tuple[str, int, int, int],
-             now: datetime, step: Fault) -> Path:
+             now: datetime, step: Fault, shown: str) -> Path:
     folder = path.parent
     fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
     tmp = Path(tmp_name)
@@ -406,14 +445,14 @@ def _replace(path: Path, data: bytes, new_data: bytes, inventory: Inventory,
         if check is None or not _same_apart_from_qty(inventory, check, expected):
             raise InputError("internal check failed: the rewritten stock file does not read "
                              "back as the old one with new quantities; nothing written",
-                             file=str(path))
+                             file=shown)
         backup = _write_backup(path, data, now)
         step("backup_written")
         step("before_replace")
         if _fingerprint(path) != fingerprint:
             raise StockChangedError("the stock file was changed by another program while "
                                     "the reservation was being written; nothing written, "
-                                    "run it again", file=str(path))
+                                    "run it again", file=shown)
         os.replace(tmp, path)
         tmp = None  # type: ignore[assignment]
         _fsync_dir(folder)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import fcntl
+import hashlib
 import json
 import os
 import signal
@@ -29,8 +30,45 @@ from stockbias.stock_write import (
 
 ROOT = Path(__file__).resolve().parent.parent
 SAMPLES = ROOT / "inventory_samples"
-JOB = SAMPLES / "line_driver_job.toml"
 VALUES = "R1=CF-47K,R2=CF-10K,RC=CF-3K3,RE=CF-1K0"
+# A divider stage built ten times from workshop_drawers.csv with a wide collector-current window,
+# so that the designs these tests reserve meet it with a wide margin (reserve re-checks them):
+# VALUES gives VBB = 12 V·10k/57k = 2.1 V, IC ≈ (2.1 − 0.65) V / 1 kΩ = 1.45 mA (hand
+# calculation) against a window of 0.6–2.4 mA.
+WIDE_JOB = """\
+[supply]
+volts = 12
+tolerance_pct = 5
+
+[target]
+ic = "1.5 mA"
+ic_window_pct = 60
+vce_min = "1 V"
+
+[limits]
+supply_power_max = "100 mW"
+
+[environment]
+ambient_min_c = 0
+ambient_max_c = 55
+
+[build]
+quantity = 10
+
+[search]
+topology = "divider"
+model = "constant_vbe"
+objectives = ["cost"]
+top = 2
+time_limit_s = 20
+"""
+
+
+def wide_job(folder: Path) -> Path:
+    """WIDE_JOB written into ``folder``."""
+    path = folder / "wide_job.toml"
+    path.write_text(WIDE_JOB, encoding="utf-8")
+    return path
 
 runner = CliRunner()
 
@@ -121,6 +159,7 @@ def test_dry_run_writes_nothing(tmp_path: Path) -> None:
     assert not res.written and res.backup is None
     assert res.changes[0].after == 35
     assert path.read_bytes() == AWKWARD.encode("utf-8")
+    assert [p.name for p in tmp_path.iterdir()] == ["drawer.csv"]  # not even a lock file
 
 
 def test_a_change_by_another_program_is_detected_and_nothing_replaced(tmp_path: Path) -> None:
@@ -223,7 +262,8 @@ def test_two_concurrent_reservations_never_lose_one(tmp_path: Path) -> None:
 def test_two_concurrent_cli_reservations_never_lose_one(tmp_path: Path) -> None:
     path = tmp_path / "shelf.csv"
     path.write_bytes((SAMPLES / "workshop_drawers.csv").read_bytes())
-    cmd = [sys.executable, "-m", "stockbias", "stock", "reserve", str(path), "--job", str(JOB),
+    cmd = [sys.executable, "-m", "stockbias", "stock", "reserve", str(path), "--job",
+           str(wide_job(tmp_path)),
            "--values", VALUES, "--transistor", "QN-GP40", "--quantity", "3"]
     procs = [subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
              for _ in range(2)]
@@ -245,7 +285,7 @@ def shelf(tmp_path: Path) -> Path:
 
 def test_cli_reserve_takes_uses_times_build_quantity(tmp_path: Path) -> None:
     path = shelf(tmp_path)
-    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(JOB),
+    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(wide_job(tmp_path)),
                                  "--values", "R1=CF-22K+CF-22K,R2=CF-10K,RC=CF-3K3,RE=CF-1K0",
                                  "--transistor", "QN-GP40", "--json"])
     assert result.exit_code == 0, result.output
@@ -260,8 +300,8 @@ def test_cli_reserve_takes_uses_times_build_quantity(tmp_path: Path) -> None:
 def test_cli_short_stock_exit_2_file_byte_identical(tmp_path: Path) -> None:
     path = shelf(tmp_path)
     before = path.read_bytes()
-    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(JOB), "--values",
-                                 VALUES, "--transistor", "QN-GP40", "--quantity", "25"])
+    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(wide_job(tmp_path)),
+                                 "--values", VALUES, "--transistor", "QN-GP40", "--quantity", "25"])
     assert result.exit_code == 2
     assert result.stderr.strip() == (
         f"{path}: not enough stock for 25 board(s), nothing written: "
@@ -273,8 +313,8 @@ def test_cli_short_stock_exit_2_file_byte_identical(tmp_path: Path) -> None:
 def test_cli_dry_run(tmp_path: Path) -> None:
     path = shelf(tmp_path)
     before = path.read_bytes()
-    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(JOB), "--values",
-                                 VALUES, "--transistor", "QN-GP40", "--dry-run"])
+    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(wide_job(tmp_path)),
+                                 "--values", VALUES, "--transistor", "QN-GP40", "--dry-run"])
     assert result.exit_code == 0, result.output
     assert "dry run, nothing written" in result.stdout
     assert path.read_bytes() == before
@@ -293,24 +333,43 @@ def test_cli_reserve_errors_are_one_line_exit_2(tmp_path: Path, args: list[str],
                                                 message: str) -> None:
     path = shelf(tmp_path)
     before = path.read_bytes()
-    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(JOB), *args])
+    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(wide_job(tmp_path)),
+                                 *args])
     assert result.exit_code == 2, result.output
     lines = result.stderr.strip().splitlines()
     assert len(lines) == 1 and message in lines[0], result.stderr
     assert path.read_bytes() == before
 
 
+#: One design in the shape design --save writes it (it meets WIDE_JOB; see test_outputs.py).
+SAVED_DESIGN = {
+    "rank": 1, "topology": "divider", "transistor": {"part_id": "QN-LB1"},
+    "parts": {"R1": {"part_id": "MF-23K7", "value_ohm": 23700.0},
+              "R2": {"part_id": "MF-4K99", "value_ohm": 4990.0},
+              "RC": {"part_id": "CF-2K2", "value_ohm": 2200.0},
+              "RE": {"part_id": ["CF-470R", "CF-470R"], "value_ohm": 940.0,
+                     "arrangement": "series"}}}
+
+
+def record(path: Path) -> dict[str, object]:
+    """What a saved result records of an input: path, SHA-256 (hashlib) and size."""
+    data = path.read_bytes()
+    return {"path": str(path), "sha256": hashlib.sha256(data).hexdigest(), "size": len(data)}
+
+
+def saved_result(folder: Path, job: Path, stock: Path) -> Path:
+    """A result file holding SAVED_DESIGN, recording ``job`` and ``stock`` as they are now."""
+    saved = folder / "result.json"
+    saved.write_text(json.dumps({"status": "optimal", "designs": [SAVED_DESIGN],
+                                 "inputs": {"job": record(job), "inventory": record(stock)}}))
+    return saved
+
+
 def test_cli_reserve_from_a_saved_result(tmp_path: Path) -> None:
     path = shelf(tmp_path)
-    saved = tmp_path / "result.json"
-    saved.write_text(json.dumps({"status": "optimal", "designs": [
-        {"rank": 1, "topology": "divider", "transistor": {"part_id": "QN-LB1"},
-         "parts": {"R1": {"part_id": "MF-23K7", "value_ohm": 23700.0},
-                   "R2": {"part_id": "MF-4K99", "value_ohm": 4990.0},
-                   "RC": {"part_id": "CF-2K2", "value_ohm": 2200.0},
-                   "RE": {"part_id": ["CF-470R", "CF-470R"], "value_ohm": 940.0,
-                          "arrangement": "series"}}}]}))
-    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(JOB),
+    job = wide_job(tmp_path)
+    saved = saved_result(tmp_path, job, path)
+    result = runner.invoke(app, ["stock", "reserve", str(path), "--job", str(job),
                                  "--from", str(saved), "--quantity", "2"])
     assert result.exit_code == 0, result.output
     q = qty(path)

@@ -13,10 +13,11 @@ from ..analysis.check import CheckResult, analyze
 from ..assign import parse_assignments
 from ..errors import InputError
 from ..job import Job
+from ..outputs import OutputSet
 from ..parts import Inventory
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import InventoryOpt, JobArg, JsonOpt, SeedOpt, load
+from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, SeedOpt, load, plot_files
 
 
 def check(
@@ -45,28 +46,39 @@ def check(
     pick_list: Annotated[Path | None, typer.Option(
         "--pick-list", dir_okay=False, help="Write the pick list for the job's build "
         "quantity here (CSV).")] = None,
+    force: ForceOpt = False,
 ) -> None:
     """Analyse a stage with given parts at every worst-case corner; exit 1 if a limit fails."""
-    job, inv = load(job_file, inventory)
-    st = _stage(job, stage)
-    assignment = parse_assignments(values) if values else dict(st.values)
-    if not assignment:
-        raise InputError("give the parts with --values ROLE=VALUE,... (or [stage.values] in "
-                         "the job file)", column="--values")
-    if transistor is None:
-        transistor = st.transistor
-    if transistor is None:
-        raise InputError("give the transistor with --transistor PART_ID (or transistor = "
-                         "\"PART_ID\" in the stage)", column="--transistor")
-    result = analyze(job, assignment, transistor, inv, samples=samples, seed=seed,
-                     tolerance_pct=tolerance, stage_name=stage)
+    from ..render.plots import CHECK_PLOTS
+
+    outs = OutputSet({"the job file": job_file, "the stock file (--inventory)": inventory},
+                     force=force)
+    outs.folder("--plot", plot, plot_files(CHECK_PLOTS))
+    outs.file("--report", report)
+    outs.file("--pick-list", pick_list)
+    with outs:
+        job, inv = load(job_file, inventory)
+        st = _stage(job, stage)
+        assignment = parse_assignments(values) if values else dict(st.values)
+        if not assignment:
+            raise InputError("give the parts with --values ROLE=VALUE,... (or [stage.values] "
+                             "in the job file)", column="--values")
+        if transistor is None:
+            transistor = st.transistor
+        if transistor is None:
+            raise InputError("give the transistor with --transistor PART_ID (or transistor = "
+                             "\"PART_ID\" in the stage)", column="--transistor")
+        result = analyze(job, assignment, transistor, inv, samples=samples, seed=seed,
+                         tolerance_pct=tolerance, stage_name=stage)
+        _stage_outputs(outs, job, inv, result, plot, report, pick_list)
+        written = outs.commit()
     if json_out:
         typer.echo(dumps(result.to_dict()))
     else:
         from ..render.check_table import render_check
 
         render_check(make_console(), job, result)
-    _bench_outputs(job, inv, result, plot, report, pick_list, json_out)
+    _written_notes(job, result, written, json_out)
     if not result.ok:
         raise typer.Exit(1)
 
@@ -82,28 +94,46 @@ def _stage(job: Job, name: str | None):
     return found[0]
 
 
-def _bench_outputs(job: Job, inv: Inventory | None, result: CheckResult, plot: Path | None,
-                   report: Path | None, pick_list: Path | None, json_out: bool) -> None:
-    """Plots, report and pick list; the files written are named (on stderr with --json)."""
-    console = make_console(stderr=json_out)
+def _stage_outputs(outs: OutputSet, job: Job, inv: Inventory | None, result: CheckResult,
+                   plot: Path | None, report: Path | None, pick_list: Path | None) -> None:
+    """Plots, report and pick list, staged in ``outs`` (placed together by its commit)."""
     if plot is not None:
         from ..render.plots import write_check_plots
 
-        paths = write_check_plots(result, job, plot)
-        console.print("Plots written: " + ", ".join(str(p) for p in paths))
+        with outs.writing("--plot") as folder:
+            write_check_plots(result, job, folder)
     if report is not None:
         from ..render.report import render_report
 
-        render_report(report, title=f"Check of stage '{result.stage}'", job=job, inventory=inv,
-                      checks=[(f"Check: {result.topology} with {result.transistor.part_id}",
-                               result)], command=shlex.join(["stockbias", *sys.argv[1:]]))
-        console.print(f"Report written: {report}")
+        with outs.writing("--report") as tmp:
+            render_report(tmp, title=f"Check of stage '{result.stage}'", job=job,
+                          inventory=inv, checks=[(f"Check: {result.topology} with "
+                                                  f"{result.transistor.part_id}", result)],
+                          command=shlex.join(["stockbias", *sys.argv[1:]]))
     if pick_list is not None:
-        from ..render.pick_list import render_pick_list, write_pick_list
-        from ..selection import bench_needs
+        from ..render.pick_list import write_pick_list
 
-        needs = bench_needs(result.parts, result.transistor, job.build.quantity)
-        write_pick_list(pick_list, needs)
+        with outs.writing("--pick-list") as tmp:
+            write_pick_list(tmp, _needs(job, result))
+
+
+def _needs(job: Job, result: CheckResult):
+    from ..selection import bench_needs
+
+    return bench_needs(result.parts, result.transistor, job.build.quantity)
+
+
+def _written_notes(job: Job, result: CheckResult, written: dict[str, list[Path]],
+                   json_out: bool) -> None:
+    """Name the files written (on stderr with --json)."""
+    console = make_console(stderr=json_out)
+    if "--plot" in written:
+        console.print("Plots written: " + ", ".join(str(p) for p in written["--plot"]))
+    if "--report" in written:
+        console.print(f"Report written: {written['--report'][0]}")
+    if "--pick-list" in written:
         if not json_out:
-            render_pick_list(console, needs, job.build.quantity)
-        console.print(f"Pick list written: {pick_list}")
+            from ..render.pick_list import render_pick_list
+
+            render_pick_list(console, _needs(job, result), job.build.quantity)
+        console.print(f"Pick list written: {written['--pick-list'][0]}")

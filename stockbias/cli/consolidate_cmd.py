@@ -9,9 +9,10 @@ from typing import Annotated
 import typer
 
 from ..errors import InputError
+from ..outputs import OutputSet
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import InventoryOpt, JobArg, JsonOpt, load, search_progress
+from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, load, search_progress
 
 
 def consolidate(
@@ -29,24 +30,32 @@ def consolidate(
     json_out: JsonOpt = False,
     report: Annotated[Path | None, typer.Option(
         "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
+    force: ForceOpt = False,
 ) -> None:
     """Merge a board's resistor values onto fewer stock lines, every stage still meeting its
     worst-case targets."""
     from ..search.consolidate import consolidate as run
     from ..search.consolidate import parse_keep
 
-    job, inv = load(board_file, inventory)
-    assert inv is not None
-    order = None
-    if objectives is not None:
-        order = tuple(o.strip() for o in objectives.split(",") if o.strip())
-        if not order:
-            raise InputError("name at least one objective", column="--objectives",
-                             text=objectives)
-    kept = parse_keep(keep, job)
-    with search_progress(json_out, "consolidating") as progress:
-        result = run(job, inv, keep=kept, objectives=order, time_limit_s=time_limit,
-                     progress=progress)
+    outs = OutputSet({"the board file": board_file,
+                      "the stock file (--inventory)": inventory}, force=force)
+    outs.file("--report", report)
+    with outs:
+        job, inv = load(board_file, inventory)
+        assert inv is not None
+        order = None
+        if objectives is not None:
+            order = tuple(o.strip() for o in objectives.split(",") if o.strip())
+            if not order:
+                raise InputError("name at least one objective", column="--objectives",
+                                 text=objectives)
+        kept = parse_keep(keep, job)
+        with search_progress(json_out, "consolidating") as progress:
+            result = run(job, inv, keep=kept, objectives=order, time_limit_s=time_limit,
+                         progress=progress)
+        if report is not None:
+            _stage_report(outs, board_file, job, inv, result)
+        written = outs.commit()
     if json_out:
         payload = result.to_dict()
         payload["board"] = str(board_file)
@@ -56,26 +65,31 @@ def consolidate(
         from ..render.board_table import render_consolidate
 
         render_consolidate(make_console(), job, result)
-    if report is not None:
-        from ..render.report import render_report
-        from ..search.board import bom_totals
-
-        notes = [f"Status: {result.status}",
-                 f"Before: {result.before['bom_lines']} BOM lines, "
-                 f"{result.before['distinct_values']} values"]
-        checks = []
-        if result.after is not None:
-            after = bom_totals(result.after.bom)
-            notes.append(f"After: {after['bom_lines']} BOM lines, {after['distinct_values']} "
-                         f"values, {result.after.changes} part(s) changed")
-            for s in result.after.stages:
-                changed = ", ".join(s.changed) or "unchanged"
-                checks.append((f"Stage {s.name} ({changed})", s.check))
-        elif result.explanation:
-            notes.append(f"Explanation: {result.explanation.get('reason')}")
-        render_report(report, title=f"Consolidation of {board_file.name}", job=job,
-                      inventory=inv, checks=checks, notes=notes,
-                      command="stockbias consolidate " + " ".join(sys.argv[2:]))
-        make_console(stderr=json_out).print(f"Report written: {report}")
+    if "--report" in written:
+        make_console(stderr=json_out).print(f"Report written: {written['--report'][0]}")
     if result.after is None:
         raise typer.Exit(1)
+
+
+def _stage_report(outs: OutputSet, board_file: Path, job, inv, result) -> None:
+    """The HTML report of a consolidation, staged in ``outs``."""
+    from ..render.report import render_report
+    from ..search.board import bom_totals
+
+    notes = [f"Status: {result.status}",
+             f"Before: {result.before['bom_lines']} BOM lines, "
+             f"{result.before['distinct_values']} values"]
+    checks = []
+    if result.after is not None:
+        after = bom_totals(result.after.bom)
+        notes.append(f"After: {after['bom_lines']} BOM lines, {after['distinct_values']} "
+                     f"values, {result.after.changes} part(s) changed")
+        for s in result.after.stages:
+            changed = ", ".join(s.changed) or "unchanged"
+            checks.append((f"Stage {s.name} ({changed})", s.check))
+    elif result.explanation:
+        notes.append(f"Explanation: {result.explanation.get('reason')}")
+    with outs.writing("--report") as tmp:
+        render_report(tmp, title=f"Consolidation of {board_file.name}", job=job,
+                      inventory=inv, checks=checks, notes=notes,
+                      command="stockbias consolidate " + " ".join(sys.argv[2:]))

@@ -7,10 +7,10 @@ from typing import Annotated
 
 import typer
 
-from ..errors import InputError
+from ..outputs import OutputSet
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import InventoryOpt, JobArg, JsonOpt, load, search_progress
+from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, load, plot_files, search_progress
 
 
 def design(
@@ -31,23 +31,36 @@ def design(
                     ] = None,
     report: Annotated[Path | None, typer.Option(
         "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
+    force: ForceOpt = False,
 ) -> None:
     """Search the stock for the best designs that meet every worst-case limit."""
+    from ..render.plots import DESIGN_PLOTS
     from ..search.design import design as run_design
+    from ..selection import input_record
 
-    job, inv = load(job_file, inventory)
-    assert inv is not None
-    with search_progress(json_out, "searching the shelf") as progress:
-        result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress)
-    payload = result.to_dict()
-    payload["job"] = str(job_file)
-    payload["inventory"] = str(inventory)
-    text = dumps(payload)
-    if save is not None:
-        try:
-            save.write_text(text + "\n", encoding="utf-8")
-        except OSError as exc:
-            raise InputError(f"cannot write the result: {exc.strerror}", file=str(save)) from None
+    outs = OutputSet({"the job file": job_file, "the stock file (--inventory)": inventory},
+                     force=force)
+    outs.file("--save", save)
+    outs.folder("--plot", plot, plot_files(DESIGN_PLOTS))
+    outs.file("--report", report)
+    with outs:
+        job, inv = load(job_file, inventory)
+        assert inv is not None
+        with search_progress(json_out, "searching the shelf") as progress:
+            result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress)
+        payload = result.to_dict()
+        payload["job"] = str(job_file)
+        payload["inventory"] = str(inventory)
+        payload["inputs"] = {"job": input_record(job_file),
+                             "inventory": input_record(inventory)}
+        text = dumps(payload)
+        if save is not None:
+            outs.write_text("--save", text + "\n")
+        if job.is_board:
+            _board_outputs(outs, job_file, job, inv, result, payload, report)
+        else:
+            _stage_outputs(outs, job_file, job, inv, result, payload, plot, report)
+        written = outs.commit()
     if json_out:
         typer.echo(text)
     elif job.is_board:
@@ -59,17 +72,28 @@ def design(
 
         render_design(make_console(), job, result)
     note = make_console(stderr=json_out)
-    if job.is_board:
-        _board_outputs(job_file, job, inv, result, payload, plot, report, note)
-        if not result.designs:
-            raise typer.Exit(1)
-        return
+    if job.is_board and plot is not None:
+        note.print("--plot draws single-stage results; for a board, check each stage with "
+                   "`stockbias check BOARD --stage NAME --plot DIR`")
+    if "--save" in written:
+        note.print(f"Result saved: {written['--save'][0]}")
+    if "--plot" in written:
+        note.print("Plots written: " + ", ".join(str(p) for p in written["--plot"]))
+    if "--report" in written:
+        note.print(f"Report written: {written['--report'][0]}")
+    if not result.designs:
+        raise typer.Exit(1)
+
+
+def _stage_outputs(outs: OutputSet, job_file: Path, job, inv, result, payload,
+                   plot: Path | None, report: Path | None) -> None:
+    """--plot and --report for a single-stage result, staged in ``outs``."""
     designs = payload.get("designs") or []
     if plot is not None and designs:
         from ..render.plots import write_design_plots
 
-        written = write_design_plots(designs, plot)
-        note.print("Plots written: " + ", ".join(str(p) for p in written))
+        with outs.writing("--plot") as folder:
+            write_design_plots(designs, folder)
     if report is not None:
         import sys
 
@@ -80,19 +104,15 @@ def design(
             notes.append(f"Explanation: {payload['explanation']}")
         checks = [(f"Rank {d.rank}: {d.topology}, {d.transistor.part_id}", d.check)
                   for d in result.designs[:3]]
-        render_report(report, title=f"Designs for {job_file.name}", job=job, inventory=inv,
-                      checks=checks, designs=designs, notes=notes,
-                      command="stockbias design " + " ".join(sys.argv[2:]))
-        note.print(f"Report written: {report}")
-    if not result.designs:
-        raise typer.Exit(1)
+        with outs.writing("--report") as tmp:
+            render_report(tmp, title=f"Designs for {job_file.name}", job=job, inventory=inv,
+                          checks=checks, designs=designs, notes=notes,
+                          command="stockbias design " + " ".join(sys.argv[2:]))
 
 
-def _board_outputs(job_file: Path, job, inv, result, payload, plot, report, note) -> None:
-    """--plot and --report for a board result."""
-    if plot is not None:
-        note.print("--plot draws single-stage results; for a board, check each stage with "
-                   "`stockbias check BOARD --stage NAME --plot DIR`")
+def _board_outputs(outs: OutputSet, job_file: Path, job, inv, result, payload,
+                   report: Path | None) -> None:
+    """--report for a board result, staged in ``outs``."""
     if report is not None:
         import sys
 
@@ -108,7 +128,7 @@ def _board_outputs(job_file: Path, job, inv, result, payload, plot, report, note
                          f"{best.distinct_values} values, {best.bom_lines} BOM lines")
             checks = [(f"Stage {s.name}: {s.topology}, {s.transistor.part_id}", s.check)
                       for s in best.stages]
-        render_report(report, title=f"Board design for {job_file.name}", job=job,
-                      inventory=inv, checks=checks, notes=notes,
-                      command="stockbias design " + " ".join(sys.argv[2:]))
-        note.print(f"Report written: {report}")
+        with outs.writing("--report") as tmp:
+            render_report(tmp, title=f"Board design for {job_file.name}", job=job,
+                          inventory=inv, checks=checks, notes=notes,
+                          command="stockbias design " + " ".join(sys.argv[2:]))

@@ -7,15 +7,17 @@ from typing import Annotated
 
 import typer
 
-from ..errors import InputError
+from ..errors import InputError, UnmetError
 from ..job import Job
+from ..outputs import OutputSet
 from ..parts import Inventory
 from ..render.console import make_console
-from ..selection import Selection, choose
+from ..selection import ACCEPT_CHANGED_OPTION, Selection, choose
 from ..units import format_quantity
-from .common import InventoryOpt, JobArg, JsonOpt, load
+from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, load
 
-__all__ = ["FromOpt", "RankOpt", "TransistorOpt", "ValuesOpt", "export", "select"]
+__all__ = ["AcceptChangedOpt", "FromOpt", "RankOpt", "TransistorOpt", "ValuesOpt", "export",
+           "select"]
 
 RankOpt = Annotated[int | None, typer.Option(
     "--rank", min=1, help="Design N of the search (or of the --from file; default 1).")]
@@ -27,6 +29,9 @@ ValuesOpt = Annotated[list[str] | None, typer.Option(
     "A|B. Repeatable. Goes with --transistor.")]
 TransistorOpt = Annotated[str | None, typer.Option(
     "--transistor", "-t", help="Stock part id of the transistor (with --values).")]
+AcceptChangedOpt = Annotated[bool, typer.Option(
+    ACCEPT_CHANGED_OPTION, help="Use a --from result although the job or stock file changed "
+    "since it was saved, after re-verifying the design against the current files.")]
 
 
 def select(job: Job, inventory: Inventory, rank: int | None, from_file: Path | None,
@@ -49,12 +54,20 @@ def export(
     values: ValuesOpt = None,
     transistor: TransistorOpt = None,
     json_out: JsonOpt = False,
+    accept_changed: AcceptChangedOpt = False,
+    force: ForceOpt = False,
 ) -> None:
     """Export the chosen stage: a SPICE netlist to verify it, a pick list to build it."""
     from ..render.json_out import dumps
     from ..render.netlist import export_netlist
     from ..render.pick_list import render_pick_list, write_pick_list
-    from ..selection import bench_needs, resolve_selection
+    from ..selection import (
+        bench_needs,
+        check_inputs,
+        failing_summary,
+        resolve_selection,
+        verify_selection,
+    )
 
     if netlist is None and pick_list is None:
         raise InputError("say what to export: --netlist OUT.cir and/or --pick-list OUT.csv",
@@ -62,19 +75,44 @@ def export(
     if json_out and netlist is not None and str(netlist) == "-":
         raise InputError("--json and --netlist - both want stdout; write the netlist to a "
                          "file", column="--netlist", text="-")
-    job, inv = load(job_file, inventory)
-    assert inv is not None
-    sel = select(job, inv, rank, from_file, values, transistor)
-    job = sel.job_for(job)
-    parts, t = resolve_selection(job, sel, inv)
-    payload: dict[str, object] = {"selection": sel.to_dict()}
+    outs = OutputSet({"the job file": job_file, "the stock file (--inventory)": inventory,
+                      "the saved result (--from)": from_file}, force=force)
+    outs.file("--netlist", netlist)
+    outs.file("--pick-list", pick_list)
+    with outs:
+        job, inv = load(job_file, inventory)
+        assert inv is not None
+        sel = select(job, inv, rank, from_file, values, transistor)
+        changed = check_inputs(sel, job_file, inventory, accept_changed=accept_changed)
+        if changed:
+            verdict = verify_selection(job, sel, inv)
+            if not verdict.ok:
+                raise UnmetError(f"{sel.source} fails the job with the current files "
+                                 f"({', '.join(changed)} changed): "
+                                 f"{failing_summary(verdict)}; nothing written")
+        job = sel.job_for(job)
+        parts, t = resolve_selection(job, sel, inv)
+        payload: dict[str, object] = {"selection": sel.to_dict()}
+        if changed:
+            payload["reverified"] = {"changed": changed, "ok": True}
+        exported = None
+        if netlist is not None:
+            exported = export_netlist(job, parts, t, topology=sel.topology, source=sel.source)
+            if str(netlist) != "-":
+                outs.write_text("--netlist", exported.text)
+        needs = bench_needs(parts, t, job.build.quantity) if pick_list is not None else []
+        if pick_list is not None:
+            with outs.writing("--pick-list") as tmp:
+                write_pick_list(tmp, needs)
+        outs.commit()
     console = make_console(stderr=netlist is not None and str(netlist) == "-")
-    if netlist is not None:
-        exported = export_netlist(job, parts, t, topology=sel.topology, source=sel.source)
+    if changed and not json_out:
+        make_console(stderr=True).print(f"Note: {', '.join(changed)} changed since the "
+                                        f"result was saved; {sel.source} re-verified "
+                                        "against the current files: it meets the job.")
+    if exported is not None:
         if str(netlist) == "-":
             typer.echo(exported.text, nl=False)
-        else:
-            _write(netlist, exported.text, "--netlist")
         payload["netlist"] = {"file": None if str(netlist) == "-" else str(netlist),
                               "model_card": exported.card, "temperature_c":
                               exported.temperature_c, "expected": exported.expected,
@@ -89,8 +127,6 @@ def export(
                           f"VCE {format_quantity(exported.expected['vce'], 'V')} "
                           "(exponential model)")
     if pick_list is not None:
-        needs = bench_needs(parts, t, job.build.quantity)
-        write_pick_list(pick_list, needs)
         payload["pick_list"] = {"file": str(pick_list), "build_quantity": job.build.quantity,
                                 "lines": [n.to_dict() for n in needs]}
         if not json_out:
@@ -98,11 +134,3 @@ def export(
             console.print(f"Pick list written to {pick_list}")
     if json_out:
         typer.echo(dumps(payload))
-
-
-def _write(path: Path, text: str, option: str) -> None:
-    try:
-        path.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise InputError(f"cannot write the file: {exc.strerror}", file=str(path),
-                         column=option) from None

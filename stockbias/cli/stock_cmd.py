@@ -7,12 +7,12 @@ from typing import Annotated
 
 import typer
 
-from ..errors import InputError, StockFileError
+from ..errors import InputError, StockFileError, UnmetError
 from ..render.console import make_console
 from ..render.json_out import dumps
 from ..stock_io import read_inventory
 from ..stock_summary import summarise
-from .export_cmd import FromOpt, RankOpt, TransistorOpt, ValuesOpt
+from .export_cmd import AcceptChangedOpt, FromOpt, RankOpt, TransistorOpt, ValuesOpt
 
 app = typer.Typer(help="Check and look after a stock file.", no_args_is_help=True)
 
@@ -65,17 +65,28 @@ def reserve(
                                           "write nothing.")] = False,
     json_out: Annotated[bool, typer.Option("--json",
                                            help="Print only a JSON object on stdout.")] = False,
+    accept_changed: AcceptChangedOpt = False,
+    force: Annotated[bool, typer.Option(
+        "--force", help="Reserve even a design that fails the job (it is re-checked first; "
+        "the failing limits are shown).")] = False,
 ) -> None:
     """Take the pieces for a build off the stock file (atomic, with a timestamped backup)."""
     from ..job import load_job
     from ..render.pick_list import render_reservation
-    from ..selection import bench_needs, resolve_selection
+    from ..selection import (
+        bench_needs,
+        check_inputs,
+        failing_summary,
+        resolve_selection,
+        verify_selection,
+    )
     from ..stock_write import reserve_stock
     from .export_cmd import select
 
     job = load_job(job_file)
     boards = job.build.quantity if quantity is None else quantity
-    selection = select(job, read_inventory(file), rank, from_file, values, transistor)
+    inventory = read_inventory(file)
+    selection = select(job, inventory, rank, from_file, values, transistor)
 
     def takes(inv):  # run on the file as read under the lock
         parts, t = resolve_selection(job, selection, inv)
@@ -88,10 +99,25 @@ def reserve(
                              text=selection.assignment_text())
         return {n.part_id: n.quantity for n in needs}
 
+    takes(inventory)  # a part that is not on the shelf is refused before any analysis
+    changed = check_inputs(selection, job_file, file, accept_changed=accept_changed)
+    verdict = verify_selection(job, selection, inventory)
+    if not verdict.ok:
+        why = (f"{selection.source} fails the job: {failing_summary(verdict)}")
+        if not force:
+            raise UnmetError(f"{why}; nothing reserved (--force reserves it anyway)",
+                             file=str(job_file))
+        make_console(stderr=True).print(f"Warning: {why}; reserved anyway (--force)")
+    elif changed:
+        make_console(stderr=True).print(f"Note: {', '.join(changed)} changed since the "
+                                        f"result was saved; {selection.source} re-verified "
+                                        "against the current files: it meets the job.")
+
     res = reserve_stock(file, takes, dry_run=dry_run, build_label=f" for {boards} board(s)")
     if json_out:
         payload = res.to_dict()
-        payload.update({"build_quantity": boards, "selection": selection.to_dict()})
+        payload.update({"build_quantity": boards, "selection": selection.to_dict(),
+                        "design_ok": verdict.ok})
         typer.echo(dumps(payload))
         return
     render_reservation(make_console(), res, boards)

@@ -9,9 +9,19 @@ from typing import Annotated
 import typer
 
 from ..assign import parse_assignments
+from ..outputs import OutputSet
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import InventoryOpt, JobArg, JsonOpt, SeedOpt, TransistorOpt, ValuesOpt, load
+from .common import (
+    ForceOpt,
+    InventoryOpt,
+    JobArg,
+    JsonOpt,
+    SeedOpt,
+    TransistorOpt,
+    ValuesOpt,
+    load,
+)
 
 
 def substitute(
@@ -29,30 +39,39 @@ def substitute(
     seed: SeedOpt = 0,
     report: Annotated[Path | None, typer.Option(
         "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
+    force: ForceOpt = False,
 ) -> None:
     """Judge every stock transistor for an existing stage: drop-in, least rework, or ruled out."""
     from ..search.substitute import substitute as run
 
-    job, inv = load(job_file, inventory)
-    assert inv is not None
-    result = run(job, parse_assignments(values), transistor, inv, max_changes=max_changes,
-                 time_limit_s=time_limit, samples=samples, seed=seed)
+    outs = OutputSet({"the job file": job_file, "the stock file (--inventory)": inventory},
+                     force=force)
+    outs.file("--report", report)
+    with outs:
+        job, inv = load(job_file, inventory)
+        assert inv is not None
+        result = run(job, parse_assignments(values), transistor, inv, max_changes=max_changes,
+                     time_limit_s=time_limit, samples=samples, seed=seed)
+        if report is not None:
+            from ..render.report import render_report
+            from ..render.substitute_table import verdict_lines
+
+            checks = [(f"{c.transistor.part_id}: "
+                       + ("drop-in" if c.drop_in else "with the least rework"), c.check)
+                      for c in result.candidates if c.check is not None and c.fixed]
+            with outs.writing("--report") as tmp:
+                render_report(tmp, title=f"Substitutes for {transistor} in stage "
+                              f"'{result.stage}'", job=job, inventory=inv, checks=checks,
+                              notes=verdict_lines(result),
+                              command="stockbias substitute " + " ".join(sys.argv[2:]))
+        written = outs.commit()
     if json_out:
         typer.echo(dumps(result.to_dict()))
     else:
         from ..render.substitute_table import render_substitute
 
         render_substitute(make_console(), job, result)
-    if report is not None:
-        from ..render.report import render_report
-        from ..render.substitute_table import verdict_lines
-
-        checks = [(f"{c.transistor.part_id}: "
-                   + ("drop-in" if c.drop_in else "with the least rework"), c.check)
-                  for c in result.candidates if c.check is not None and c.fixed]
-        render_report(report, title=f"Substitutes for {transistor} in stage '{result.stage}'",
-                      job=job, inventory=inv, checks=checks, notes=verdict_lines(result),
-                      command="stockbias substitute " + " ".join(sys.argv[2:]))
-        make_console(stderr=json_out).print(f"Report written: {report}")
+    if "--report" in written:
+        make_console(stderr=json_out).print(f"Report written: {written['--report'][0]}")
     if not any(c.fixed for c in result.candidates):
         raise typer.Exit(1)
