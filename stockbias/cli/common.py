@@ -27,6 +27,14 @@ TransistorOpt = Annotated[str, typer.Option("--transistor", "-t",
                                             help="Stock part id of the transistor.")]
 SeedOpt = Annotated[int, typer.Option("--seed", min=0, max=2**31 - 1,
                                       help="Monte Carlo seed, 0 to 2147483647.")]
+ForceOpt = Annotated[bool, typer.Option(
+    "--force", help="Replace output files that exist (a symbolic link is replaced itself, "
+    "never the file it points to). Inputs are never written over.")]
+
+
+def plot_files(stems: tuple[str, ...]) -> list[str]:
+    """The file names a --plot folder may receive for these plot stems (PNG and SVG)."""
+    return [f"{stem}.{fmt}" for stem in stems for fmt in ("png", "svg")]
 
 
 def load(job_path: Path, inventory_path: Path | None) -> tuple[Job, Inventory | None]:
