@@ -17,6 +17,10 @@ through one function here before it is written:
 - :func:`spreadsheet_cell` / :func:`spreadsheet_row` -- a text cell that a
   spreadsheet would take as a formula gets a leading ``'`` (OWASP "CSV
   Injection" guidance); numbers we computed stay numbers.
+- :func:`console_text` -- text for a rich terminal table: markup (``[bold]``,
+  ``[link=...]``, a stray ``[/x]`` that would stop the program) escaped and
+  control characters (terminal escape sequences start with ESC) shown as
+  ``<U+XXXX>``.
 """
 
 from __future__ import annotations
@@ -29,6 +33,7 @@ __all__ = [
     "FORMULA_LEADS",
     "NETLIST_TEXT_LIMIT",
     "check_spice_name",
+    "console_text",
     "netlist_comment",
     "netlist_text",
     "spice_name",
@@ -184,3 +189,26 @@ def spreadsheet_cell(value: object) -> str:
 def spreadsheet_row(values: Sequence[object]) -> list[str]:
     """Every cell of one CSV row through :func:`spreadsheet_cell`."""
     return [spreadsheet_cell(v) for v in values]
+
+
+def console_text(value: object) -> str:
+    """Free text for a rich console: shown as written, never read as markup or escapes.
+
+    Parameters
+    ----------
+    value : object
+        Any text (``str()`` is taken of anything else).
+
+    Returns
+    -------
+    str
+        ``value`` with rich markup escaped (``[`` shown, not interpreted) and every
+        control or invisible character (ESC, line breaks, U+202E...) shown as
+        ``<U+XXXX>``, so no part id or location can colour, retitle or clear
+        the terminal, or stop the program with a markup error.
+    """
+    from rich.markup import escape  # rich only where a console is drawn
+
+    shown = "".join(_placeholder(ch) if unicodedata.category(ch) in _HIDDEN_CATEGORIES
+                    else ch for ch in str(value))
+    return escape(shown)

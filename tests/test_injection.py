@@ -24,12 +24,14 @@ from dataclasses import replace
 from pathlib import Path
 
 import pytest
+from rich.console import Console
 from typer.testing import CliRunner
 
 from stockbias.analysis.spice import run_ngspice_plots
 from stockbias.cli.app import app
 from stockbias.inert_text import (
     check_spice_name,
+    console_text,
     netlist_comment,
     netlist_text,
     spice_name,
@@ -38,7 +40,7 @@ from stockbias.inert_text import (
 )
 from stockbias.job import load_job
 from stockbias.render.netlist import ExportedNetlist, export_netlist
-from stockbias.render.pick_list import pick_list_csv
+from stockbias.render.pick_list import pick_list_csv, render_pick_list
 from stockbias.selection import Selection, bench_needs, resolve_selection
 from stockbias.stock_io import read_inventory
 
@@ -336,3 +338,21 @@ def test_cli_pick_list_from_a_hostile_shelf(tmp_path: Path) -> None:
     with out.open(encoding="utf-8", newline="") as f:
         rows = list(csv.DictReader(f))
     assert [r["location"] for r in rows] == ["'=HYPERLINK(\"http://x\",\"open\")"] * 5
+
+
+# --- the terminal ----------------------------------------------------------------------------
+
+def test_console_text_shows_markup_and_escapes_as_written() -> None:
+    assert console_text("[bold]B3[/bold]") == "\\[bold]B3\\[/bold]"  # rich shows "[bold]B3..."
+    assert console_text("\x1b[31mB3\x1b]0;title\x07") == "<U+001B>[31mB3<U+001B>]0;title<U+0007>"
+    assert console_text("CF-4K7 drawer B3") == "CF-4K7 drawer B3"
+
+
+def test_pick_list_table_prints_hostile_ids_literally() -> None:
+    # "[/x]" alone makes rich raise a markup error; ESC sequences would recolour the terminal
+    needs = _hostile_needs("[/x]\x1b[2J", "part_id") + _hostile_needs("[link=file:///]", "location")
+    console = Console(file=io.StringIO(), width=250)
+    render_pick_list(console, needs, 10)
+    out = console.file.getvalue()
+    assert "[/x]<U+001B>[2JCF-22K" in out and "[link=file:///]B2" in out
+    assert "\x1b" not in out

@@ -15,7 +15,7 @@ from rich.console import Console
 from rich.table import Table
 
 from ..errors import InputError
-from ..inert_text import spreadsheet_row
+from ..inert_text import console_text, spreadsheet_row
 from ..selection import Need
 from ..stock_write import Reservation
 
@@ -82,14 +82,17 @@ def render_pick_list(console: Console, needs: Sequence[Need], build_quantity: in
         left = "" if n.remaining is None else str(n.remaining)
         if n.short:
             left = f"[bold red]{left or 'not in stock'}[/bold red]"
-        table.add_row(n.location, n.part_id or "-", n.description, " ".join(n.roles),
+        # location, part id and (for an off-stock value) description are shown, never
+        # read as markup or terminal escapes
+        table.add_row(console_text(n.location), console_text(n.part_id) or "-",
+                      console_text(n.description), " ".join(n.roles),
                       str(n.per_board), str(n.quantity),
                       "" if n.in_stock is None else str(n.in_stock), left)
     console.print(table)
     short = [n for n in needs if n.short]
     if short:
         console.print("[bold red]short[/bold red]: " + "; ".join(
-            f"{n.part_id or n.description} needs {n.quantity}, "
+            f"{console_text(n.part_id or n.description)} needs {n.quantity}, "
             f"{'none in stock' if n.in_stock is None else f'{n.in_stock} in stock'}"
             for n in short))
 
@@ -97,12 +100,13 @@ def render_pick_list(console: Console, needs: Sequence[Need], build_quantity: in
 def render_reservation(console: Console, res: Reservation, build_quantity: int) -> None:
     """What a reservation took (or, in a dry run, would take)."""
     verb = "Reserved" if res.written else "Would reserve (dry run, nothing written)"
-    table = Table(title=f"{verb} for {build_quantity} board(s) in {res.path}",
+    table = Table(title=f"{verb} for {build_quantity} board(s) in {console_text(res.path)}",
                   title_justify="left")
     for col in ("part id", "line", "before", "taken", "after"):
         table.add_column(col, justify="left" if col == "part id" else "right")
     for c in res.changes:
-        table.add_row(c.part_id, str(c.line), str(c.before), str(c.taken), str(c.after))
+        table.add_row(console_text(c.part_id), str(c.line), str(c.before), str(c.taken),
+                      str(c.after))
     console.print(table)
     if res.backup:
-        console.print(f"Backup of the previous file: {res.backup}")
+        console.print(f"Backup of the previous file: {console_text(res.backup)}")
