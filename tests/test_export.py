@@ -151,11 +151,19 @@ def test_export_netlist_to_stdout() -> None:
 
 
 def test_export_from_a_saved_result(tmp_path: Path) -> None:
+    import hashlib
+
+    def record(path: Path) -> dict[str, object]:  # what design --save records of an input
+        data = path.read_bytes()
+        return {"path": str(path), "sha256": hashlib.sha256(data).hexdigest(),
+                "size": len(data)}
+
     saved = tmp_path / "r.json"
     saved.write_text(json.dumps({"designs": [{
         "rank": 1, "topology": "fixed_base", "transistor": {"part_id": "QN-LB1"},
         "parts": {"RB": {"part_id": "CF-470K", "value_ohm": 470e3},
-                  "RC": {"part_id": "CF-2K2", "value_ohm": 2200.0}}}]}))
+                  "RC": {"part_id": "CF-2K2", "value_ohm": 2200.0}}}],
+        "inputs": {"job": record(JOB), "inventory": record(SHELF)}}))
     out = tmp_path / "s.cir"
     result = runner.invoke(app, ["export", str(JOB), "-i", str(SHELF), "--from", str(saved),
                                  "--netlist", str(out)])
