@@ -27,7 +27,7 @@ import pytest
 from rich.console import Console
 from typer.testing import CliRunner
 
-from stockbias.analysis.spice import run_ngspice_plots
+from stockbias.analysis.spice import run_ngspice_plots, write_netlist
 from stockbias.cli.app import app
 from stockbias.inert_text import (
     check_spice_name,
@@ -167,6 +167,14 @@ def test_payload_in_every_field_leaves_the_cards_unchanged(tmp_path: Path, route
     assert_inert(text, clean)
     if route != "resistor note" and route != "transistor note":  # notes are not written
         assert "shell touch" in text  # the text is there, on a comment line
+
+
+@pytest.mark.parametrize("title", [".control", "*# shell touch x", "+ R9 b 0 1", "; x", ""])
+def test_title_line_never_looks_like_a_card(title: str) -> None:
+    text = write_netlist("divider", {"R1": 47e3, "R2": 10e3, "RC": 3.3e3, "RE": 1e3}, "NPN",
+                         12.0, None, {"is_a": 1e-14, "bf": 150.0}, 25.0, title=title + "\nX")
+    first = text.split("\n")[0]
+    assert first[0] not in ".*+;$" and first.endswith(netlist_text(title + "\nX"))
 
 
 def test_raw_payload_does_run_in_ngspice(tmp_path: Path) -> None:

@@ -154,7 +154,10 @@ def write_netlist(
     for a in analyses:
         if not a.isascii() or not a.isprintable():
             raise ValueError(f"analysis line is not one printable ASCII line: {a!r}")
-    lines = [" ".join(netlist_text(title).split()) or "stockbias stage"]
+    # The first line is the title, read as text by SPICE; still, never let it look like
+    # a card, a comment or a continuation to a reader that skips it differently.
+    head = " ".join(netlist_text(title).split()) or "stockbias stage"
+    lines = [f"title: {head}" if head[0] in ".*+;$" else head]
     lines += [netlist_comment(c, _COMMENT_LIMIT) for c in comments]
     lines.append(f"* network {net.name}, {pol}; values in ohm, volt, ampere")
     for rail, node in _RAIL_NODE.items():
