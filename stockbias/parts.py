@@ -64,7 +64,11 @@ class Resistor:
     power_w : float
         Power rating at 70 °C or below, watt.
     tempco_ppm : float or None
-        Temperature coefficient, ppm/°C, taken as ± (worst case either way).
+        Temperature coefficient, ppm/°C.
+    tempco_signed : bool
+        True when the stock file wrote the coefficient with a sign (``-350``, ``+100``):
+        it is that signed coefficient.  False (a bare magnitude or ``±350``): either sign,
+        worst case either way, and ``tempco_ppm`` is the magnitude.
     qty : int
         Pieces in stock.
     unit_cost : float
@@ -83,6 +87,7 @@ class Resistor:
     location: str = ""
     note: str = ""
     line: int = 0
+    tempco_signed: bool = False
 
     kind = "resistor"
 
@@ -95,6 +100,21 @@ class Resistor:
             raise ValueError(f"power rating must be > 0 W, got {self.power_w}")
         if self.qty < 0:
             raise ValueError(f"quantity must be >= 0, got {self.qty}")
+        if self.tempco_ppm is not None and not math.isfinite(self.tempco_ppm):
+            raise ValueError(f"tempco must be finite, got {self.tempco_ppm}")
+        if self.tempco_ppm is not None and not self.tempco_signed and self.tempco_ppm < 0:
+            raise ValueError("an unsigned tempco is a magnitude (>= 0); mark a negative "
+                             "coefficient tempco_signed")
+
+    @property
+    def tempco_text(self) -> str:
+        """The coefficient as taken: ``−350 ppm/°C``, ``+100 ppm/°C`` or ``±350 ppm/°C``."""
+        if self.tempco_ppm is None:
+            return "-"
+        if self.tempco_signed:
+            sign = "−" if self.tempco_ppm < 0 else "+"
+            return f"{sign}{abs(self.tempco_ppm):g} ppm/°C"
+        return f"±{self.tempco_ppm:g} ppm/°C"
 
     @property
     def is_link(self) -> bool:
@@ -105,7 +125,8 @@ class Resistor:
         return {
             "part_id": self.part_id, "kind": self.kind, "line": self.line,
             "value_ohm": self.value_ohm, "tolerance_pct": self.tolerance_pct,
-            "power_w": self.power_w, "tempco_ppm": self.tempco_ppm, "qty": self.qty,
+            "power_w": self.power_w, "tempco_ppm": self.tempco_ppm,
+            "tempco_signed": self.tempco_signed, "qty": self.qty,
             "unit_cost": self.unit_cost, "location": self.location, "note": self.note,
             "zero_ohm_link": self.is_link,
         }

@@ -346,14 +346,42 @@ class _RowReader:
         value = self.number("value", required=True)
         tol = self.number("tolerance_pct", required=True)
         power = self.number("power_w", required=True)
-        tempco = self.number("tempco_ppm", required=False)
+        tempco, signed = self.tempco()
         if not self.ok or value is None or tol is None or power is None:
             return None
         if value == 0:
             self.warnings.append((self.line, "value", self.raw("value"),
                                   "zero-ohm link: kept in stock, never used for a bias role"))
         return Resistor(value_ohm=value, tolerance_pct=tol, power_w=power,
-                        tempco_ppm=abs(tempco) if tempco is not None else None, **common)
+                        tempco_ppm=tempco, tempco_signed=signed, **common)
+
+    def tempco(self) -> tuple[float | None, bool]:
+        """``tempco_ppm`` and whether it is signed: ``-350``/``+100`` are that signed
+        coefficient; a bare magnitude, ``±350`` or ``+/-350`` mean either sign (magnitude)."""
+        text = self.raw("tempco_ppm")
+        if "tempco_ppm" in self.refused:  # already reported by screen()
+            return None, False
+        either = next((p for p in ("±", "+/-", "+-") if text.startswith(p)), None)
+        if either is None:
+            value = self.number("tempco_ppm", required=False)
+            if value is None:
+                return None, False
+            signed = text.startswith(("-", "+", "−"))
+            return (value, True) if signed else (abs(value), False)
+        rest = text[len(either):].strip()
+        try:
+            if rest[:1] in ("+", "-", "−"):
+                raise NotationError("a ± tempco is a magnitude: no second sign")
+            value = parse_quantity(rest, COLUMNS["tempco_ppm"].unit or "",
+                                   decimal_comma=self.decimal_comma)
+        except NotationError as exc:
+            self.fail("tempco_ppm", text, exc.message)
+            return None, False
+        check = _RANGES.get("tempco_ppm")
+        if check is not None and not check[0](value):
+            self.fail("tempco_ppm", text, check[1])
+            return None, False
+        return abs(value), False
 
     def _transistor(self, common: dict) -> Transistor | None:
         polarity = self.raw("polarity").upper()

@@ -67,6 +67,8 @@ def test_report_is_self_contained_and_complete(check_result) -> None:
     assert not re.search(r"(src|href)=\"(https?:)?//", text)  # nothing from the network
     assert inv.sha256 in text and str(JOB) in text and str(SHELF) in text
     assert "CF-22K+CF-22K" in text
+    assert "6.67 %" in text   # the design's ic_margin 0.0667 in % of the target
+    assert "min(IC worst-case min − IC min, IC max − IC worst-case max) / IC target" in text
     # failures first in the constraints table
     table = text.split("Constraints at the worst corner", 1)[1]
     assert table.index("FAIL") < table.index('class="ok"')

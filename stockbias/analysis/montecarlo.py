@@ -1,11 +1,15 @@
 """Monte Carlo yield: draw boards as manufacturing varies them, test each over the environment.
 
-Each drawn board gets its own resistor values (±tol as a 3σ normal truncated at
-±tol, DESIGN §2), its own resistor tempcos (uniform within ±|tempco|), its own
-hFE and VBE (uniform in the stock ranges) and leakage (uniform 0…ICBO).  Each
-board is then evaluated at every environment corner: both supply extremes
-(and both negative-supply extremes for a dual supply) × both ambient extremes.
-A board passes when every limit holds at every one of its corners.
+Each drawn board gets its own resistor values (each physical part: ±tol as a 3σ
+normal truncated at ±tol, DESIGN §2; a pair's two parts drawn apart and combined
+in series or parallel), its own resistor tempcos (a signed coefficient exactly
+as stated; an unsigned one uniform within ±|tempco|, drawn once per part and
+board), its own hFE and VBE (uniform in the stock ranges) and leakage at 25 °C
+(uniform 0…ICBO, then doubling every 10 °C with the ambient).  Each board is then
+evaluated at every environment corner: both supply extremes (and both
+negative-supply extremes for a dual supply) × both ambient extremes, each part
+at R·(1 + δ)·(1 + tc·(T − 25 °C)).  A board passes when every limit holds at
+every one of its corners.
 """
 
 from __future__ import annotations
@@ -16,7 +20,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from .constraints import Limit, evaluate_limits
-from .stage import SMALL_SIGNAL_QUANTITIES, StagePoint, StageSpec, evaluate
+from .stage import (
+    SMALL_SIGNAL_QUANTITIES,
+    ResistorPiece,
+    ResistorSpec,
+    StagePoint,
+    StageSpec,
+    evaluate,
+)
 from .statistics import YieldResult, draw_resistor_factors, draw_uniform, yield_estimate
 
 __all__ = ["MonteCarloResult", "monte_carlo"]
@@ -65,7 +76,8 @@ def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int,
         Number of boards.
     rng : numpy.random.Generator
     tempco_ppm : dict, optional
-        role → |tempco| in ppm/°C (drawn uniform in ±); default none.
+        role → |tempco| in ppm/°C (drawn uniform in ±) for roles whose spec names no
+        ``pieces``; a role with pieces draws each piece's own tempco (signed or not).
     chunk : int
         Boards evaluated at once (bounds memory).  Results are reproducible for the
         same seed, samples and chunk.
@@ -86,16 +98,11 @@ def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int,
     failing: dict[str, int] = {}
     for start in range(0, n, chunk):
         size = min(chunk, n - start)
-        factors = {role: draw_resistor_factors(rng, 100 * float(spec.resistors[role].tol),
-                                               size) for role in roles}
-        tempco = {role: draw_uniform(rng, -abs((tempco_ppm or {}).get(role, 0.0)),
-                                     abs((tempco_ppm or {}).get(role, 0.0)), size) * 1e-6
-                  for role in roles}
+        r = {role: _draw_role(rng, spec.resistors[role], (tempco_ppm or {}).get(role, 0.0),
+                              size, amb) for role in roles}
         hfe = draw_uniform(rng, float(d.hfe_min), float(d.hfe_max), size)
         vbe = draw_uniform(rng, float(d.vbe_min), float(d.vbe_max), size)
         icbo = draw_uniform(rng, 0.0, float(d.icbo_a), size)
-        r = {role: float(spec.resistors[role].value) * factors[role][:, None]
-             * (1 + tempco[role][:, None] * (amb - 25.0)) for role in roles}
         point = StagePoint(vcc=vcc, vee=vee, r=r, hfe=hfe[:, None], vbe=vbe[:, None],
                            icbo=icbo[:, None], ambient_c=amb)
         ev = evaluate(spec, point, small_signal=small_signal)
@@ -114,6 +121,33 @@ def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int,
     failing = {k: v for k, v in failing.items() if v}
     return MonteCarloResult(yield_=yield_estimate(ok), ic=ic_all, vce=vce_all, failing=failing,
                             seed=seed)
+
+
+def _draw_role(rng: np.random.Generator, rs: ResistorSpec, tempco_ppm: float, size: int,
+               amb: np.ndarray) -> np.ndarray:
+    """One role's value on each drawn board at each environment corner, ohm (size × corners).
+
+    Each piece: nominal·(1 + δ)·(1 + tc·(T − 25 °C)), δ a 3σ normal truncated at ±tol; tc
+    the stated coefficient when signed, else uniform in ±|tc|.  Pieces combine as the
+    role's arrangement says.  A spec without pieces is one part at ±tol with an unsigned
+    ``tempco_ppm``.
+    """
+    pieces = rs.pieces or (ResistorPiece(float(rs.value), float(rs.tol), abs(tempco_ppm),
+                                         False),)
+    values = []
+    for p in pieces:
+        factor = draw_resistor_factors(rng, 100 * p.tol, size)
+        if p.signed:
+            tc = np.full(size, p.tempco_ppm * 1e-6)
+        else:
+            tc = draw_uniform(rng, -abs(p.tempco_ppm), abs(p.tempco_ppm), size) * 1e-6
+        values.append(p.value * factor[:, None] * (1 + tc[:, None] * (amb - 25.0)))
+    if len(values) == 1:
+        return values[0]
+    a, b = values
+    if rs.arrangement == "series":
+        return a + b
+    return a * b / (a + b)
 
 
 def _columns(op: np.ufunc, values: np.ndarray) -> np.ndarray:

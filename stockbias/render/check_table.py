@@ -107,18 +107,24 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
                   f"{env.ambient_min_c:g} to {env.ambient_max_c:g} °C")
     parts = []
     for role, p in result.parts.items():
-        ids = "+".join(p.part_ids) if p.arrangement == "series" else "|".join(p.part_ids)
-        where = f" ({ids})" if ids else " (not in stock)"
-        parts.append(f"{role} = {_q(p.value, 'ohm')} ±{100 * p.tol:.3g} %{where}")
+        ids = [q.part_id or "[yellow]NOT IN STOCK[/yellow]" for q in (p.pieces or p.parts)]
+        ids = ids if p.pieces or p.parts else ["[yellow]NOT IN STOCK[/yellow]"]
+        where = f" ({('+' if p.arrangement == 'series' else '|').join(ids)})"
+        lo, hi = 100 * p.tol_low, 100 * p.tol_high
+        band = f"±{hi:.3g} %" if f"{lo:.3g}" == f"{hi:.3g}" else f"−{lo:.3g}/+{hi:.3g} %"
+        parts.append(f"{role} = {_q(p.value, 'ohm')} {band}{where}")
     console.print("Parts: " + ", ".join(parts))
     n_fail = len(result.failing)
     n_all = len(result.constraints)
+    unstocked = [role for role, p in result.parts.items() if not p.in_stock]
+    flag = (f" [yellow](with values not in stock: {', '.join(unstocked)})[/yellow]"
+            if unstocked else "")
     if n_fail:
         console.print(f"[bold red]FAIL[/bold red]: {n_fail} of {n_all} constraints fail: "
-                      + ", ".join(c.name for c in result.failing))
+                      + ", ".join(c.name for c in result.failing) + flag)
     else:
         console.print(f"[bold green]PASS[/bold green]: all {n_all} constraints hold at every "
-                      "worst-case corner")
+                      "worst-case corner" + flag)
     render_constraints(console, result.constraints)
 
     console.print(f"IC margin {100 * result.ic_margin:.2f} % of the target "

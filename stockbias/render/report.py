@@ -166,14 +166,18 @@ def _designs_section(designs: Sequence[Mapping[str, Any]]) -> str:
         mark = "" if ok is None else ('<span class="ok">ok</span>' if ok
                                       else '<span class="fail">FAIL</span>')
         cost = d.get("cost")
+        margin = d.get("ic_margin")
         rows.append([_e(d.get("rank", "")), _e(d.get("topology", "")),
                      _e(tr.get("part_id", "") if isinstance(tr, Mapping) else ""),
                      _e("; ".join(parts)),
                      _e(f"{cost:.4g}" if isinstance(cost, (int, float)) else ""),
-                     _e(d.get("part_count", "")), mark])
+                     _e(d.get("part_count", "")),
+                     _e(f"{100 * margin:.2f} %" if isinstance(margin, (int, float)) else ""),
+                     mark])
     html_out = "<h2>Ranked designs</h2>" + _table(
         ["rank", "topology", "transistor", "parts", "cost per board", "parts per board",
-         "check"], rows, numeric=(0, 4, 5))
+         "IC margin", "check"], rows, numeric=(0, 4, 5, 6)) + \
+        f"<p class=\"small\">{_e(IC_MARGIN_DEFINITION)}.</p>"
     try:
         from .plots import design_margin_figure, figure_bytes
 

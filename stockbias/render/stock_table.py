@@ -32,7 +32,7 @@ def render_stock_summary(console: Console, inv: Inventory, summary: StockSummary
             table.add_column(col, justify="right" if col in ("value", "qty") else "left")
         for r in inv.resistors:
             series = "link" if r.is_link else (summary.series_of_value.get(r.part_id) or "-")
-            tempco = f"±{r.tempco_ppm:g} ppm/°C" if r.tempco_ppm is not None else "-"
+            tempco = r.tempco_text  # −350 (signed), +100 (signed) or ±350 (either sign)
             qty = f"[red]{r.qty}[/red]" if r.qty == 0 else str(r.qty)
             table.add_row(r.part_id, format_quantity(r.value_ohm, "ohm"),
                           f"±{r.tolerance_pct:g} %", format_quantity(r.power_w, "W"), tempco,

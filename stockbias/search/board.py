@@ -246,10 +246,7 @@ def resolved_parts(g: StageOptions, design: dict[str, int], universe_lines: list
         if int(c.arrangement[i]) < 0:
             continue
         a = universe_lines[int(c.line_a[i])]
-        parts[role] = ResolvedResistor(role=role, value=a.value_ohm, tol=a.tolerance_pct / 100,
-                                       tempco_ppm=a.tempco_ppm or 0.0, rating=a.power_w,
-                                       parts=(a,) if a.part_id else (),
-                                       off_stock=not a.part_id)
+        parts[role] = ResolvedResistor.of_part(role, a, off_stock=not a.part_id)
     return parts
 
 

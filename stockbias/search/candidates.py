@@ -6,11 +6,13 @@ optional role, nothing at all (absent, a short).  Candidates are held as
 sorted numpy arrays (by nominal value) so that the pre-pass can cut the
 admissible interval of a role with ``searchsorted``.
 
-Bounds match the re-verification path exactly: a candidate's spec is the one
-:func:`stockbias.analysis.check.build_spec` makes from the
-:class:`stockbias.assign.ResolvedResistor` of the same parts (a pair's band is
-the wider side of its exact bounds, its tempco the larger magnitude, its
-rating the smallest allowed_i / share_i).
+Bounds match the re-verification path exactly: a candidate's band is the one
+:func:`stockbias.analysis.check.build_spec` takes from the
+:class:`stockbias.assign.ResolvedResistor` of the same parts, by the same
+functions (:mod:`stockbias.resistor_band`): each part over its tolerance and its
+tempco drift across the ambient range (a signed tempco one way, an unsigned one
+either way); a pair's exact, asymmetric band from its parts' extremes; a pair's
+rating the smallest rating_i / worst share_i at the split its parts' bands allow.
 
 Stock quantity: a line is offered only if it holds at least one build's worth
 (``build.quantity`` pieces; two for a pair of the same line).  The model then
@@ -24,9 +26,17 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..assign import ResolvedResistor
+from ..assign import ResolvedResistor, pair_of
 from ..job import Job
 from ..parts import Inventory, Resistor, Transistor
+from ..resistor_band import (
+    drift_factors,
+    pair_band,
+    pair_rating,
+    pair_tempco,
+    pair_value,
+    piece_band,
+)
 
 __all__ = [
     "ABSENT",
@@ -53,8 +63,9 @@ def micro(cost: float) -> int:
 class RoleCandidates:
     """Candidates for one role, sorted by nominal value (absent first when offered).
 
-    Arrays (length n): ``value`` ohm, ``tol`` fraction, ``tempco`` ppm/°C (magnitude),
-    ``drift`` fraction over the ambient span, ``low``/``high`` ohm (the spec's bounds),
+    Arrays (length n): ``value`` ohm, ``tol`` fraction (the wider side of the band at 25 °C),
+    ``tempco`` ppm/°C (magnitude), ``drift`` largest drift fraction of a part over the
+    ambient range, ``low``/``high`` ohm (the exact band the spec uses),
     ``rating`` W (allowed total at 70 °C), ``cost`` micro-units, ``parts`` count,
     ``line_a``/``line_b`` indices into :attr:`Shelf.lines` (−1 none), ``value_a``/``value_b``
     indices into :attr:`Shelf.values` (−1 none), ``arrangement`` code.
@@ -92,7 +103,8 @@ class Shelf:
 
     ``lines``: the resistor rows (zero-ohm links and lines short of one build left out);
     ``values``: sorted distinct nominal values, ohm; ``single``/``with_pairs``: candidates
-    without and with pairs; ``span_c``: largest |T − 25 °C| over the ambient range.
+    without and with pairs; ``span_c``: largest |T − 25 °C| over the ambient range;
+    ``ambient_c``: the ambient range, °C.
     """
 
     lines: tuple[Resistor, ...]
@@ -100,6 +112,7 @@ class Shelf:
     single: RoleCandidates
     with_pairs: RoleCandidates | None
     span_c: float
+    ambient_c: tuple[float, float] = (25.0, 25.0)
 
     def candidates(self, optional: bool, pairs: bool) -> RoleCandidates:
         """The candidate table of a role (with an absent entry first when optional)."""
@@ -117,13 +130,9 @@ class Shelf:
             return None
         a = self.lines[int(cand.line_a[i])]
         if code == SINGLE:
-            return ResolvedResistor(role=role, value=a.value_ohm, tol=a.tolerance_pct / 100,
-                                    tempco_ppm=a.tempco_ppm or 0.0, rating=a.power_w,
-                                    parts=(a,))
+            return ResolvedResistor.of_part(role, a)
         b = self.lines[int(cand.line_b[i])]
-        return ResolvedResistor(role=role, value=float(cand.value[i]), tol=float(cand.tol[i]),
-                                tempco_ppm=float(cand.tempco[i]), rating=float(cand.rating[i]),
-                                parts=(a, b), arrangement=_ARRANGEMENT[code])
+        return pair_of(role, a, b, _ARRANGEMENT[code], ambient=self.ambient_c)
 
 
 def _table(value, tol, tempco, drift, low, high, rating, cost, parts, la, lb, va, vb,
@@ -160,6 +169,7 @@ def build_shelf(job: Job, inventory: Inventory, *, pairs: bool | None = None,
         Refuse more pair candidates than this (memory), per arrangement.
     """
     env = job.environment
+    amb = (env.ambient_min_c, env.ambient_max_c)
     span = max(abs(env.ambient_min_c - 25.0), abs(env.ambient_max_c - 25.0))
     need = job.build.quantity
     lines = tuple(r for r in inventory.bias_resistors if r.qty >= need)
@@ -167,15 +177,18 @@ def build_shelf(job: Job, inventory: Inventory, *, pairs: bool | None = None,
     n = len(lines)
     v = np.array([r.value_ohm for r in lines], dtype=float)
     t = np.array([r.tolerance_pct / 100 for r in lines], dtype=float)
-    tc = np.array([abs(r.tempco_ppm or 0.0) for r in lines], dtype=float)
+    tcs = np.array([r.tempco_ppm or 0.0 for r in lines], dtype=float)  # signed where stated
+    sgn = np.array([r.tempco_signed for r in lines], dtype=bool)
+    tc = np.abs(tcs)
     rating = np.array([r.power_w for r in lines], dtype=float)
     cost = np.array([micro(r.unit_cost) for r in lines], dtype=np.int64)
     vid = np.searchsorted(values, v)
-    drift = tc * 1e-6 * span
+    f_lo, f_hi = drift_factors(tcs, sgn, *amb)
+    drift = np.maximum(1.0 - f_lo, f_hi - 1.0)
+    lo1, hi1 = piece_band(v, t, tcs, sgn, *amb)
     idx = np.arange(n)
-    single = _sorted(_table(v, t, tc, drift, v * (1 - t) * (1 - drift), v * (1 + t) * (1 + drift),
-                            rating, cost, np.ones(n), idx, -np.ones(n), vid, -np.ones(n),
-                            np.full(n, SINGLE)))
+    single = _sorted(_table(v, t, tc, drift, lo1, hi1, rating, cost, np.ones(n), idx,
+                            -np.ones(n), vid, -np.ones(n), np.full(n, SINGLE)))
     with_pairs = None
     if (job.build.allow_pairs if pairs is None else pairs) and n:
         ia, ib = np.triu_indices(n)            # unordered pairs, a line with itself included
@@ -190,30 +203,29 @@ def build_shelf(job: Job, inventory: Inventory, *, pairs: bool | None = None,
                              "use a smaller shelf", column="allow_pairs", text="true")
         tables = [single]
         for code in (SERIES, PARALLEL):
+            series = code == SERIES
             ra, rb, ta, tb = v[ia], v[ib], t[ia], t[ib]
-            if code == SERIES:
-                nom, lo, hi = ra + rb, ra * (1 - ta) + rb * (1 - tb), ra * (1 + ta) + rb * (1 + tb)
-                share_a = ra / nom
-            else:
-                def par(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-                    return x * y / (x + y)
-                nom = par(ra, rb)
-                lo, hi = par(ra * (1 - ta), rb * (1 - tb)), par(ra * (1 + ta), rb * (1 + tb))
-                share_a = rb / (ra + rb)
-            tol = np.maximum(nom - lo, hi - nom) / nom
-            share_b = 1.0 - share_a
-            rate = np.minimum(rating[ia] / share_a, rating[ib] / share_b)
-            tcp = np.maximum(tc[ia], tc[ib])
-            dr = tcp * 1e-6 * span
-            tables.append(_table(nom, tol, tcp, dr, nom * (1 - tol) * (1 - dr),
-                                 nom * (1 + tol) * (1 + dr), rate, cost[ia] + cost[ib],
+            nom = pair_value(ra, rb, series)
+            # the same arithmetic as assign.pair_of, so search and check agree bit for bit
+            lo25, hi25 = pair_band(ra * (1 - ta), ra * (1 + ta), rb * (1 - tb), rb * (1 + tb),
+                                   series)
+            tol = np.maximum(1 - lo25 / nom, hi25 / nom - 1)
+            lo, hi = pair_band(lo1[ia], hi1[ia], lo1[ib], hi1[ib], series)
+            rate = pair_rating(rating[ia], rating[ib], (ra, ta, tcs[ia], sgn[ia]),
+                               (rb, tb, tcs[ib], sgn[ib]), series, *amb)
+            both = sgn[ia] & sgn[ib]
+            tcp = np.abs(pair_tempco(ra, rb, np.where(both, tcs[ia], tc[ia]),
+                                     np.where(both, tcs[ib], tc[ib]), series))
+            dr = np.maximum(drift[ia], drift[ib])
+            tables.append(_table(nom, tol, tcp, dr, lo, hi, rate, cost[ia] + cost[ib],
                                  np.full(ia.size, 2), ia, ib, vid[ia], vid[ib],
                                  np.full(ia.size, code)))
         merged = tables[0]
         for extra in tables[1:]:
             merged = _concat(merged, extra)
         with_pairs = _sorted(merged)
-    return Shelf(lines=lines, values=values, single=single, with_pairs=with_pairs, span_c=span)
+    return Shelf(lines=lines, values=values, single=single, with_pairs=with_pairs, span_c=span,
+                 ambient_c=amb)
 
 
 def usable_transistors(job: Job, inventory: Inventory,

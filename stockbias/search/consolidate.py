@@ -145,9 +145,10 @@ def _current(job: Job, inventory: Inventory
         parts = {}
         for role, text in st.values.items():
             try:
-                parts[role] = resolve_resistor(role, text, inventory,
-                                               job.build.default_tolerance_pct,
-                                               source="stage.values")
+                parts[role] = resolve_resistor(
+                    role, text, inventory, job.build.default_tolerance_pct,
+                    source="stage.values",
+                    ambient=(job.environment.ambient_min_c, job.environment.ambient_max_c))
             except InputError as exc:
                 raise stage_key_error(job, st.name, f"values.{role}", exc.message,
                                       text) from None
@@ -155,13 +156,14 @@ def _current(job: Job, inventory: Inventory
     return out
 
 
-def _virtual_row(line: int, value_id: int, p: ResolvedResistor, span: float,
+def _virtual_row(line: int, value_id: int, p: ResolvedResistor, ambient: tuple[float, float],
                  part: Resistor) -> RoleCandidates:
-    drift = ((p.tempco_ppm and abs(p.tempco_ppm)) or 0.0) * 1e-6 * span
-    v, t = p.value, p.tol
-    return _table([v], [t], [abs(p.tempco_ppm or 0.0)], [drift], [v * (1 - t) * (1 - drift)],
-                  [v * (1 + t) * (1 + drift)], [p.rating], [round(part.unit_cost * 1e6)], [1],
-                  [line], [-1], [value_id], [-1], [SINGLE])
+    """A candidate row for a current part that is not a stock line (its exact band)."""
+    lo, hi = p.band(*ambient)
+    drift = float(p.spec(*ambient).drift)
+    return _table([p.value], [p.tol], [abs(p.tempco_ppm or 0.0)], [drift], [lo], [hi],
+                  [p.rating], [round(part.unit_cost * 1e6)], [1], [line], [-1], [value_id],
+                  [-1], [SINGLE])
 
 
 def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str]] = (),
@@ -217,7 +219,7 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                 cands[role.name] = base
                 cur[role.name] = 0
                 continue
-            if len(p.parts) > 1:
+            if p.arrangement != "single":           # a pair (halves in stock or not)
                 if kept:
                     raise InputError(f"stage '{st.name}': a kept {role.name} must be one part, "
                                      "not a pair", file=job.path, column="--keep",
@@ -229,7 +231,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                 continue
             line = line_of.get(p.parts[0].part_id) if p.parts else None
             if line is None:
-                part = p.parts[0] if p.parts else Resistor("", p.value, 100 * p.tol, p.rating)
+                part = p.parts[0] if p.parts else p.pieces[0] if p.pieces else Resistor(
+                    "", p.value, 100 * p.tol, p.rating)
                 vkey = (part.part_id, p.value, p.tol, p.rating)
                 if vkey not in virtual:
                     virtual[vkey] = len(universe.lines)
@@ -242,8 +245,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                            else f"has fewer than {job.build.quantity} in stock")
                     notes.append(f"{role.name}@{st.name} ({part.part_id or f'{p.value:g} Ω'}) "
                                  f"{why}: it may stay where it is, bought outside the stock")
-                row = _virtual_row(virtual[vkey], universe.value_id[p.value], p, shelf.span_c,
-                                   part)
+                row = _virtual_row(virtual[vkey], universe.value_id[p.value], p,
+                                   shelf.ambient_c, part)
                 table = row if kept else _sorted(_concat(base, row))
                 idx = int(np.flatnonzero((table.line_a == virtual[vkey])
                                          & (table.arrangement == SINGLE))[0])

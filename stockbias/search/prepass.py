@@ -438,7 +438,7 @@ def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
         res, ratings = {}, {}
         for role, (c, ix) in roles.items():
             i = ix[sl]
-            res[role] = ResistorSpec(c.value[i], c.tol[i], c.drift[i])
+            res[role] = ResistorSpec(c.value[i], c.tol[i], c.drift[i], band=(c.low[i], c.high[i]))
             ratings[role] = c.rating[i]
         spec = StageSpec(network=net, resistors=res, device=dev, vcc=job.supply.volts,
                          vcc_tol=job.supply.tolerance_pct / 100, vee=job.supply.negative_volts,

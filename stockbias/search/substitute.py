@@ -43,6 +43,7 @@ from ..assign import ResolvedResistor, resolve_resistor
 from ..errors import InputError
 from ..job import Job
 from ..parts import Inventory, Resistor, Transistor
+from ..resistor_band import piece_band
 from ..topologies import get_network
 from .candidates import micro
 
@@ -173,8 +174,7 @@ def _stock_ok(parts: Mapping[str, ResolvedResistor], inventory: Inventory, build
 
 
 def _as_resolved(role: str, r: Resistor) -> ResolvedResistor:
-    return ResolvedResistor(role=role, value=r.value_ohm, tol=r.tolerance_pct / 100,
-                            tempco_ppm=r.tempco_ppm or 0.0, rating=r.power_w, parts=(r,))
+    return ResolvedResistor.of_part(role, r)
 
 
 class _Screen:
@@ -185,8 +185,7 @@ class _Screen:
         self.base = base
         self.q = q
         self.spec0 = build_spec(job, job.stage, base, q)
-        self.span = max(abs(job.environment.ambient_min_c - 25.0),
-                        abs(job.environment.ambient_max_c - 25.0))
+        self.ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
         ratings = {role: p.rating for role, p in base.items()}
         limits = stage_limits(job, job.stage, self.spec0, ratings)
         self.quantities = {lim.quantity for lim in limits}
@@ -195,21 +194,24 @@ class _Screen:
 
     def arrays(self, roles: tuple[str, ...], cand: dict[str, list[Resistor]],
                idx: np.ndarray) -> dict[str, tuple[np.ndarray, np.ndarray]]:
-        """Each role's band (low, high) over tolerance and tempco drift, per combination."""
+        """Each role's exact band (low, high) over tolerance and tempco drift, per combination
+        (a kept pair's asymmetric band; a signed tempco drifting one way)."""
         bands = {}
         for role, p in self.base.items():
-            spec = ResistorSpec(p.value, p.tol, abs(p.tempco_ppm) * 1e-6 * self.span)
-            bands[role] = (np.full(len(idx), float(spec.low)), np.full(len(idx),
-                                                                       float(spec.high)))
+            lo, hi = p.band(*self.ambient)
+            bands[role] = (np.full(len(idx), lo), np.full(len(idx), hi))
         for j, role in enumerate(roles):
             table = self.tables.get(role)
             if table is None:
                 rows = cand[role]
-                table = np.array([[r.value_ohm, r.tolerance_pct / 100,
-                                   abs(r.tempco_ppm or 0.0) * 1e-6 * self.span] for r in rows])
+                lo, hi = piece_band([r.value_ohm for r in rows],
+                                    [r.tolerance_pct / 100 for r in rows],
+                                    [r.tempco_ppm or 0.0 for r in rows],
+                                    [r.tempco_signed for r in rows], *self.ambient)
+                table = np.stack([lo, hi], axis=1)
                 self.tables[role] = table
-            v, tol, drift = table[idx[:, j]].T
-            bands[role] = (v * (1 - tol) * (1 - drift), v * (1 + tol) * (1 + drift))
+            lo, hi = table[idx[:, j]].T
+            bands[role] = (lo, hi)
         return bands
 
     def prefilter(self, roles: tuple[str, ...], cand: dict[str, list[Resistor]],
@@ -246,15 +248,15 @@ class _Screen:
         """
         resistors: dict[str, ResistorSpec] = {}
         ratings: dict[str, float | np.ndarray] = {}
+        bands = self.arrays(roles, cand, idx)
         for role, p in self.base.items():
-            resistors[role] = ResistorSpec(p.value, p.tol, abs(p.tempco_ppm) * 1e-6 * self.span)
+            resistors[role] = p.spec(*self.ambient)
             ratings[role] = p.rating
         for j, role in enumerate(roles):
             rows = [cand[role][i] for i in idx[:, j]]
             resistors[role] = ResistorSpec(
                 np.array([r.value_ohm for r in rows]),
-                np.array([r.tolerance_pct / 100 for r in rows]),
-                np.array([abs(r.tempco_ppm or 0.0) * 1e-6 * self.span for r in rows]))
+                np.array([r.tolerance_pct / 100 for r in rows]), band=bands[role])
             ratings[role] = np.array([r.power_w for r in rows])
         spec = StageSpec(self.spec0.network, resistors, self.spec0.device, self.spec0.vcc,
                          self.spec0.vcc_tol, self.spec0.vee, self.spec0.vee_tol,
@@ -392,7 +394,9 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
         raise InputError(f"no transistor with that part id in {inventory.path}",
                          column="--transistor", text=current)
     tol = job.build.default_tolerance_pct if tolerance_pct is None else tolerance_pct
-    base = {role: resolve_resistor(role, text, inventory, tol) for role, text in values.items()}
+    ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
+    base = {role: resolve_resistor(role, text, inventory, tol, ambient=ambient)
+            for role, text in values.items()}
     limit = job.search.time_limit_s if time_limit_s is None else time_limit_s
     out: list[SubstituteCandidate] = []
     for q in inventory.transistors:
