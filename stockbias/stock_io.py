@@ -359,8 +359,6 @@ class _RowReader:
         """``tempco_ppm`` and whether it is signed: ``-350``/``+100`` are that signed
         coefficient; a bare magnitude, ``±350`` or ``+/-350`` mean either sign (magnitude)."""
         text = self.raw("tempco_ppm")
-        if "tempco_ppm" in self.refused:  # already reported by screen()
-            return None, False
         either = next((p for p in ("±", "+/-", "+-") if text.startswith(p)), None)
         if either is None:
             value = self.number("tempco_ppm", required=False)
