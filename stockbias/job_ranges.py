@@ -97,7 +97,9 @@ PLAUSIBLE: dict[str, Plausible] = {
                                   "beyond any bias network"),
     "resistor_derating": Plausible(0.0, 1.0, "", "the fraction of the derated rating a part "
                                    "may use", low_open=True),
-    "tj_max": Plausible(0.0, 250.0, "°C", "silicon junctions are rated 125 to 200 °C"),
+    "tj_max": Plausible(25.0, 250.0, "°C", "silicon junctions are rated 125 to 200 °C; "
+                        "a limit must lie above the 25 °C the ratings are given at",
+                        low_open=True),
     "derating_knee_c": Plausible(-60.0, 300.0, "°C", "resistor derating curves lie within "
                                  "-60 °C to 300 °C"),
     "derating_zero_c": Plausible(-60.0, 300.0, "°C", "resistor derating curves lie within "
