@@ -19,6 +19,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+import os
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -231,9 +232,11 @@ def from_result_file(path: str | Path, rank: int = 1) -> Selection:
 
 
 def input_record(path: str | Path) -> dict[str, object]:
-    """What a saved result records of one input file: its path, SHA-256 and size, bytes."""
+    """What a saved result records of one input file: its absolute path, SHA-256 and size,
+    bytes."""
     data = Path(path).read_bytes()
-    return {"path": str(path), "sha256": hashlib.sha256(data).hexdigest(), "size": len(data)}
+    return {"path": os.path.abspath(path), "sha256": hashlib.sha256(data).hexdigest(),
+            "size": len(data)}
 
 
 _INPUT_WORDS = {"job": ("job file", "the job"), "inventory": ("stock file", "the shelf")}
