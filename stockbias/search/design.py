@@ -42,9 +42,12 @@ from .candidates import (
     stage_networks,
     usable_transistors,
 )
+from .deadline import Deadline
+from .design_result import Design, DesignResult
 from .model import ModelDesign
 from .prepass import (
     PLANS,
+    ROW_BUDGET,
     Rows,
     corners,
     cross_product_check,
@@ -55,127 +58,27 @@ from .prepass import (
     materialise,
     rc_allowed_power,
     row_cuts,
+    row_slices,
     vertex_check,
 )
+from .ranking import BIG as _BIG
+from .ranking import composite as _composite
+from .ranking import count_distinct as _count_distinct
+from .ranking import lex_le as _lex_le
+from .ranking import margin_ppm, objective_key
+from .ranking import range_query as _range
+from .ranking import sparse_table as _sparse
+from .scan_coverage import Coverage
 from .solve import solve_ranked
 
 __all__ = ["Design", "DesignResult", "design", "objective_key"]
 
-_BIG = np.iinfo(np.int64).max // 4
 _REL = 1e-12
 EXPONENTIAL_MAX_DESIGNS = 300_000
 #: With pairs on, the enumerated roles take pairs only while rows × transistors stay below this.
 PAIR_ROW_LIMIT = 20_000_000
 
 Progress = Callable[[str, float], None]
-
-
-@dataclass(frozen=True)
-class Design:
-    """One ranked design with its re-verification."""
-
-    rank: int
-    topology: str
-    transistor: Transistor
-    check: CheckResult
-    cost: float
-    cost_micro: int
-    part_count: int
-    distinct_values: int
-    bom_lines: int
-    ic_margin: float
-
-    def to_dict(self) -> dict[str, object]:
-        c = self.check.to_dict()
-        parts = {}
-        for role, p in self.check.parts.items():
-            ids: object = p.part_ids[0] if len(p.parts) == 1 else p.part_ids
-            parts[role] = {"part_id": ids, "value_ohm": p.value, "tolerance_pct": 100 * p.tol,
-                           "arrangement": p.arrangement}
-        return {
-            "rank": self.rank, "topology": self.topology,
-            "polarity": self.transistor.polarity, "cost": self.cost,
-            "cost_micro": self.cost_micro, "part_count": self.part_count,
-            "distinct_values": self.distinct_values, "bom_lines": self.bom_lines,
-            "ic_margin": self.ic_margin,
-            "transistor": {"part_id": self.transistor.part_id,
-                           "polarity": self.transistor.polarity},
-            "parts": parts, "absent": [r for r in get_network(self.topology).optional_roles
-                                       if r not in parts],
-            "ok": self.check.ok, "worst_case": c["worst_case"],
-            "constraints": c["constraints"], "nominal": c["nominal"],
-            "warnings": self.check.warnings, "cautions": self.check.cautions,
-        }
-
-
-@dataclass
-class DesignResult:
-    """What :func:`design` returns.  ``status``: optimal | feasible | infeasible | unknown."""
-
-    status: str
-    solve_seconds: float
-    designs: list[Design]
-    objectives: tuple[str, ...]
-    explanation: object | None = None
-    bound: dict[str, float] = field(default_factory=dict)
-    stats: dict[str, object] = field(default_factory=dict)
-    assumptions: list[str] = field(default_factory=list)
-    excluded_transistors: list[dict[str, str]] = field(default_factory=list)
-
-    @property
-    def found(self) -> bool:
-        return bool(self.designs)
-
-    def to_dict(self) -> dict[str, object]:
-        return {
-            "status": self.status, "solve_seconds": self.solve_seconds,
-            "objectives": list(self.objectives),
-            "proven": self.status in ("optimal", "infeasible"),
-            "bound": self.bound,
-            "designs": [d.to_dict() for d in self.designs],
-            "explanation": None if self.explanation is None else self.explanation.to_dict(),
-            "assumptions": self.assumptions, "stats": self.stats,
-            "excluded_transistors": self.excluded_transistors,
-        }
-
-
-def objective_key(objectives: tuple[str, ...], cost: np.ndarray, parts: np.ndarray,
-                  distinct: np.ndarray, bom: np.ndarray, margin_ppm: np.ndarray) -> np.ndarray:
-    """Integer key columns (all minimised) in the job's objective order."""
-    cols = {"cost": cost, "part_count": parts, "distinct_values": distinct, "bom_lines": bom,
-            "ic_margin": -margin_ppm, "changes": np.zeros_like(cost)}
-    return np.stack([np.asarray(cols[o], dtype=np.int64) for o in objectives], axis=-1) \
-        if len(cost) else np.zeros((0, len(objectives)), dtype=np.int64)
-
-
-def margin_ppm(ic_lo: np.ndarray, ic_hi: np.ndarray, ic_min: float, ic_max: float,
-               target: float) -> np.ndarray:
-    """ic_margin in ppm of the target (floor(x·1e6) is monotone, so bounds stay bounds)."""
-    m = np.minimum(ic_lo - ic_min, ic_max - ic_hi) / target
-    return np.floor(np.nan_to_num(m, nan=-1e3) * 1e6 + 1e-6).astype(np.int64)
-
-
-def _lex_le(keys: np.ndarray, kappa: np.ndarray) -> np.ndarray:
-    """Rows of ``keys`` lexicographically ≤ ``kappa``."""
-    res = np.zeros(keys.shape[0], dtype=bool)
-    eq = np.ones(keys.shape[0], dtype=bool)
-    for j in range(keys.shape[1]):
-        res |= eq & (keys[:, j] < kappa[j])
-        eq &= keys[:, j] == kappa[j]
-    return res | eq
-
-
-def _count_distinct(cols: list[np.ndarray]) -> np.ndarray:
-    """Distinct non-negative ids per row across columns (−1 = none)."""
-    if not cols:
-        return np.zeros(0, dtype=np.int64)
-    total = np.zeros(cols[0].shape, dtype=np.int64)
-    for i, x in enumerate(cols):
-        new = x >= 0
-        for y in cols[:i]:
-            new &= x != y
-        total += new
-    return total
 
 
 @dataclass
@@ -198,6 +101,12 @@ class _Block:
     ic_hi: np.ndarray | None = None
     ic_lo: np.ndarray | None = None
     exact: bool = False
+    lb: np.ndarray | None = None
+
+    def release(self) -> None:
+        """Drop the row arrays once the block's group is searched (designs in the pool
+        keep only candidate indices)."""
+        self.rows = self.idx = self.ic_hi = self.ic_lo = self.lb = None
 
     @property
     def n_rows(self) -> int:
@@ -213,34 +122,6 @@ class _Block:
         return c.idx, c.ic_hi, c.ic_lo
 
 
-def _sparse(a: np.ndarray, fn) -> np.ndarray:
-    """Sparse table (levels × n, padded) for O(1) range min/max queries."""
-    levels = [a]
-    k = 1
-    while 2 * k <= a.size:
-        prev = levels[-1]
-        levels.append(fn(prev[:-k], prev[k:]))
-        k *= 2
-    out = np.empty((len(levels), a.size), dtype=a.dtype)
-    for i, lev in enumerate(levels):
-        out[i, :lev.size] = lev
-        out[i, lev.size:] = lev[-1] if lev.size else 0
-    return out
-
-
-def _range(table: np.ndarray, i0: np.ndarray, i1: np.ndarray, fn, empty) -> np.ndarray:
-    """fn over a[i0:i1] for each row (``empty`` where the range is empty)."""
-    n = i1 - i0
-    ok = n > 0
-    lev = np.zeros(n.shape, dtype=np.int64)
-    lev[ok] = np.floor(np.log2(n[ok])).astype(np.int64)
-    right = np.where(ok, i1 - (1 << lev), i0)
-    left = np.minimum(i0, table.shape[1] - 1)
-    right = np.clip(right, 0, table.shape[1] - 1)
-    out = fn(table[lev, left], table[lev, right])
-    return np.where(ok, out, empty)
-
-
 @dataclass
 class _Pool:
     """Designs that passed every vertex, with exact keys."""
@@ -253,9 +134,11 @@ class _Pool:
 
 
 class _Search:
-    def __init__(self, job: Job, inventory: Inventory, top: int, deadline: float,
-                 progress: Progress | None):
+    def __init__(self, job: Job, inventory: Inventory, top: int, deadline: Deadline,
+                 progress: Progress | None, row_budget: int = ROW_BUDGET):
         self.job, self.inv, self.top, self.deadline = job, inventory, top, deadline
+        #: rows built at once (one unit), and rows held at once (one group)
+        self.row_budget, self.group_rows = int(row_budget), 16 * int(row_budget)
         self.progress = progress
         self.stage = job.stage
         self.objectives = tuple(job.search.objectives)
@@ -271,30 +154,66 @@ class _Search:
         self._cache: dict[tuple, object] = {}
         self.pair_roles_limited: list[str] = []
         self.timed_out = False
+        self.coverage = Coverage(len(self.transistors))
         self.stats: dict[str, int] = {"cores": 0, "designs_vertex_checked": 0,
                                       "designs_kept": 0, "verified": 0}
 
     # --- candidate generation -------------------------------------------------------
-    def build_blocks(self) -> None:
+    def network_cands(self, net_name: str) -> dict[str, RoleCandidates]:
+        """The candidate table of every role of a network (pairs limited on big shelves)."""
+        net = get_network(net_name)
+        plan = PLANS[net_name]
+        cands = {r.name: self.shelf.candidates(r.optional, self.pairs) for r in net.roles}
+        if self.pairs and self.job.search.model == "constant_vbe":
+            rows = int(np.prod([len(cands[r]) for r in plan.enumerated], dtype=np.int64))
+            if rows * max(len(self.transistors), 1) > PAIR_ROW_LIMIT:
+                # too many rows to cross: pairs only where a role is cut per core
+                for r in plan.enumerated:
+                    cands[r] = self.shelf.candidates(net.role(r).optional, False)
+                self.pair_roles_limited.append(net_name)
+        return cands
+
+    def units(self):
+        """The row order: (network, candidates, range of the first enumerated role,
+        transistor index, transistor), network by network, range by range (each at most
+        ``row_budget`` rows), transistor by transistor."""
         for net_name in self.networks:
-            net = get_network(net_name)
-            plan = PLANS[net_name]
-            cands = {r.name: self.shelf.candidates(r.optional, self.pairs) for r in net.roles}
-            if self.pairs and self.job.search.model == "constant_vbe":
-                rows = int(np.prod([len(cands[r]) for r in plan.enumerated]))
-                if rows * max(len(self.transistors), 1) > PAIR_ROW_LIMIT:
-                    # too many rows to cross: pairs only where a role is cut per core
-                    for r in plan.enumerated:
-                        cands[r] = self.shelf.candidates(net.role(r).optional, False)
-                    self.pair_roles_limited.append(net_name)
-            for qi, q in enumerate(self.transistors):
-                if self.job.search.model == "exponential":
-                    self.blocks.append(self._exponential_block(net_name, qi, q, cands))
-                    continue
-                rows = row_cuts(self.job, self.stage, net_name, q, cands, self._cache)
-                roles = (*plan.enumerated, plan.interval)
-                self.blocks.append(_Block(net_name, qi, q, cands, roles, plan.free, rows=rows))
-                self.stats["rows"] = self.stats.get("rows", 0) + rows.size
+            cands = self.network_cands(net_name)
+            if self.job.search.model == "exponential":
+                self.coverage.start(net_name, "", [0.0])
+                spans = [(0, 1)]
+            else:
+                first = PLANS[net_name].enumerated[0]
+                self.coverage.start(net_name, first, cands[first].value.tolist())
+                spans = row_slices(net_name, cands, self.row_budget)
+            for span in spans:
+                for qi, q in enumerate(self.transistors):
+                    yield net_name, cands, span, qi, q
+
+    def load(self, net_name: str, cands: dict[str, RoleCandidates], span: tuple[int, int],
+             qi: int, q: Transistor, kappa: np.ndarray) -> _Block | None:
+        """One (network, range, transistor) unit: its rows with a lower-bound key ≤ κ
+        (None when there are none).  Rows with an empty cut or a key above κ cannot lead
+        to a design ranked in the top K (κ only falls), so they are not kept."""
+        if self.job.search.model == "exponential":
+            b = self._exponential_block(net_name, qi, q, cands)
+            sel, key = self.row_bounds(b)
+            keep = _lex_le(key, kappa)
+            b.idx = {r: v[keep] for r, v in b.idx.items()}
+            b.ic_hi, b.ic_lo, b.lb = b.ic_hi[keep], b.ic_lo[keep], key[keep]
+            return b if b.n_rows else None
+        plan = PLANS[net_name]
+        rows = row_cuts(self.job, self.stage, net_name, q, cands, self._cache, span)
+        self.stats["rows"] = self.stats.get("rows", 0) + rows.size
+        rows = rows.take(np.flatnonzero(rows.i1 > rows.i0))
+        roles = (*plan.enumerated, plan.interval)
+        b = _Block(net_name, qi, q, cands, roles, plan.free, rows=rows)
+        sel, key = self.row_bounds(b)
+        keep = np.flatnonzero(_lex_le(key, kappa))
+        if keep.size == 0:
+            return None
+        b.rows, b.lb = rows.take(sel[keep]), key[keep]
+        return b
 
     def _exponential_block(self, net_name: str, qi: int, q: Transistor,
                            cands: dict[str, RoleCandidates]) -> _Block:
@@ -463,7 +382,7 @@ class _Search:
                 sl = slice(start, min(stop, counts.size))
                 if sl.start >= counts.size:
                     break
-                if time.monotonic() > self.deadline:
+                if self.deadline.expired():
                     self.timed_out = True       # this chunk of rows is not finished
                     return
                 c = counts[sl]
@@ -553,7 +472,7 @@ class _Search:
                 pos += step
                 step *= 4
                 kappa = self.kappa()
-                if time.monotonic() > self.deadline:
+                if self.deadline.expired():
                     self.timed_out = True
                     return
             rest = order[pos:]
@@ -647,7 +566,7 @@ class _Search:
                 batch = order[status[order] == 0][:batch_size]
                 self.vertex_verify([int(k) for k in batch], keys)
                 batch_size = min(batch_size * 2, 65536)
-                if time.monotonic() > self.deadline:
+                if self.deadline.expired():
                     return inf
                 continue
             good = 0
@@ -657,7 +576,7 @@ class _Search:
                 good += 1
                 if good >= self.top:
                     return keys[k]
-                if time.monotonic() > self.deadline:
+                if self.deadline.expired():
                     return inf
             if limit >= order.size:
                 return inf
@@ -665,24 +584,64 @@ class _Search:
 
     # --- the whole search ------------------------------------------------------------
     def run(self) -> tuple[str, dict[str, float]]:
-        self.build_blocks()
-        bids, rids, keys = [], [], []
-        weights = []
-        for k, b in enumerate(self.blocks):
-            sel, key = self.row_bounds(b)
-            bids.append(np.full(sel.size, k))
-            rids.append(sel)
-            keys.append(key)
-            weights.append(np.ones(sel.size, dtype=np.int64) if b.exact
-                           else (b.rows.i1 - b.rows.i0)[sel])
+        """Scan the rows unit by unit and search them in groups of at most ``group_rows``
+        kept rows, best-first inside a group, κ carried from group to group.
+
+        Exactness: a row is skipped only when its lower-bound key exceeds the κ of that
+        moment, and κ (the K-th best re-verified key) never rises, so a skipped row can
+        hold no design ranked above the final top K, whatever the grouping.
+        """
+        m = len(self.objectives)
+        kappa = np.full(m, _BIG, dtype=np.int64)
+        group: list[int] = []
+        held = 0
+        for net_name, cands, span, qi, q in self.units():
+            if self.deadline.expired():
+                return self._cut(group)
+            b = self.load(net_name, cands, span, qi, q, kappa)
+            if b is not None:
+                self.blocks.append(b)
+                group.append(len(self.blocks) - 1)
+                held += b.n_rows
+            # a group is searched when it is full, or at once when half the time is gone
+            # (a run the limit will cut then returns designs from what it scanned)
+            if held >= self.group_rows or (group and self.deadline.past(0.5)):
+                done, bound, kappa = self.search_group(group, kappa)
+                if not done:
+                    return "timeout", bound if self.coverage.scan_complete else {}
+                group, held = [], 0
+            if not group:
+                self.coverage.searched(net_name, span, qi)
+        self.coverage.scan_complete = True
+        done, bound, kappa = self.search_group(group, kappa)
+        return ("complete" if done else "timeout"), bound
+
+    def _cut(self, group: list[int]) -> tuple[str, dict[str, float]]:
+        """The deadline passed while scanning: the loaded group is left unsearched."""
+        for k in group:
+            self.blocks[k].release()
+        return "timeout", {}
+
+    def search_group(self, group: list[int], kappa: np.ndarray
+                     ) -> tuple[bool, dict[str, float], np.ndarray]:
+        """Best-first over the rows of the loaded blocks ``group`` in the order of their
+        lower-bound keys; (finished, bound on the first objective when not, κ)."""
+        bids, rids, keys, weights = [], [], [], []
+        for k in group:
+            b = self.blocks[k]
+            bids.append(np.full(b.n_rows, k))
+            rids.append(np.arange(b.n_rows))
+            keys.append(b.lb)
+            weights.append(np.ones(b.n_rows, dtype=np.int64) if b.exact
+                           else (b.rows.i1 - b.rows.i0))
         m = len(self.objectives)
         bid = np.concatenate(bids) if bids else np.zeros(0, dtype=np.int64)
         rid = np.concatenate(rids) if rids else np.zeros(0, dtype=np.int64)
         key = np.concatenate(keys) if keys else np.zeros((0, m), dtype=np.int64)
         weight = np.concatenate(weights) if weights else np.zeros(0, dtype=np.int64)
+        del bids, rids, keys, weights
         comp = _composite(key)
         done = np.zeros(bid.size, dtype=bool)
-        kappa = np.full(m, _BIG, dtype=np.int64)
         batch = 4096
         complete = True
         bound: dict[str, float] = {}
@@ -696,9 +655,8 @@ class _Search:
             ids = ids[np.lexsort((ids, comp[ids]))]
             chunk, pos, restart = (256 if finite else 8), 0, False
             while pos < ids.size:
-                if time.monotonic() > self.deadline:
+                if self.deadline.expired():
                     complete = False
-                    bound[self.objectives[0]] = float(key[ids[pos], 0])
                     break
                 part = ids[pos:pos + chunk]
                 w = np.cumsum(weight[part])
@@ -712,7 +670,6 @@ class _Search:
                     self.expand(self.blocks[int(k)], rid[part[bid[part] == k]], kappa)
                 if self.timed_out:
                     complete = False
-                    bound[self.objectives[0]] = float(key[ids[pos], 0])
                     break
                 done[ids[pos:pos + chunk]] = True
                 pos += chunk
@@ -725,30 +682,22 @@ class _Search:
                     break
                 kappa = new
             if not complete:
+                rest = ~done & _lex_le(key, kappa)
+                if rest.any():
+                    bound[self.objectives[0]] = float(key[rest, 0].min())
                 break
             if not restart:
                 done[ids] = True
                 batch *= 4
-        return ("complete" if complete else "timeout"), bound
-
-
-def _composite(key: np.ndarray) -> np.ndarray:
-    """One sortable number per row in the lexicographic order of ``key`` (float64 ties are
-    broken afterwards by a stable sort on the row id; an order only, never a proof)."""
-    if key.size == 0:
-        return np.zeros(key.shape[0])
-    comp = np.zeros(key.shape[0])
-    for j in range(key.shape[1]):
-        col = key[:, j].astype(float)
-        lo, hi = col.min(), col.max()
-        span = hi - lo + 1.0
-        comp = comp * span + (col - lo)
-    return comp
+        for k in group:
+            self.blocks[k].release()
+        return complete, bound, kappa
 
 
 def design(job: Job, inventory: Inventory, *, top: int | None = None,
            time_limit_s: float | None = None, progress: Progress | None = None,
-           _explain: bool = True) -> DesignResult:
+           _explain: bool = True, deadline: Deadline | None = None,
+           row_budget: int = ROW_BUDGET) -> DesignResult:
     """Ranked designs for a one-stage job from the stock (DESIGN §2, §3).
 
     Parameters
@@ -759,8 +708,17 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     top : int, optional
         How many designs (default: the job's ``top``).
     time_limit_s : float, optional
-        Wall-clock limit for the whole search, s (default: the job's).
+        Wall-clock limit for the whole search, s (default: the job's): candidate tables,
+        pre-pass, dominance, CP-SAT and re-verification.  A run it cuts short returns
+        the designs verified so far as ``feasible`` (``unknown`` when there are none)
+        and says in ``assumptions`` and ``stats["prepass_cut"]`` what was left unsearched.
     progress : callable(stage: str, fraction: float), optional
+    deadline : Deadline, optional
+        Use this deadline instead of one made from ``time_limit_s`` (a caller searching
+        several jobs under one limit, or a test with an injected clock).
+    row_budget : int, optional
+        Most rows of the enumerated roles built at once, and held at once; any value
+        gives the same designs (memory and speed change).
 
     Returns
     -------
@@ -773,9 +731,10 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
                             progress=progress)  # type: ignore[return-value]
     t0 = time.monotonic()
     top = job.search.top if top is None else int(top)
-    limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
-    deadline = t0 + limit
-    s = _Search(job, inventory, top, deadline, progress)
+    if deadline is None:
+        limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
+        deadline = Deadline(limit)
+    s = _Search(job, inventory, top, deadline, progress, row_budget)
     done, bound = s.run()
     pool_keys = np.stack(s.pool.keys) if s.pool.keys else np.zeros((0, len(s.objectives)))
     kappa = s.kappa()
@@ -821,9 +780,11 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     def accept(i: int) -> bool:
         return s.verify(int(keep[i])) is not None
 
+    # CP-SAT gets what is left (a tenth of a second at least, to rank what was found)
     ranked, status, _rej = solve_ranked(mdesigns, s.objectives, line_qty, job.build.quantity,
-                                        top, job.search.seed, max(deadline, time.monotonic()
-                                                                   + 1.0), accept)
+                                        top, job.search.seed,
+                                        max(deadline.monotonic_at(), time.monotonic() + 0.1),
+                                        accept)
     if done != "complete" and status == "optimal":
         status = "feasible"
     if done != "complete" and status == "infeasible":
@@ -863,10 +824,16 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
             f"pairs were searched for {', '.join(r for r in (plan.interval, plan.free) if r)} "
             "only, and the status holds for that set of designs")
     stats["pairs_limited_to_cut_roles"] = s.pair_roles_limited
+    stats["prepass_cut"] = None
+    if done != "complete":
+        stats["prepass_cut"] = s.coverage.message(s.networks)
+        result.assumptions.append(stats["prepass_cut"])
     if not designs and _explain:
         from .explain import explain
 
-        result.explanation = explain(job, inventory, s, status)
+        # an infeasible verdict is explained within what is left of the time limit
+        result.explanation = explain(job, inventory, s, status,
+                                     budget_s=max(deadline.remaining(), 0.5))
         result.solve_seconds = time.monotonic() - t0
     return result
 

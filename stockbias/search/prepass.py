@@ -59,6 +59,7 @@ from .candidates import RoleCandidates
 
 __all__ = [
     "PLANS",
+    "ROW_BUDGET",
     "Corners",
     "Plan",
     "Rows",
@@ -71,10 +72,13 @@ __all__ = [
     "ie_terms",
     "materialise",
     "row_cuts",
+    "row_slices",
     "vertex_check",
 ]
 
 _REL = 1e-12  # relative slack in the keeping direction (never reject on rounding)
+#: Most rows of the enumerated roles built at once (each temporary array holds this many).
+ROW_BUDGET = 1 << 18
 
 
 @dataclass(frozen=True)
@@ -224,28 +228,55 @@ class Rows:
     def size(self) -> int:
         return int(self.a_thr.size)
 
+    def take(self, sel: np.ndarray) -> Rows:
+        """The rows ``sel`` only (e.g. those whose cut is not empty), renumbered 0…n−1."""
+        return Rows({r: g[sel] for r, g in self.grid.items()}, self.a_thr[sel],
+                    self.b_thr[sel], self.i0[sel], self.i1[sel],
+                    [(n_[sel], d0[sel]) for n_, d0 in self.hi_terms],
+                    [(n_[sel], d0[sel]) for n_, d0 in self.lo_terms], self.alpha_hi,
+                    self.alpha_lo, self.icbo_hi, self.icbo_lo)
+
+
+def row_slices(network: str, cands: dict[str, RoleCandidates], budget: int = ROW_BUDGET
+               ) -> list[tuple[int, int]]:
+    """Ranges [a, z) of the first enumerated role's candidates whose rows (a range crossed
+    with every candidate of the other enumerated roles) number at most ``budget`` each
+    (one candidate per range at least), covering every row in order."""
+    plan = PLANS[network]
+    n_first = len(cands[plan.enumerated[0]])
+    rest = int(np.prod([len(cands[r]) for r in plan.enumerated[1:]], dtype=np.int64))
+    step = max(1, int(budget) // max(rest, 1))
+    return [(a, min(a + step, n_first)) for a in range(0, n_first, step)]
+
 
 def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
-             cands: dict[str, RoleCandidates], cache: dict | None = None) -> Rows:
+             cands: dict[str, RoleCandidates], cache: dict | None = None,
+             first: tuple[int, int] | None = None) -> Rows:
     """The interval of the last IC-setting role for every row of the enumerated roles.
 
+    ``first`` (optional): only the rows whose first enumerated role (R1, RB) has a
+    candidate index in [a, z) (see :func:`row_slices`); every row by default.
     ``cache`` (optional, a dict the caller keeps): the row grid and the resistance
     settings at the two IC-extreme vertices do not depend on the transistor, so they
-    are built once per network and candidate tables.
+    are built once per network, candidate tables and range (the caller drops old ranges).
     """
     plan = PLANS[network]
     cn = corners(job, q, network)
     t = stage.target
-    key = ("row_grid", network, *(id(cands[r]) for r in plan.enumerated))
+    sizes = [len(cands[r]) for r in plan.enumerated]
+    a, z = (0, sizes[0]) if first is None else first
+    key = ("row_grid", network, a, z, *(id(cands[r]) for r in plan.enumerated))
     if cache is not None and key in cache:
         grid, ends_up, ends_lo = cache[key]
     else:
-        sizes = [len(cands[r]) for r in plan.enumerated]
-        mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
+        mesh = np.meshgrid(np.arange(a, z), *[np.arange(n) for n in sizes[1:]],
+                           indexing="ij")
         grid = {r: m.reshape(-1) for r, m in zip(plan.enumerated, mesh, strict=True)}
         ends_up = _ends(plan, cands, grid, up=True)
         ends_lo = _ends(plan, cands, grid, up=False)
         if cache is not None:
+            for k in [k for k in cache if k[:2] == ("row_grid", network)]:
+                del cache[k]
             cache[key] = (grid, ends_up, ends_lo)
     m = grid[plan.enumerated[0]].size
     alpha_hi = cn.beta_hi / (cn.beta_hi + 1)

@@ -1,0 +1,80 @@
+"""The objects :func:`stockbias.design` returns: ranked designs and the search result."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from ..analysis.check import CheckResult
+from ..parts import Transistor
+from ..topologies import get_network
+
+__all__ = ["Design", "DesignResult"]
+
+
+@dataclass(frozen=True)
+class Design:
+    """One ranked design with its re-verification."""
+
+    rank: int
+    topology: str
+    transistor: Transistor
+    check: CheckResult
+    cost: float
+    cost_micro: int
+    part_count: int
+    distinct_values: int
+    bom_lines: int
+    ic_margin: float
+
+    def to_dict(self) -> dict[str, object]:
+        c = self.check.to_dict()
+        parts = {}
+        for role, p in self.check.parts.items():
+            ids: object = p.part_ids[0] if len(p.parts) == 1 else p.part_ids
+            parts[role] = {"part_id": ids, "value_ohm": p.value, "tolerance_pct": 100 * p.tol,
+                           "arrangement": p.arrangement}
+        return {
+            "rank": self.rank, "topology": self.topology,
+            "polarity": self.transistor.polarity, "cost": self.cost,
+            "cost_micro": self.cost_micro, "part_count": self.part_count,
+            "distinct_values": self.distinct_values, "bom_lines": self.bom_lines,
+            "ic_margin": self.ic_margin,
+            "transistor": {"part_id": self.transistor.part_id,
+                           "polarity": self.transistor.polarity},
+            "parts": parts, "absent": [r for r in get_network(self.topology).optional_roles
+                                       if r not in parts],
+            "ok": self.check.ok, "worst_case": c["worst_case"],
+            "constraints": c["constraints"], "nominal": c["nominal"],
+            "warnings": self.check.warnings, "cautions": self.check.cautions,
+        }
+
+
+@dataclass
+class DesignResult:
+    """What :func:`design` returns.  ``status``: optimal | feasible | infeasible | unknown."""
+
+    status: str
+    solve_seconds: float
+    designs: list[Design]
+    objectives: tuple[str, ...]
+    explanation: object | None = None
+    bound: dict[str, float] = field(default_factory=dict)
+    stats: dict[str, object] = field(default_factory=dict)
+    assumptions: list[str] = field(default_factory=list)
+    excluded_transistors: list[dict[str, str]] = field(default_factory=list)
+
+    @property
+    def found(self) -> bool:
+        return bool(self.designs)
+
+    def to_dict(self) -> dict[str, object]:
+        return {
+            "status": self.status, "solve_seconds": self.solve_seconds,
+            "objectives": list(self.objectives),
+            "proven": self.status in ("optimal", "infeasible"),
+            "bound": self.bound,
+            "designs": [d.to_dict() for d in self.designs],
+            "explanation": None if self.explanation is None else self.explanation.to_dict(),
+            "assumptions": self.assumptions, "stats": self.stats,
+            "excluded_transistors": self.excluded_transistors,
+        }
