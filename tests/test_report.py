@@ -127,4 +127,4 @@ def test_cli_report_into_a_missing_folder_is_one_line_exit_2(tmp_path: Path) -> 
                                  "--report", str(tmp_path / "no" / "r.html")])
     assert result.exit_code == 2
     lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1 and "cannot write the report" in lines[0]
+    assert len(lines) == 1 and "--report" in lines[0] and "does not exist" in lines[0], lines
