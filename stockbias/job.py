@@ -533,6 +533,17 @@ def _first_line(text: str, pattern: str) -> int | None:
     return text.count("\n", 0, found.start()) + 1 if found else None
 
 
+def _deep_line(text: str, depth: int = 100) -> int | None:
+    """The line where brackets and braces first nest ``depth`` deep (quotes not parsed)."""
+    level = 0
+    for number, line in enumerate(text.splitlines(), start=1):
+        for char in line:
+            level += (char in "[{") - (char in "]}")
+            if level >= depth:
+                return number
+    return None
+
+
 def parse_job(text: str, path: str = "<job>") -> Job:
     """Parse the text of a job file; see :func:`load_job`.  A leading byte-order mark is
     ignored (editors on some systems save UTF-8 with one)."""
@@ -548,7 +559,7 @@ def parse_job(text: str, path: str = "<job>") -> Job:
                        "few", file=path, line=_first_line(text, r"\w{4000}")) from None
     except RecursionError:
         raise JobError("arrays or tables nested too deeply to be a job", file=path,
-                       line=_first_line(text, r"[\[{](?:\s*[\[{]){99}")) from None
+                       line=_deep_line(text)) from None
     parser = _Parser(path, text)
     known = {*_SECTIONS, "stage"}
     for section in doc:

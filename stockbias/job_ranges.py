@@ -66,7 +66,7 @@ _SILICON = "a rail below 0.1 V cannot forward-bias a silicon junction; above 1 k
            "discrete small-signal transistors"
 _CURRENT = "small-signal and power bipolar transistors are biased between 100 nA and 10 A"
 _TOL = "a supply further off than 50 % is not a rail to bias from"
-_TEMP = "-55 °C to +125 °C is the widest rated range of silicon parts; 200 °C is beyond any"
+_TEMP = "silicon parts are rated for -55 °C to +125 °C at the widest"
 
 #: key -> plausible range; the keys of every section (and of [stage.target] and
 #: [stage.limits]) that hold numbers.
