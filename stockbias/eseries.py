@@ -30,10 +30,12 @@ __all__ = [
     "decade_values",
     "mantissas",
     "nearest",
+    "nearest_many",
     "series_of",
     "series_tolerance_pct",
     "series_values",
     "smallest_series",
+    "smallest_series_many",
 ]
 
 E3: tuple[int, ...] = (10, 22, 47)
@@ -212,3 +214,102 @@ def smallest_series(value: float, *, rel_tol: float = 1e-6) -> str | None:
     """The coarsest series (fewest values per decade) containing ``value``, or None."""
     found = series_of(value, rel_tol=rel_tol)
     return found[0] if found else None
+
+
+# --------------------------------------------------------------------------- arrays
+# The same answers as nearest() and smallest_series(), for many values at once.
+
+_POW10_EXACT = 22  # 10.0**k is exact for 0 <= k <= 22, so m * 10**k and m / 10**k round once
+
+
+def _as_positive_array(values: object) -> np.ndarray:
+    arr = np.asarray(values, dtype=np.float64)
+    if arr.size and not (np.all(np.isfinite(arr)) and np.all(arr > 0.0)):
+        raise ValueError("E-series values must be finite and > 0")
+    return arr
+
+
+def nearest_many(values: object, name: str) -> np.ndarray:
+    """The series value nearest to each of ``values`` in log distance, as an array.
+
+    Element by element the same as :func:`nearest` (the lower value on an exact tie),
+    computed for the whole array at once: the mantissas of one decade, extended by the
+    last value of the decade below and the first of the decade above, are searched
+    with :func:`numpy.searchsorted` on the log scale.
+
+    Parameters
+    ----------
+    values : array_like
+        Resistances, ohm; each finite and > 0.
+    name : str
+        Series name, one of :data:`SERIES_NAMES`.
+
+    Returns
+    -------
+    numpy.ndarray
+        float64, the shape of ``values``; each the float nearest to its decimal value.
+    """
+    key = _check(name)
+    arr = _as_positive_array(values)
+    flat = arr.ravel()
+    if flat.size == 0:
+        return arr.copy()
+    mant = np.asarray(_MANTISSAS[key], dtype=np.int64)
+    figures = _figures(key)
+    scale = 10 ** (figures - 1)
+    # one decade of mantissas with a neighbour on each side: (mantissa, decade offset)
+    ext_m = np.concatenate(([mant[-1]], mant, [mant[0]]))
+    ext_d = np.concatenate(([-1], np.zeros(mant.size, dtype=np.int64), [1]))
+    ext_log = np.log10(ext_m / scale) + ext_d
+    decade = np.floor(np.log10(flat)).astype(np.int64)
+    frac = np.log10(flat) - decade
+    hi = np.clip(np.searchsorted(ext_log, frac, side="left"), 1, ext_log.size - 1)
+    lo = hi - 1
+    # log distances from the exact candidate values (ratios, as nearest() measures them)
+    exp_lo = decade + ext_d[lo] + 1 - figures
+    exp_hi = decade + ext_d[hi] + 1 - figures
+    cand_lo = _exact_many(ext_m[lo], exp_lo)
+    cand_hi = _exact_many(ext_m[hi], exp_hi)
+    take_hi = np.abs(np.log(cand_hi / flat)) < np.abs(np.log(cand_lo / flat))
+    return np.where(take_hi, cand_hi, cand_lo).reshape(arr.shape)
+
+
+def _exact_many(mantissa: np.ndarray, exponent: np.ndarray) -> np.ndarray:
+    """mantissa × 10**exponent, each the float nearest to the decimal value."""
+    out = np.empty(mantissa.shape, dtype=np.float64)
+    pos = (exponent >= 0) & (exponent <= _POW10_EXACT)
+    neg = (exponent < 0) & (exponent >= -_POW10_EXACT)
+    out[pos] = mantissa[pos] * 10.0 ** exponent[pos]
+    out[neg] = mantissa[neg] / 10.0 ** (-exponent[neg])
+    for i in np.flatnonzero(~(pos | neg)):  # beyond 1e±22: exact integer arithmetic
+        out[i] = _exact(int(mantissa[i]), int(exponent[i]))
+    return out
+
+
+def smallest_series_many(values: object, *, rel_tol: float = 1e-6) -> list[str | None]:
+    """The coarsest series containing each value (None: off-series), for many values.
+
+    Element by element the same as :func:`smallest_series`.
+
+    Parameters
+    ----------
+    values : array_like
+        Resistances, ohm; each finite and > 0.
+    rel_tol : float, optional
+        Relative distance to a series value still counted as equal.
+
+    Returns
+    -------
+    list of (str or None)
+        One entry per value, in order.
+    """
+    flat = _as_positive_array(values).ravel()
+    found = np.full(flat.size, -1, dtype=np.int64)
+    for i, name in enumerate(SERIES_NAMES):
+        open_ = found < 0
+        if not open_.any():
+            break
+        near = nearest_many(flat[open_], name)
+        hit = np.abs(near / flat[open_] - 1.0) <= rel_tol
+        found[np.flatnonzero(open_)[hit]] = i
+    return [SERIES_NAMES[i] if i >= 0 else None for i in found.tolist()]

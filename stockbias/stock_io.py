@@ -14,15 +14,16 @@ Unknown columns are kept (their names are listed) and otherwise ignored.
 
 from __future__ import annotations
 
-import csv
 import hashlib
 import math
-from collections.abc import Callable, Iterator
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
+from . import stock_csv
 from .errors import NotationError, Problem, StockFileError
 from .parts import TRANSISTOR_DEFAULTS, Inventory, Resistor, Transistor
+from .stock_csv import describe, field_fault, line_faults, sanitise, visible
 from .units import parse_quantity
 
 __all__ = ["COLUMNS", "load_inventory", "read_inventory"]
@@ -76,32 +77,71 @@ COLUMNS: dict[str, Column] = {c.name: c for c in (
     Column("eg_ev", "eV", _T),
 )}
 
-#: Plausibility checks per numeric column: (test, message when it fails).
+@dataclass(frozen=True)
+class Plausible:
+    """The plausible range of one numeric column, in the column's unit.
+
+    A value passes when it is finite and ``low <= v <= high`` (``low < v`` when
+    ``low_open``); ``zero_ok`` also lets 0 through (a zero-ohm link), ``magnitude``
+    tests ``abs(v)`` (a signed tempco).
+    """
+
+    low: float
+    high: float
+    low_open: bool = False
+    zero_ok: bool = False
+    magnitude: bool = False
+
+    def __call__(self, value: float) -> bool:
+        if not math.isfinite(value):
+            return False
+        v = abs(value) if self.magnitude else value
+        if self.zero_ok and v == 0:
+            return True
+        return (v > self.low if self.low_open else v >= self.low) and v <= self.high
+
+
+def _between(what: str, low: str, high: str) -> str:
+    return f"{what} must be between {low} and {high}"
+
+
+#: Plausible ranges per numeric column: (test, message when it fails).  Wide enough for
+#: any discrete small-signal or power part; outside them a value is a typing slip (or a
+#: unit lost) and would only break the analysis later.  The README table lists them.
 _RANGES: dict[str, tuple[Callable[[float], bool], str]] = {
-    "value": (lambda v: v == 0 or 1e-3 <= v <= 1e10,
+    "value": (Plausible(1e-3, 1e10, zero_ok=True),
               "resistance must be 0 (a zero-ohm link) or between 1 mΩ and 10 GΩ"),
-    "tolerance_pct": (lambda v: 0 < v <= 50, "tolerance must be more than 0 % and at most 50 %"),
-    "power_w": (lambda v: v > 0, "power rating must be more than 0 W"),
-    "unit_cost": (lambda v: v >= 0, "unit cost must not be negative"),
-    "hfe_min": (lambda v: v > 0, "hFE must be more than 0"),
-    "hfe_max": (lambda v: v > 0, "hFE must be more than 0"),
-    "vceo_max": (lambda v: v > 0, "VCEO rating must be more than 0 V"),
-    "ic_max": (lambda v: v > 0, "IC rating must be more than 0 A"),
-    "pd_max_w": (lambda v: v > 0, "dissipation rating must be more than 0 W"),
-    "vbe_min": (lambda v: 0 < v < 2, "VBE must be between 0 and 2 V"),
-    "vbe_max": (lambda v: 0 < v < 2, "VBE must be between 0 and 2 V"),
-    "vce_sat": (lambda v: 0 <= v < 5, "VCE(sat) must be between 0 and 5 V"),
-    "hfe_test_ic": (lambda v: v > 0, "hFE test current must be more than 0 A"),
-    "theta_ja": (lambda v: v > 0, "θJA must be more than 0 °C/W"),
-    "tj_max": (lambda v: 25 < v <= 250, "TJ max must be between 25 and 250 °C"),
-    "icbo_a": (lambda v: v >= 0, "leakage must not be negative"),
-    "is_a": (lambda v: 0 < v < 1, "IS must be more than 0 and less than 1 A"),
-    "br": (lambda v: v > 0, "BR must be more than 0"),
-    "nf": (lambda v: 0.5 <= v <= 3, "NF must be between 0.5 and 3"),
-    "nr": (lambda v: 0.5 <= v <= 3, "NR must be between 0.5 and 3"),
-    "vaf_v": (lambda v: v > 0, "VAF must be more than 0 V"),
-    "eg_ev": (lambda v: 0.1 <= v <= 5, "EG must be between 0.1 and 5 eV"),
+    "tolerance_pct": (Plausible(1e-3, 50), _between("tolerance", "0.001 %", "50 %")),
+    "power_w": (Plausible(1e-3, 1e3), _between("power rating", "1 mW", "1 kW")),
+    "tempco_ppm": (Plausible(0, 1e4, magnitude=True),
+                   _between("tempco", "−10000", "+10000 ppm/°C")),
+    "qty": (Plausible(0, 1e9), _between("quantity", "0", "1000000000 pieces")),
+    "unit_cost": (Plausible(0, 1e6), _between("unit cost", "0", "1000000")),
+    "hfe_min": (Plausible(1, 1e5), _between("hFE", "1", "100000")),
+    "hfe_max": (Plausible(1, 1e5), _between("hFE", "1", "100000")),
+    "vceo_max": (Plausible(0.1, 1e4), _between("VCEO rating", "100 mV", "10 kV")),
+    "ic_max": (Plausible(1e-6, 1e3), _between("IC rating", "1 µA", "1 kA")),
+    "pd_max_w": (Plausible(1e-3, 1e4), _between("dissipation rating", "1 mW", "10 kW")),
+    "vbe_min": (Plausible(0.1, 1.5), _between("VBE", "0.1 V", "1.5 V")),
+    "vbe_max": (Plausible(0.1, 1.5), _between("VBE", "0.1 V", "1.5 V")),
+    "vce_sat": (Plausible(0, 5), _between("VCE(sat)", "0 V", "5 V")),
+    "hfe_test_ic": (Plausible(1e-9, 1e3), _between("hFE test current", "1 nA", "1 kA")),
+    "theta_ja": (Plausible(0.1, 2000), _between("θJA", "0.1 °C/W", "2000 °C/W")),
+    "tj_max": (Plausible(25, 300, low_open=True),
+               "TJ max must be more than 25 °C and at most 300 °C"),
+    "icbo_a": (Plausible(0, 1), _between("leakage ICBO", "0 A", "1 A")),
+    "is_a": (Plausible(1e-25, 1e-6), _between("IS", "1e-25 A", "1 µA")),
+    "br": (Plausible(1e-3, 1e3), _between("BR", "0.001", "1000")),
+    "nf": (Plausible(0.5, 3), _between("NF", "0.5", "3")),
+    "nr": (Plausible(0.5, 3), _between("NR", "0.5", "3")),
+    "vaf_v": (Plausible(1, 1e5), _between("VAF", "1 V", "100 kV")),
+    "xtb": (Plausible(-10, 10), _between("XTB", "−10", "10")),
+    "xti": (Plausible(-10, 20), _between("XTI", "−10", "20")),
+    "eg_ev": (Plausible(0.1, 5), _between("EG", "0.1 eV", "5 eV")),
 }
+
+#: Longest text read as a number (a longer one is refused before it is parsed).
+_MAX_NUMBER_CHARS = 64
 
 
 def _decode(data: bytes, path: str) -> str:
@@ -126,44 +166,44 @@ def _detect_delimiter(header: str) -> str:
     return ","
 
 
-def _records(text: str, delimiter: str) -> Iterator[tuple[int, list[str]]]:
-    """Yield (physical line, fields) for each CSV record, skipping blanks and comments."""
-    consumed: list[int] = []
-
-    def lines() -> Iterator[str]:
-        for number, raw in enumerate(text.splitlines(keepends=True), start=1):
-            if _is_skipped(raw):
-                continue
-            consumed.append(number)
-            yield raw
-
-    reader = csv.reader(lines(), delimiter=delimiter, strict=True)
-    while True:
-        start = len(consumed)
-        try:
-            row = next(reader)
-        except StopIteration:
-            return
-        except csv.Error as exc:
-            line = consumed[start] if start < len(consumed) else (consumed[-1] if consumed else 1)
-            raise _CsvSyntax(line, str(exc)) from None
-        yield consumed[start], row
+#: Called now and then while a file is read: (physical lines read, lines in the file).
+ReadProgress = Callable[[int, int], None]
 
 
-class _CsvSyntax(Exception):
-    def __init__(self, line: int, message: str) -> None:
-        super().__init__(message)
-        self.line = line
-        self.message = message
+def _line_fault_problems(faults: list[tuple[int, int, str]], text: str, lines: list[str],
+                         delimiter: str, columns: list[str]) -> list[Problem]:
+    """One problem per refused character, naming the column where the line is a record."""
+    starts = [0]
+    for raw in lines:
+        starts.append(starts[-1] + len(raw))
+    problems = []
+    for line, pos, ch in faults:
+        raw = lines[line - 1]  # sanitised: same length as the original line
+        column = ""
+        if not _is_skipped(raw) and '"' not in raw and columns:
+            field = raw[:pos - 1].count(delimiter)
+            column = columns[field] if field < len(columns) else ""
+        original = text[starts[line - 1]:starts[line]].rstrip("\r\n")
+        around = original[max(0, pos - 31):pos + 30]
+        problems.append(Problem(
+            line, column, visible(around),
+            f"control character {describe(ch)} at character {pos} of the line: other "
+            "programs break or hide lines at it; remove it"))
+    return problems
 
 
-def read_inventory(path: str | Path) -> Inventory:
+def read_inventory(path: str | Path, *, progress: ReadProgress | None = None) -> Inventory:
     """Read and validate a stock file.
+
+    Records are split as RFC 4180 does (see :mod:`stockbias.stock_csv`); every row must
+    have as many fields as the header; every number must lie in its plausible range.
 
     Parameters
     ----------
     path : str or Path
         The CSV stock file.
+    progress : callable(lines_read, lines_total), optional
+        Called every few thousand records (for a progress bar on big files).
 
     Returns
     -------
@@ -183,52 +223,62 @@ def read_inventory(path: str | Path) -> Inventory:
         raise StockFileError(name, [Problem(0, "", "", f"cannot read the file: {exc.strerror}")]) \
             from None
     text = _decode(data, name)
-    if all(_is_skipped(line) for line in text.splitlines()):
+    faults = line_faults(text)
+    lines = sanitise(text).splitlines(keepends=True) if faults else text.splitlines(keepends=True)
+    if all(_is_skipped(line) for line in lines):
         raise StockFileError(name, [Problem(1, "", "", "file is empty: no header and no rows")])
 
-    header_line = next(line for line in text.splitlines() if not _is_skipped(line))
+    header_line = next(line for line in lines if not _is_skipped(line))
     delimiter = _detect_delimiter(header_line)
-    records = _records(text, delimiter)
+    records = stock_csv.records(lines, delimiter)
     problems: list[Problem] = []
     try:
-        header_no, header = next(records)
-    except _CsvSyntax as exc:
+        header_record, _ = next(records)
+    except stock_csv.CsvSyntax as exc:
         raise StockFileError(name, [Problem(exc.line, "", "", f"CSV syntax: {exc.message}")]) \
             from None
+    header_no, header = header_record.line, header_record.fields
 
     columns = [h.strip().lower() for h in header]
+    problems.extend(_line_fault_problems(faults, text, lines, delimiter, columns))
     index: dict[str, int] = {}
     for i, col in enumerate(columns):
         if col == "":
             continue
         if col in index:
-            problems.append(Problem(header_no, col, header[i],
+            problems.append(Problem(header_no, col, visible(header[i]),
                                     "column appears twice in the header"))
         index.setdefault(col, i)
     missing = [c.name for c in COLUMNS.values()
                if c.name in ("kind", "part_id", "qty") and c.name not in index]
     if missing:
         found = "semicolon" if delimiter == ";" else "comma"
-        problems.extend(Problem(header_no, m, header_line.strip(),
+        problems.extend(Problem(header_no, m, visible(header_line.strip()),
                                 f"required column '{m}' is missing from the header "
                                 f"({found}-delimited file)") for m in missing)
         raise StockFileError(name, problems)
     extra = tuple(c for c in columns if c and c not in COLUMNS)
+    layout = _Layout(columns, index, delimiter)
 
     resistors: list[Resistor] = []
     transistors: list[Transistor] = []
     warnings: list[tuple[int, str, str, str]] = []
     seen_ids: dict[str, int] = {}
+    total = len(lines)
     try:
-        for line_no, fields in records:
-            row = _RowReader(line_no, fields, columns, index, delimiter, problems, warnings)
+        for count, (record, _) in enumerate(records, start=1):
+            if progress is not None and count % 5000 == 0:
+                progress(record.last_line, total)
+            row = _RowReader(record, layout, problems, warnings)
+            if not row.has_header_width():
+                continue
             raw_id = row.raw("part_id")
             if raw_id and raw_id in seen_ids:
-                problems.append(Problem(line_no, "part_id", raw_id,
+                problems.append(Problem(record.line, "part_id", visible(raw_id),
                                         f"duplicate part_id (first on line {seen_ids[raw_id]})"))
                 continue
             if raw_id:
-                seen_ids[raw_id] = line_no
+                seen_ids[raw_id] = record.line
             part = row.build()
             if part is None:
                 continue
@@ -236,11 +286,14 @@ def read_inventory(path: str | Path) -> Inventory:
                 resistors.append(part)
             else:
                 transistors.append(part)
-    except _CsvSyntax as exc:
+    except stock_csv.CsvSyntax as exc:
         problems.append(Problem(exc.line, "", "", f"CSV syntax: {exc.message}"))
+    if progress is not None:
+        progress(total, total)
     if not problems and not resistors and not transistors:
         problems.append(Problem(header_no, "", "", "file has a header but no stock rows"))
     if problems:
+        problems.sort(key=lambda p: p.line)
         raise StockFileError(name, problems)
     return Inventory(path=name, resistors=tuple(resistors), transistors=tuple(transistors),
                      delimiter=delimiter, warnings=tuple(warnings),
@@ -250,84 +303,151 @@ def read_inventory(path: str | Path) -> Inventory:
 load_inventory = read_inventory
 
 
-class _RowReader:
-    """Parse one record, appending every problem it finds."""
+class _Layout:
+    """What every row of one file shares: its columns and a cache of parsed numbers."""
 
-    def __init__(self, line: int, fields: list[str], columns: list[str], index: dict[str, int],
-                 delimiter: str, problems: list[Problem],
-                 warnings: list[tuple[int, str, str, str]]) -> None:
-        self.line = line
-        self.fields = fields
+    def __init__(self, columns: list[str], index: dict[str, int], delimiter: str) -> None:
         self.columns = columns
         self.index = index
         self.decimal_comma = delimiter == ";"
+        self.known = [(col, i) for col, i in index.items() if col in COLUMNS]
+        self.foreign = {kind: [c for c, _ in self.known if kind not in COLUMNS[c].kinds]
+                        for kind in _BOTH}
+        self.missing = {kind: [c for c, spec in COLUMNS.items()
+                               if spec.required and kind in spec.kinds and c not in index]
+                        for kind in _BOTH}
+        #: (text, column) -> value, or why it is refused: stock files repeat their numbers.
+        self.numbers: dict[tuple[str, str], float | str] = {}
+
+
+def _evaluate(text: str, col: str, decimal_comma: bool) -> float | str:
+    """The value of a number field in SI units, or the message saying why it is refused."""
+    unit = COLUMNS[col].unit
+    assert unit is not None
+    try:
+        value = parse_quantity(text, unit, decimal_comma=decimal_comma)
+    except NotationError as exc:
+        return exc.message
+    except (ValueError, OverflowError):  # a number the float conversion cannot take
+        return "out of range; expected a finite number"
+    check = _RANGES.get(col)
+    if check is not None and not check[0](value):
+        return check[1]
+    return value
+
+
+class _RowReader:
+    """Parse one record, appending every problem it finds."""
+
+    def __init__(self, record: stock_csv.Record, layout: _Layout, problems: list[Problem],
+                 warnings: list[tuple[int, str, str, str]]) -> None:
+        self.line = record.line
+        self.record = record
+        self.fields = record.fields
+        self.layout = layout
+        self.columns = layout.columns
+        self.index = layout.index
+        self.decimal_comma = layout.decimal_comma
         self.problems = problems
         self.warnings = warnings
         self.ok = True
+        self.refused: set[str] = set()
+        fields = record.fields
+        width = len(fields)
+        self.values = {col: fields[i].strip() for col, i in layout.known if i < width}
+
+    def has_header_width(self) -> bool:
+        """A row must have exactly as many fields as the header (RFC 4180); else one problem."""
+        n, width = len(self.fields), len(self.columns)
+        if n == width:
+            return True
+        if n < width:
+            last = self.fields[-1].strip() if self.fields else ""
+            self.fail("", visible(last), f"row has {n} fields but the header has {width}: "
+                      f"the row stops at column '{self.columns[n - 1]}' (a row cut short, or "
+                      "a delimiter missing); nothing on this row was read")
+        else:
+            self.fail("", visible(self.fields[width].strip()),
+                      f"row has {n} fields but the header has {width} (a delimiter too many, "
+                      "or a field with a delimiter that is not quoted); nothing on this row "
+                      "was read")
+        return False
 
     def raw(self, col: str) -> str:
-        i = self.index.get(col)
-        if i is None or i >= len(self.fields):
-            return ""
-        return self.fields[i].strip()
+        return self.values.get(col, "")
 
     def fail(self, col: str, text: str, message: str) -> None:
-        self.problems.append(Problem(self.line, col, text, message))
+        i = self.index.get(col)
+        line = self.record.field_lines[i] if i is not None and i < len(self.fields) else self.line
+        self.problems.append(Problem(line, col, text, message))
         self.ok = False
 
-    def number(self, col: str, required: bool) -> float | None:
+    def screen(self, col: str, number: bool) -> bool:
+        """Refuse invisible characters and non-ASCII digits in a part id or a number."""
         text = self.raw(col)
+        if text.isascii() and text.isprintable() and (not number or len(text) <= _MAX_NUMBER_CHARS):
+            return True
+        fault = field_fault(text, number=number)
+        if fault is None and number and len(text) > _MAX_NUMBER_CHARS:
+            fault = (f"{len(text)} characters is too long for a number (at most "
+                     f"{_MAX_NUMBER_CHARS})")
+            text = text[:40] + "…"
+        if fault is None:
+            return True
+        self.fail(col, visible(text), fault)
+        self.refused.add(col)
+        return False
+
+    def number(self, col: str, required: bool) -> float | None:
+        text = self.values.get(col, "")
         if text == "":
             if required:
                 self.fail(col, "", f"required field '{col}' is empty")
             return None
-        unit = COLUMNS[col].unit
-        assert unit is not None
-        try:
-            value = parse_quantity(text, unit, decimal_comma=self.decimal_comma)
-        except NotationError as exc:
-            self.fail(col, text, exc.message)
+        if col in self.refused:
             return None
-        check = _RANGES.get(col)
-        if check is not None and not check[0](value):
-            self.fail(col, text, check[1])
+        if not (text.isascii() and text.isprintable() and len(text) <= _MAX_NUMBER_CHARS) \
+                and not self.screen(col, number=True):
             return None
-        return value
+        found = self.layout.numbers.get((text, col))
+        if found is None:
+            found = self.layout.numbers[text, col] = _evaluate(text, col, self.decimal_comma)
+        if isinstance(found, str):
+            self.fail(col, text, found)
+            return None
+        return found
 
     def quantity(self) -> int | None:
         text = self.raw("qty")
         value = self.number("qty", required=True)
         if value is None:
             return None
-        if value < 0 or value != math.floor(value):
+        if value != math.floor(value):
             self.fail("qty", text, "quantity must be a whole number of pieces, 0 or more")
             return None
         return int(value)
 
     def build(self) -> Resistor | Transistor | None:
-        if len(self.fields) > len(self.columns):
-            extra = self.fields[len(self.columns):]
-            if any(f.strip() for f in extra):
-                self.fail("", self.fields[len(self.columns)].strip(),
-                          f"row has {len(self.fields)} fields but the header has "
-                          f"{len(self.columns)}")
-                return None
         kind = self.raw("kind").lower()
         part_id = self.raw("part_id")
         if kind not in ("resistor", "transistor"):
             if kind == "":
                 self.fail("kind", "", "required field 'kind' is empty")
             else:
-                self.fail("kind", self.raw("kind"), "unknown kind: use 'resistor' or 'transistor'")
+                self.fail("kind", visible(self.raw("kind")),
+                          "unknown kind: use 'resistor' or 'transistor'")
             return None
         if part_id == "":
             self.fail("part_id", "", "required field 'part_id' is empty")
-        for col, spec in COLUMNS.items():
-            if kind not in spec.kinds and self.raw(col) != "" and col in self.index:
-                self.warnings.append((self.line, col, self.raw(col),
+        else:
+            self.screen("part_id", number=False)
+        if "tempco_ppm" in self.index and kind == "resistor" and self.raw("tempco_ppm"):
+            self.screen("tempco_ppm", number=True)  # before any reading of the field
+        for col in self.layout.foreign[kind]:
+            if self.raw(col) != "":
+                self.warnings.append((self.line, col, visible(self.raw(col)),
                                       f"field does not apply to a {kind} row; ignored"))
-        missing = [c for c, spec in COLUMNS.items()
-                   if spec.required and kind in spec.kinds and c not in self.index]
+        missing = self.layout.missing[kind]
         for col in missing:
             self.fail(col, "", f"required column '{col}' for a {kind} row is missing "
                                "from the header")
@@ -359,6 +479,8 @@ class _RowReader:
         """``tempco_ppm`` and whether it is signed: ``-350``/``+100`` are that signed
         coefficient; a bare magnitude, ``±350`` or ``+/-350`` mean either sign (magnitude)."""
         text = self.raw("tempco_ppm")
+        if "tempco_ppm" in self.refused:  # already reported by screen()
+            return None, False
         either = next((p for p in ("±", "+/-", "+-") if text.startswith(p)), None)
         if either is None:
             value = self.number("tempco_ppm", required=False)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from .eseries import smallest_series
+from .eseries import smallest_series_many
 from .parts import Inventory
 
 __all__ = ["StockSummary", "summarise"]
@@ -28,6 +28,12 @@ class StockSummary:
         part_ids of zero-ohm links.
     assumptions : dict
         transistor part_id → statements of the defaults it relies on.
+    tolerance_counts : dict
+        Resistor lines per tolerance (key: the percentage as written by ``%g``).
+    polarity_counts : dict
+        Transistor lines per polarity.
+    pieces : dict
+        Pieces on the shelf per kind.
     """
 
     file: str
@@ -42,6 +48,9 @@ class StockSummary:
     links: list[str]
     assumptions: dict[str, list[str]]
     extra_columns: list[str] = field(default_factory=list)
+    tolerance_counts: dict[str, int] = field(default_factory=dict)
+    polarity_counts: dict[str, int] = field(default_factory=dict)
+    pieces: dict[str, int] = field(default_factory=dict)
 
     def to_dict(self) -> dict[str, object]:
         return {
@@ -53,18 +62,28 @@ class StockSummary:
             "zero_qty": list(self.zero_qty), "zero_ohm_links": list(self.links),
             "assumptions": {k: list(v) for k, v in self.assumptions.items()},
             "extra_columns": list(self.extra_columns),
+            "tolerance_counts": dict(self.tolerance_counts),
+            "polarity_counts": dict(self.polarity_counts),
+            "pieces": dict(self.pieces),
         }
 
 
+def _tally(keys: list[str]) -> dict[str, int]:
+    counts: dict[str, int] = {}
+    for key in keys:
+        counts[key] = counts.get(key, 0) + 1
+    return counts
+
+
 def summarise(inv: Inventory) -> StockSummary:
-    """Summarise a validated inventory."""
+    """Summarise a validated inventory (the E-series of every value found at once)."""
     usable = inv.bias_resistors
     values = [r.value_ohm for r in usable]
-    series = {r.part_id: smallest_series(r.value_ohm) for r in usable}
-    counts: dict[str, int] = {}
-    for name in series.values():
-        key = name or "off-series"
-        counts[key] = counts.get(key, 0) + 1
+    names = smallest_series_many(values)
+    series = {r.part_id: name for r, name in zip(usable, names, strict=True)}
+    counts = _tally([name or "off-series" for name in names])
+    tolerances = sorted({r.tolerance_pct for r in inv.resistors})
+    by_tol = _tally([f"{r.tolerance_pct:g}" for r in inv.resistors])
     return StockSummary(
         file=inv.path, sha256=inv.sha256, delimiter=inv.delimiter,
         counts={"resistor": len(inv.resistors), "transistor": len(inv.transistors)},
@@ -76,4 +95,8 @@ def summarise(inv: Inventory) -> StockSummary:
         links=[r.part_id for r in inv.resistors if r.is_link],
         assumptions={t.part_id: t.assumptions() for t in inv.transistors if t.assumptions()},
         extra_columns=list(inv.extra_columns),
+        tolerance_counts={f"{t:g}": by_tol[f"{t:g}"] for t in tolerances},
+        polarity_counts=_tally([t.polarity for t in inv.transistors]),
+        pieces={"resistor": sum(r.qty for r in inv.resistors),
+                "transistor": sum(t.qty for t in inv.transistors)},
     )

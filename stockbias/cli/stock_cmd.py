@@ -23,10 +23,18 @@ def check(
                                          help="The stock CSV file.")],
     json_out: Annotated[bool, typer.Option("--json",
                                            help="Print only a JSON object on stdout.")] = False,
+    rows: Annotated[bool, typer.Option(
+        "--rows", help="Draw every row, however big the file (above 200 lines only the "
+        "summary is drawn by default).")] = False,
 ) -> None:
     """Validate a stock file and summarise what is on the shelf."""
+    from ..render.stock_table import ReadingProgress, render_stock_summary
+
+    err = make_console(stderr=True)
+    show_progress = not json_out and err.is_terminal
     try:
-        inv = read_inventory(file)
+        with ReadingProgress(err, f"reading {file.name}") as progress:
+            inv = read_inventory(file, progress=progress if show_progress else None)
     except StockFileError as exc:
         if json_out:
             typer.echo(dumps({"file": str(file), "valid": False, "parts": [],
@@ -43,9 +51,7 @@ def check(
                    "summary": summary.to_dict()}
         typer.echo(dumps(payload))
         return
-    from ..render.stock_table import render_stock_summary
-
-    render_stock_summary(make_console(), inv, summary)
+    render_stock_summary(make_console(), inv, summary, rows=True if rows else None)
 
 
 @app.command("reserve")
