@@ -252,8 +252,9 @@ class _Parser:
         if isinstance(raw, (int, float)):
             try:
                 value = float(raw)
-            except OverflowError:  # a TOML integer beyond any float
-                value = math.inf
+            except OverflowError:
+                raise self.error("a number beyond any float; no job value comes near it",
+                                 section, key, raw, occurrence) from None
             if not math.isfinite(value):
                 raise self.error("value must be finite", section, key, raw, occurrence)
         else:
@@ -524,7 +525,10 @@ class _Parser:
 
 def _shown(value: Any) -> str:
     """The offending text for a message: as found, shortened past 60 characters."""
-    text = str(value)
+    try:
+        text = str(value)
+    except ValueError:  # an integer (from TOML hex, octal or binary) of thousands of digits
+        return "a number of thousands of digits"
     return text if len(text) <= 60 else f"{text[:40]}… ({len(text)} characters)"
 
 

@@ -8,7 +8,8 @@ from pathlib import Path
 import pytest
 
 from stockbias.errors import JobError
-from stockbias.job import load_job, parse_job
+from stockbias.job import _SECTIONS, load_job, parse_job
+from stockbias.job_ranges import PLAUSIBLE, implausible
 
 SAMPLES = Path(__file__).resolve().parent.parent / "inventory_samples"
 BASE = '[supply]\nvolts = 12\ntolerance_pct = 5\n[target]\nic = "1.5 mA"\nic_window_pct = 10\n'
@@ -133,3 +134,141 @@ def test_mains_derived_flag_and_caution() -> None:
     with pytest.raises(JobError, match="true or false"):
         parse_job(BASE.replace("tolerance_pct = 5\n",
                                'tolerance_pct = 5\nmains_derived = "yes"\n'))
+
+
+# --- plausible ranges (job_ranges.PLAUSIBLE) ---------------------------------------------
+
+_SECTION_OF = {key: section for section, keys in _SECTIONS.items() for key in keys}
+# the keys a value needs beside it to be read at all
+_COMPANIONS = {"ic_min": "ic_max = 10", "ic_max": "ic_min = 1e-7", "ic": "ic_window_pct = 30",
+               "ic_window_pct": 'ic = "1 mA"'}
+
+
+def _job_with(key: str, value: str) -> str:
+    section = _SECTION_OF[key]
+    body = {"supply": ["volts = 12"], "target": []}
+    if section != "target" or key not in _COMPANIONS:
+        body["target"] = ['ic = "1 mA"', "ic_window_pct = 30"]
+    else:
+        body["target"] = [_COMPANIONS[key]]
+    body.setdefault(section, [])
+    body[section] = [line for line in body[section] if not line.startswith(f"{key} ")]
+    body[section].append(f"{key} = {value}")
+    return "".join(f"[{s}]\n" + "".join(f"{line}\n" for line in lines)
+                   for s, lines in body.items())
+
+
+def _outside(key: str) -> list[float]:
+    """The nearest values beyond each end of the range (the end itself where it is open)."""
+    rng = PLAUSIBLE[key]
+    if rng.whole:
+        return [rng.low - 1, rng.high + 1]
+    low = rng.low if rng.low_open else math.nextafter(rng.low, -math.inf)
+    high = rng.high if rng.high_open else math.nextafter(rng.high, math.inf)
+    return [low, high]
+
+
+def _text(key: str, value: float) -> str:
+    return str(int(value)) if PLAUSIBLE[key].whole else repr(float(value))
+
+
+@pytest.mark.parametrize("key", sorted(PLAUSIBLE))
+def test_values_just_outside_the_plausible_range_are_refused(key: str) -> None:
+    # exhaustive over the table: the next float beyond each closed end, an open end itself
+    for value in _outside(key):
+        text = _job_with(key, _text(key, value))
+        with pytest.raises(JobError) as info:
+            parse_job(text, "job.toml")
+        err = info.value
+        line = text.splitlines().index(f"{key} = {_text(key, value)}") + 1
+        assert (err.line, err.column) == (line, f"{_SECTION_OF[key]}.{key}"), err.one_line()
+        assert err.text == _text(key, value)
+        assert key in err.message and "must be" in err.message
+
+
+# the closed ends a job can use alone (the others need a partner key to stay consistent)
+_ALONE = sorted(k for k in PLAUSIBLE if k not in ("derating_knee_c", "derating_zero_c"))
+
+
+@pytest.mark.parametrize("key", _ALONE)
+def test_the_closed_ends_of_a_plausible_range_are_accepted(key: str) -> None:
+    rng = PLAUSIBLE[key]
+    ends = [v for v, is_open in ((rng.low, rng.low_open), (rng.high, rng.high_open))
+            if not is_open]
+    if key in ("ic_min", "ic_max"):   # the partner sits at the other end
+        ends = [rng.low] if key == "ic_min" else [rng.high]
+    for value in ends:
+        parse_job(_job_with(key, _text(key, value)), "job.toml")   # no error
+
+
+def test_plausible_ranges_in_words() -> None:
+    assert implausible("volts", 12.0) is None
+    assert implausible("no_such_key", 1e308) is None
+    assert implausible("volts", 1e308).startswith("volts must be at least 100 mV and at most "
+                                                  "1 kV (")
+    assert implausible("quantity", 2.5) == ("quantity must be a whole number, at least 1 and "
+                                            "at most 10000000")
+    assert implausible("time_limit_s", 0.0).startswith("time_limit_s must be more than 0 s")
+    assert implausible("ic", math.nan) is not None
+    assert implausible("ic", math.inf) is not None
+
+
+@pytest.mark.parametrize(
+    ("text", "line", "key", "bad", "words"),
+    [
+        (BASE.replace("volts = 12", "volts = 1e308"), 2, "supply.volts", "1e+308",
+         "at most 1 kV"),
+        (BASE + "[environment]\nambient_min_c = -273.15\n", 8, "environment.ambient_min_c",
+         "-273.15", "at least -60 °C"),
+        (BASE.replace('"1.5 mA"', "1e-300"), 5, "target.ic", "1e-300", "at least 100 nA"),
+        (BASE.replace('"1.5 mA"', '"1e-99999 A"'), 5, "target.ic", "1e-99999 A",
+         "at least 100 nA"),
+        (BASE + "[search]\nseed = 1.5\n", 8, "search.seed", "1.5", "whole number"),
+        (BASE + "[search]\ntop = 1" + "0" * 400 + "\n", 8, "search.top",
+         "1000000000000000000000000000000000000000… (401 characters)", "beyond any float"),
+        (BASE + "[limits]\ntj_max = 25\n", 8, "limits.tj_max", "25", "more than 25 °C"),
+        (BASE + '[search]\nobjectives = ["cost", 5]\n', 8, "search.objectives", "5",
+         "unknown objective"),
+    ],
+)
+def test_implausible_and_ill_typed_values(text: str, line: int, key: str, bad: str,
+                                          words: str) -> None:
+    with pytest.raises(JobError) as info:
+        parse_job(text, "job.toml")
+    err = info.value
+    assert (err.file, err.line, err.column, err.text) == ("job.toml", line, key, bad)
+    assert words in err.message
+
+
+@pytest.mark.parametrize(
+    ("text", "line", "words"),
+    [
+        (BASE + "[build]\nquantity = 1" + "0" * 5000 + "\n", 8, "thousands of digits"),
+        (BASE + "[search]\nseed = 0x" + "f" * 5000 + "\n", 8, "thousands of digits"),
+        (BASE + "[build]\nquantity = " + "[" * 5000 + "]" * 5000 + "\n", 8, "nested too deeply"),
+    ],
+)
+def test_inputs_python_refuses_to_read_are_job_errors(text: str, line: int, words: str
+                                                       ) -> None:
+    with pytest.raises(JobError) as info:
+        parse_job(text, "job.toml")
+    assert (info.value.line, info.value.file) == (line, "job.toml")
+    assert words in info.value.one_line()
+
+
+def test_stage_subtables_of_the_wrong_type() -> None:
+    head = '[supply]\nvolts = 15\n[[stage]]\nname = "a"\n'
+    for sub, value in (("target", "5"), ("limits", '"x"'), ("values", "[1]")):
+        with pytest.raises(JobError) as info:
+            parse_job(head + f"{sub} = {value}\n", "board.toml")
+        assert (info.value.line, info.value.column) == (5, f"stage.{sub}")
+        assert f"[stage.{sub}]" in info.value.message
+
+
+def test_byte_order_mark_is_ignored(tmp_path: Path) -> None:
+    path = tmp_path / "job.toml"
+    path.write_bytes(b"\xef\xbb\xbf" + BASE.encode("utf-8"))
+    job = load_job(path)
+    assert job.supply.volts == 12.0
+    assert job.stage.target.ic_min == pytest.approx(1.35e-3)   # 1.5 mA − 10 %
+    assert parse_job("\ufeff" + BASE).supply.volts == 12.0

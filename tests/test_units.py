@@ -360,3 +360,29 @@ def test_round_trip_decimal_comma(x: float, unit: str) -> None:
     text = format_quantity(x, unit).replace(".", ",")
     back = parse_quantity(text, unit, decimal_comma=True)
     assert math.isclose(back, x, rel_tol=5e-3)
+
+
+# --------------------------------------------------------------------------- long exponents
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        ("1e-" + "9" * 5000, 0.0),                     # underflows to zero, as float() does
+        ("1e-" + "0" * 5000 + "3", 1e-3),              # leading zeros are only zeros
+        ("2.5e+" + "0" * 4400 + "2", 250.0),
+        ("7.5E-" + "0" * 10 + "6", 7.5e-6),
+        ("-4.7e0000000000003", -4700.0),
+    ],
+)
+def test_exponent_of_any_length(text: str, expected: float) -> None:
+    # Python refuses int() of more than 4300 digits; the exponent is read without it
+    assert parse_quantity(text, "") == expected
+
+
+@pytest.mark.parametrize("text", ["1e" + "9" * 5000, "1e+" + "9" * 5000, "-1e" + "1" * 7])
+def test_exponent_beyond_any_float_is_a_notation_error(text: str) -> None:
+    with pytest.raises(NotationError) as info:
+        parse_quantity(text, "A")
+    assert info.value.text == text
+    assert "finite" in info.value.message
