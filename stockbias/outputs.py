@@ -166,7 +166,7 @@ class OutputSet:
     def _targets(out: _Output) -> list[str]:
         if out.folder:
             base = os.path.realpath(out.path)
-            return [os.path.join(base, n) for n in out.names]
+            return [base, *(os.path.join(base, n) for n in out.names)]
         return [_real_target(out.path)]
 
     def file(self, option: str, path: str | Path | None) -> Path | None:
