@@ -81,7 +81,7 @@ PAIR_ROW_LIMIT = 20_000_000
 Progress = Callable[[str, float], None]
 
 
-@dataclass
+@dataclass(eq=False)
 class _Block:
     """One (network, transistor): candidate tables and the rows of the enumerated roles.
 
@@ -102,6 +102,7 @@ class _Block:
     ic_lo: np.ndarray | None = None
     exact: bool = False
     lb: np.ndarray | None = None
+    k: int = -1                      # its index in the search's block list
 
     def release(self) -> None:
         """Drop the row arrays once the block's group is searched (designs in the pool
@@ -156,7 +157,8 @@ class _Search:
         self.timed_out = False
         self.coverage = Coverage(len(self.transistors))
         self.stats: dict[str, int] = {"cores": 0, "designs_vertex_checked": 0,
-                                      "designs_kept": 0, "verified": 0}
+                                      "designs_kept": 0, "verified": 0, "row_units": 0,
+                                      "row_groups": 0}
 
     # --- candidate generation -------------------------------------------------------
     def network_cands(self, net_name: str) -> dict[str, RoleCandidates]:
@@ -195,6 +197,7 @@ class _Search:
         """One (network, range, transistor) unit: its rows with a lower-bound key ≤ κ
         (None when there are none).  Rows with an empty cut or a key above κ cannot lead
         to a design ranked in the top K (κ only falls), so they are not kept."""
+        self.stats["row_units"] += 1
         if self.job.search.model == "exponential":
             b = self._exponential_block(net_name, qi, q, cands)
             sel, key = self.row_bounds(b)
@@ -460,7 +463,7 @@ class _Search:
         mppm = margin_ppm(ic_lo, ic_hi, t.ic_min, t.ic_max, t.ic)
         key = objective_key(self.objectives, cost, parts, distinct, bom, mppm)
         keep = _lex_le(key, kappa)
-        k_block = self.blocks.index(b)
+        k_block = b.k
         picks = np.flatnonzero(keep)
         if picks.size > 256 and not np.all(kappa < _BIG):
             # no bound yet: pool the best few in growing batches, bound from them
@@ -600,6 +603,7 @@ class _Search:
                 return self._cut(group)
             b = self.load(net_name, cands, span, qi, q, kappa)
             if b is not None:
+                b.k = len(self.blocks)
                 self.blocks.append(b)
                 group.append(len(self.blocks) - 1)
                 held += b.n_rows
@@ -626,6 +630,7 @@ class _Search:
                      ) -> tuple[bool, dict[str, float], np.ndarray]:
         """Best-first over the rows of the loaded blocks ``group`` in the order of their
         lower-bound keys; (finished, bound on the first objective when not, κ)."""
+        self.stats["row_groups"] += 1
         bids, rids, keys, weights = [], [], [], []
         for k in group:
             b = self.blocks[k]

@@ -67,15 +67,19 @@ class Coverage:
             if n.a >= total:
                 parts.append(f"{net}: every row searched")
                 continue
-            text = f"{net}: {n.role} candidates "
-            if n.a > 0:
-                text += (f"1–{n.a:,} of {total:,} (values to "
-                         f"{format_quantity(n.values[n.a - 1], 'ohm')}) searched with every "
-                         "transistor")
+            if n.a == 0 and n.q == 0:
+                parts.append(f"{net}: none of {total:,} {n.role} candidates searched")
+                continue
+            if n.a == 0:
+                text = (f"{net}: {n.role} candidates 1–{n.z:,} of {total:,} searched with "
+                        f"{n.q} of {self.transistors} transistors")
             else:
-                text += f"none of {total:,} searched with every transistor"
-            if n.q > 0:
-                text += f", {n.a + 1:,}–{n.z:,} with {n.q} of {self.transistors} transistors"
+                text = (f"{net}: {n.role} candidates 1–{n.a:,} of {total:,} (values to "
+                        f"{format_quantity(n.values[n.a - 1], 'ohm')}) searched with every "
+                        "transistor")
+                if n.q > 0:
+                    text += (f", {n.a + 1:,}–{n.z:,} with {n.q} of {self.transistors} "
+                             "transistors")
             parts.append(text)
         return ("the time limit cut the pre-pass, so the status is not a proof: "
                 + "; ".join(parts) + "; the rest was not searched")
