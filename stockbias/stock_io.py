@@ -1,15 +1,22 @@
 """Read a stock file (one CSV, a ``kind`` column) into an :class:`Inventory`.
 
-The reader uses the :mod:`csv` module so that every problem can name the
-physical line, the column and the exact text.  It collects every problem in
-the file before it raises one :class:`StockFileError` that carries them all.
-It never writes the file.
+Records are split as RFC 4180 splits them (:mod:`stockbias.stock_csv`, on top of the
+:mod:`csv` module) so that every problem can name the physical line, the column and
+the exact text.  It collects every problem in the file before it raises one
+:class:`StockFileError` that carries them all.  It never writes the file.
 
 Accepted: UTF-8 with or without a byte-order mark; ``,`` or ``;`` as the
-delimiter (detected from the header line); blank lines; comment lines whose
-first non-blank character is ``#``; header names in any case with spaces
-around them.  A semicolon-delimited file may use decimal commas (``4,7k``).
+delimiter (detected from the header line); CRLF, LF or CR line ends; quoted fields
+holding delimiters, quotes and line breaks; blank lines and comment lines whose first
+non-blank character is ``#`` (outside quoted fields); header names in any case with
+spaces around them.  A semicolon-delimited file may use decimal commas (``4,7k``).
 Unknown columns are kept (their names are listed) and otherwise ignored.
+
+Refused, each with its line, column and text: a row with fewer or more fields than
+the header; control characters anywhere (other programs split or hide lines at
+them); invisible characters and non-ASCII digits in part ids and numbers; a number
+outside its column's plausible range (:mod:`stockbias.stock_ranges`), not finite, or
+longer than 64 characters.
 """
 
 from __future__ import annotations
@@ -24,6 +31,7 @@ from . import stock_csv
 from .errors import NotationError, Problem, StockFileError
 from .parts import TRANSISTOR_DEFAULTS, Inventory, Resistor, Transistor
 from .stock_csv import describe, field_fault, line_faults, sanitise, visible
+from .stock_ranges import RANGES as _RANGES
 from .units import parse_quantity
 
 __all__ = ["COLUMNS", "load_inventory", "read_inventory"]
@@ -76,69 +84,6 @@ COLUMNS: dict[str, Column] = {c.name: c for c in (
     Column("xti", "", _T),
     Column("eg_ev", "eV", _T),
 )}
-
-@dataclass(frozen=True)
-class Plausible:
-    """The plausible range of one numeric column, in the column's unit.
-
-    A value passes when it is finite and ``low <= v <= high`` (``low < v`` when
-    ``low_open``); ``zero_ok`` also lets 0 through (a zero-ohm link), ``magnitude``
-    tests ``abs(v)`` (a signed tempco).
-    """
-
-    low: float
-    high: float
-    low_open: bool = False
-    zero_ok: bool = False
-    magnitude: bool = False
-
-    def __call__(self, value: float) -> bool:
-        if not math.isfinite(value):
-            return False
-        v = abs(value) if self.magnitude else value
-        if self.zero_ok and v == 0:
-            return True
-        return (v > self.low if self.low_open else v >= self.low) and v <= self.high
-
-
-def _between(what: str, low: str, high: str) -> str:
-    return f"{what} must be between {low} and {high}"
-
-
-#: Plausible ranges per numeric column: (test, message when it fails).  Wide enough for
-#: any discrete small-signal or power part; outside them a value is a typing slip (or a
-#: unit lost) and would only break the analysis later.  The README table lists them.
-_RANGES: dict[str, tuple[Callable[[float], bool], str]] = {
-    "value": (Plausible(1e-3, 1e10, zero_ok=True),
-              "resistance must be 0 (a zero-ohm link) or between 1 mΩ and 10 GΩ"),
-    "tolerance_pct": (Plausible(1e-3, 50), _between("tolerance", "0.001 %", "50 %")),
-    "power_w": (Plausible(1e-3, 1e3), _between("power rating", "1 mW", "1 kW")),
-    "tempco_ppm": (Plausible(0, 1e4, magnitude=True),
-                   _between("tempco", "−10000", "+10000 ppm/°C")),
-    "qty": (Plausible(0, 1e9), _between("quantity", "0", "1000000000 pieces")),
-    "unit_cost": (Plausible(0, 1e6), _between("unit cost", "0", "1000000")),
-    "hfe_min": (Plausible(1, 1e5), _between("hFE", "1", "100000")),
-    "hfe_max": (Plausible(1, 1e5), _between("hFE", "1", "100000")),
-    "vceo_max": (Plausible(0.1, 1e4), _between("VCEO rating", "100 mV", "10 kV")),
-    "ic_max": (Plausible(1e-6, 1e3), _between("IC rating", "1 µA", "1 kA")),
-    "pd_max_w": (Plausible(1e-3, 1e4), _between("dissipation rating", "1 mW", "10 kW")),
-    "vbe_min": (Plausible(0.1, 1.5), _between("VBE", "0.1 V", "1.5 V")),
-    "vbe_max": (Plausible(0.1, 1.5), _between("VBE", "0.1 V", "1.5 V")),
-    "vce_sat": (Plausible(0, 5), _between("VCE(sat)", "0 V", "5 V")),
-    "hfe_test_ic": (Plausible(1e-9, 1e3), _between("hFE test current", "1 nA", "1 kA")),
-    "theta_ja": (Plausible(0.1, 2000), _between("θJA", "0.1 °C/W", "2000 °C/W")),
-    "tj_max": (Plausible(25, 300, low_open=True),
-               "TJ max must be more than 25 °C and at most 300 °C"),
-    "icbo_a": (Plausible(0, 1), _between("leakage ICBO", "0 A", "1 A")),
-    "is_a": (Plausible(1e-25, 1e-6), _between("IS", "1e-25 A", "1 µA")),
-    "br": (Plausible(1e-3, 1e3), _between("BR", "0.001", "1000")),
-    "nf": (Plausible(0.5, 3), _between("NF", "0.5", "3")),
-    "nr": (Plausible(0.5, 3), _between("NR", "0.5", "3")),
-    "vaf_v": (Plausible(1, 1e5), _between("VAF", "1 V", "100 kV")),
-    "xtb": (Plausible(-10, 10), _between("XTB", "−10", "10")),
-    "xti": (Plausible(-10, 20), _between("XTI", "−10", "20")),
-    "eg_ev": (Plausible(0.1, 5), _between("EG", "0.1 eV", "5 eV")),
-}
 
 #: Longest text read as a number (a longer one is refused before it is parsed).
 _MAX_NUMBER_CHARS = 64

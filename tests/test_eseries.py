@@ -17,10 +17,12 @@ from stockbias.eseries import (
     decade_values,
     mantissas,
     nearest,
+    nearest_many,
     series_of,
     series_tolerance_pct,
     series_values,
     smallest_series,
+    smallest_series_many,
 )
 
 # source: IEC 60063, as quoted in REFERENCES.md
@@ -260,3 +262,49 @@ def test_every_series_value_is_found(name: str, index: int, decade: int) -> None
     value = m * 10.0 ** (decade - len(str(m)) + 1)
     assert name in series_of(value)
     assert nearest(value, name) == pytest.approx(value, rel=1e-12)
+
+
+# -- the array versions: element by element the same as the scalar functions -----------------
+
+def _probe_values() -> np.ndarray:
+    """Every series value from 1 mΩ to 10 GΩ, those of 0.1 Ω…1 kΩ nudged, random fill, ties."""
+    exact = np.unique(np.concatenate([series_values(n, 1e-3, 1e10) for n in SERIES_NAMES]))
+    near = np.unique(np.concatenate([series_values(n, 0.1, 1e3) for n in SERIES_NAMES]))
+    rng = np.random.default_rng(60063)
+    fill = 10.0 ** rng.uniform(-3.0, 10.0, 2_000)
+    # geometric midpoints of neighbouring E3 values: exact ties in ratio (lower one wins)
+    e3 = series_values("E3", 1e-3, 1e10)
+    mids = np.sqrt(e3[:-1] * e3[1:])
+    return np.concatenate([exact, near * (1 + 1e-7), near * (1 - 1e-7), near * 1.004,
+                           fill, mids, [1e-30, 1e30, 999.9999999999, 1000.0000000001]])
+
+
+@pytest.mark.parametrize("name", SERIES_NAMES)
+def test_nearest_many_equals_nearest_everywhere(name: str) -> None:
+    # source: exhaustive evaluation of the scalar nearest() written here, exact equality
+    values = _probe_values()
+    expected = np.array([nearest(v, name) for v in values])
+    np.testing.assert_array_equal(nearest_many(values, name), expected)
+
+
+def test_smallest_series_many_equals_smallest_series() -> None:
+    # source: exhaustive evaluation of the scalar smallest_series(), exact equality
+    values = _probe_values()
+    assert smallest_series_many(values) == [smallest_series(v) for v in values]
+
+
+def test_array_versions_keep_shape_and_take_empty_input() -> None:
+    grid = np.array([[4700.0, 4750.0], [125.0, 0.47]])
+    # expected: by hand from the IEC 60063 lists above
+    np.testing.assert_array_equal(nearest_many(grid, "E12"), [[4700.0, 4700.0], [120.0, 0.47]])
+    assert smallest_series_many(grid) == ["E3", "E96", None, "E3"]
+    assert nearest_many([], "E24").shape == (0,)
+    assert smallest_series_many([]) == []
+
+
+@pytest.mark.parametrize("bad", [0.0, -1.0, math.nan, math.inf])
+def test_array_versions_reject_what_the_scalar_rejects(bad: float) -> None:
+    with pytest.raises(ValueError, match="finite and > 0"):
+        nearest_many([4700.0, bad], "E12")
+    with pytest.raises(ValueError, match="finite and > 0"):
+        smallest_series_many([bad])

@@ -214,3 +214,115 @@ def test_e96_reel_sample_is_the_whole_series() -> None:
     assert len(inv.resistors) == 481
     assert min(r.value_ohm for r in inv.resistors) == 10.0
     assert max(r.value_ohm for r in inv.resistors) == 1e6
+
+
+# -- plausible ranges (stock_ranges.RANGES) -------------------------------------------------
+
+FULL_HEADER = ("kind,part_id,value,tolerance_pct,power_w,tempco_ppm,qty,unit_cost,polarity,"
+               "hfe_min,hfe_max,vceo_max,ic_max,pd_max_w,vbe_min,vbe_max,vce_sat,hfe_test_ic,"
+               "theta_ja,tj_max,icbo_a,is_a,br,nf,nr,vaf_v,xtb,xti,eg_ev")
+FULL_COLUMNS = FULL_HEADER.split(",")
+R_BASE = {"kind": "resistor", "part_id": "R1", "value": "4700", "tolerance_pct": "5",
+          "power_w": "0.25", "tempco_ppm": "100", "qty": "10", "unit_cost": "0.01"}
+T_BASE = {"kind": "transistor", "part_id": "Q1", "qty": "10", "unit_cost": "0.05",
+          "polarity": "NPN", "hfe_min": "100", "hfe_max": "300", "vceo_max": "40",
+          "ic_max": "0.2", "pd_max_w": "0.625", "vbe_min": "0.6", "vbe_max": "0.75",
+          "vce_sat": "0.2", "hfe_test_ic": "0.01", "theta_ja": "200", "tj_max": "150",
+          "icbo_a": "5e-8", "is_a": "1e-14", "br": "4", "nf": "1", "nr": "1", "vaf_v": "75",
+          "xtb": "1.5", "xti": "3", "eg_ev": "1.11"}
+#: column, lowest accepted, highest accepted (the README table; DESIGN §3 for the value)
+EDGES = [
+    ("value", 1e-3, 1e10), ("tolerance_pct", 1e-3, 50), ("power_w", 1e-3, 1e3),
+    ("tempco_ppm", -1e4, 1e4), ("qty", 0, 1e9), ("unit_cost", 0, 1e6),
+    ("hfe_min", 1, 1e5), ("hfe_max", 1, 1e5), ("vceo_max", 0.1, 1e4), ("ic_max", 1e-6, 1e3),
+    ("pd_max_w", 1e-3, 1e4), ("vbe_min", 0.1, 1.5), ("vbe_max", 0.1, 1.5), ("vce_sat", 0, 5),
+    ("hfe_test_ic", 1e-9, 1e3), ("theta_ja", 0.1, 2000), ("tj_max", 25.000001, 300),
+    ("icbo_a", 0, 1), ("is_a", 1e-25, 1e-6), ("br", 1e-3, 1e3), ("nf", 0.5, 3), ("nr", 0.5, 3),
+    ("vaf_v", 1, 1e5), ("xtb", -10, 10), ("xti", -10, 20), ("eg_ev", 0.1, 5),
+]
+#: fields that must move with the one under test (hfe_min <= hfe_max, vbe_min <= vbe_max)
+COMPANIONS = {("hfe_min", "high"): {"hfe_max": "1e5"}, ("hfe_max", "low"): {"hfe_min": "1"},
+              ("vbe_min", "high"): {"vbe_max": "1.5"}, ("vbe_max", "low"): {"vbe_min": "0.1"}}
+
+
+def one_row(tmp_path: Path, column: str, text: str, end: str = "") -> Path:
+    kind = "resistor" if column in ("value", "tolerance_pct", "power_w", "tempco_ppm") \
+        else "transistor"
+    row = dict(R_BASE if kind == "resistor" else T_BASE)
+    row[column] = text
+    row.update(COMPANIONS.get((column, end), {}))
+    line = ",".join(row.get(c, "") for c in FULL_COLUMNS)
+    return write(tmp_path, f"{FULL_HEADER}\n{line}\n")
+
+
+def test_every_numeric_column_has_a_plausible_range() -> None:
+    from stockbias.stock_io import COLUMNS
+    from stockbias.stock_ranges import RANGES
+
+    numeric = {name for name, col in COLUMNS.items() if col.unit is not None}
+    assert numeric == set(RANGES) == {c for c, _, _ in EDGES}
+
+
+@pytest.mark.parametrize(("column", "low", "high"), EDGES, ids=[e[0] for e in EDGES])
+def test_range_edges_are_accepted(tmp_path: Path, column: str, low: float, high: float) -> None:
+    for end, value in (("low", low), ("high", high)):
+        inv = read_inventory(one_row(tmp_path, column, repr(float(value)), end))
+        part = (inv.resistors + inv.transistors)[0]
+        got = getattr(part, "value_ohm" if column == "value" else column)
+        if column == "tempco_ppm":
+            assert (got, part.tempco_signed) == (value, value < 0)  # '-10000.0' is signed
+        else:
+            assert got == pytest.approx(value, rel=1e-12)
+
+
+@pytest.mark.parametrize(("column", "low", "high"), EDGES, ids=[e[0] for e in EDGES])
+def test_outside_the_range_is_one_error_naming_the_column(tmp_path: Path, column: str,
+                                                          low: float, high: float) -> None:
+    below = low - 1e-3 * max(abs(low), 1e-30) if low != 0 else -1e-9
+    if column == "tj_max":
+        below = 25.0
+    for value in (below, high * 1.001 + 1e-30):
+        found = problems_of(one_row(tmp_path, column, repr(value)))
+        assert [(f[0], f[1], f[2]) for f in found] == [(2, column, repr(value))]
+        assert "must be" in found[0][3]
+
+
+@pytest.mark.parametrize(
+    ("column", "text", "words"),
+    [
+        ("qty", "1e308", "between 0 and 1000000000 pieces"),
+        ("power_w", "250 MW", "between 1 mW and 1 kW"),
+        ("tempco_ppm", "5000000", "between −10000 and +10000 ppm/°C"),
+        ("tempco_ppm", "±20000", "between −10000 and +10000 ppm/°C"),
+        ("hfe_max", "1e30", "between 1 and 100000"),
+        ("unit_cost", "1e30", "between 0 and 1000000"),
+        ("qty", "1e-300", "whole number"),
+        ("vceo_max", "1e999", "out of range"),
+    ],
+)
+def test_implausible_values_from_the_field(tmp_path: Path, column: str, text: str,
+                                           words: str) -> None:
+    (line, col, bad, message), = problems_of(one_row(tmp_path, column, text))
+    assert (line, col, bad) == (2, column, text)
+    assert words in message
+
+
+@pytest.mark.parametrize("column", [e[0] for e in EDGES])
+@pytest.mark.parametrize("text", ["nan", "inf", "-inf", "NaN", "1e400", "-1e400"])
+def test_non_finite_numbers_are_refused(tmp_path: Path, column: str, text: str) -> None:
+    (line, col, bad, message), = problems_of(one_row(tmp_path, column, text))
+    assert (line, col, bad) == (2, column, text)
+    assert "finite" in message or "must be" in message
+
+
+@pytest.mark.parametrize("column", ["value", "qty", "tempco_ppm", "hfe_min", "is_a"])
+@pytest.mark.parametrize("text", ["1e" + "9" * 5000, "9" * 5000, "0." + "0" * 4999 + "1",
+                                  "±1e" + "9" * 5000])
+def test_numbers_of_thousands_of_digits_are_one_error(tmp_path: Path, column: str,
+                                                      text: str) -> None:
+    if text.startswith("±") and column != "tempco_ppm":
+        text = text[1:]
+    (line, col, bad, message), = problems_of(one_row(tmp_path, column, text))
+    assert (line, col) == (2, column)
+    assert bad.endswith("…") and len(bad) <= 41
+    assert "too long for a number" in message
