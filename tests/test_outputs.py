@@ -336,3 +336,17 @@ def test_an_unwritable_system_folder_is_one_line(bench: dict[str, Path]) -> None
     result = runner.invoke(app, [*command("check", bench), "--report", "/proc/stockbias.html"])
     assert result.exit_code == 2, result.output
     assert one_line(result).startswith("/proc/stockbias.html: option '--report': ")
+
+
+@pytest.mark.parametrize("option", ["--netlist", "--pick-list"])
+def test_export_never_writes_over_its_from_file(bench: dict[str, Path], option: str) -> None:
+    saved = bench["job"].parent / "result.json"
+    saved.write_text('{"designs": []}\n')
+    before = listing(bench["job"].parent)
+    result = runner.invoke(app, ["export", str(bench["job"]), "-i", str(bench["shelf"]),
+                                 "--from", str(saved), option, str(saved), "--force"])
+    assert result.exit_code == 2, result.output
+    assert one_line(result) == (f"{saved}: option '{option}': this is the saved result "
+                                "(--from), an input of the command; it is never written over "
+                                "(even with --force)")
+    assert listing(bench["job"].parent) == before
