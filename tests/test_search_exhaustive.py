@@ -231,3 +231,155 @@ def test_cases_cover_the_kinds_the_brief_names():
         if r1.designs and _search_keys(relaxed, r1)[0] != _search_keys(job, r)[0]:
             kinds.add("stock_binds")
     assert {"infeasible", "repeats", "stock_binds"} <= kinds
+
+
+# Pairs: every role may also be a series or parallel pair of two stock lines (unequal
+# values, unequal tolerances, signed and unsigned tempcos).  The reference computes each
+# pair's exact band and worst-split rating here, from the parts' extremes (written out
+# below, sharing no code with the search or stockbias.resistor_band).
+PAIR_CASES = [
+    # (seed, topology, lines, transistors, window %, objectives, temperature range); in
+    # each, a pair of two different lines with different tolerances ranks among the best three
+    (34, "fixed_base", 5, 2, 60, ["cost", "part_count", "ic_margin"], (0, 60)),
+    (31, "collector_feedback", 5, 2, 50, ["part_count", "cost", "ic_margin"], (-20, 70)),
+    (31, "divider", 3, 1, 30, ["ic_margin", "cost"], (0, 50)),
+    (37, "dual_supply", 3, 2, 30, ["cost", "ic_margin"], (0, 50)),
+]
+
+
+def _pair_shelf(seed: int, n_lines: int, narrow: bool, n_q: int = 2) -> Inventory:
+    rng = np.random.default_rng(seed)
+    pool = series_values("E12", 2.2e3, 470e3) if narrow else series_values("E6", 220.0, 47e3)
+    values = sorted(rng.choice(pool, size=n_lines, replace=False))
+    resistors = []
+    for i, v in enumerate(values):
+        tc, signed = [(-350.0, True), (100.0, True), (200.0, False), (0.0, False)][i % 4]
+        resistors.append(Resistor(
+            part_id=f"P{i:02d}", value_ohm=float(v), tolerance_pct=[1.0, 10.0, 5.0][i % 3],
+            power_w=float(rng.choice([0.063, 0.125, 0.25])), tempco_ppm=tc, tempco_signed=signed,
+            qty=20, unit_cost=float(rng.choice([0.01, 0.02, 0.05])), line=i + 2))
+    q = [Transistor(part_id=f"Q{j}", polarity="NPN", hfe_min=100.0 + 50 * j,
+                    hfe_max=300.0 + 100 * j, vceo_max=40.0, ic_max=0.1, pd_max_w=0.5,
+                    vbe_min=0.6, vbe_max=0.72, qty=100, unit_cost=0.05, line=100 + j)
+         for j in range(n_q)]
+    return Inventory(path=f"<pair shelf {seed}>", resistors=tuple(resistors),
+                     transistors=tuple(q))
+
+
+def _piece(r: Resistor, tmin: float, tmax: float, at: float | None = None
+           ) -> tuple[float, float]:
+    """(low, high) of one part over its tolerance and drift (at one temperature if given):
+    R·(1 ± tol)·(1 + tc·(T − 25)), a signed tc as written, an unsigned one either way."""
+    temps = [tmin, tmax] if at is None else [at]
+    tc = (r.tempco_ppm or 0.0) * 1e-6
+    if r.tempco_signed:
+        f_lo = min(1 + tc * (t - 25) for t in temps)
+        f_hi = max(1 + tc * (t - 25) for t in temps)
+    else:
+        f_lo = min(1 - abs(tc) * abs(t - 25) for t in temps)
+        f_hi = max(1 + abs(tc) * abs(t - 25) for t in temps)
+    t = r.tolerance_pct / 100
+    return r.value_ohm * (1 - t) * f_lo, r.value_ohm * (1 + t) * f_hi
+
+
+def _pair_candidates(lines: list[Resistor], build: int, tmin: float, tmax: float):
+    """Every single line and every series/parallel pair: (pieces, arrangement, nominal, low,
+    high, allowed total at 70 °C)."""
+    out = []
+    for r in lines:
+        lo, hi = _piece(r, tmin, tmax)
+        out.append(((r,), "single", r.value_ohm, lo, hi, r.power_w))
+    for i, a in enumerate(lines):
+        for b in lines[i:]:
+            if a is b and a.qty < 2 * build:
+                continue
+            (al, ah), (bl, bh) = _piece(a, tmin, tmax), _piece(b, tmin, tmax)
+            for arr in ("series", "parallel"):
+                if arr == "series":
+                    nom, lo, hi = a.value_ohm + b.value_ohm, al + bl, ah + bh
+                else:
+                    nom = 1 / (1 / a.value_ohm + 1 / b.value_ohm)
+                    lo, hi = 1 / (1 / al + 1 / bl), 1 / (1 / ah + 1 / bh)
+                rating = math.inf
+                for temp in {tmin, tmax}:     # both parts at the same ambient
+                    (xl, xh), (yl, yh) = _piece(a, tmin, tmax, temp), _piece(b, tmin, tmax, temp)
+                    if arr == "series":       # a carries Ra/(Ra+Rb): a high, b low
+                        sa, sb = xh / (xh + yl), yh / (yh + xl)
+                    else:                     # a carries Rb/(Ra+Rb): a low, b high
+                        sa, sb = yh / (xl + yh), xh / (xh + yl)
+                    rating = min(rating, a.power_w / sa, b.power_w / sb)
+                out.append(((a, b), arr, nom, lo, hi, rating))
+    return out
+
+
+def _exhaustive_pairs(job: Job, inv: Inventory, top: int):
+    st = job.stage
+    t = st.target
+    env = job.environment
+    lines = [r for r in inv.resistors if r.qty >= job.build.quantity]
+    cands = _pair_candidates(lines, job.build.quantity, env.ambient_min_c, env.ambient_max_c)
+    net = get_network(st.topology)
+    choices = [list(range(len(cands))) + ([None] if role.optional else []) for role in net.roles]
+    combos = list(itertools.product(*choices))
+    found = []
+    for q in inv.transistors:
+        arrays, ratings = {}, {}
+        for k, role in enumerate(net.roles):
+            rows = [(0.0, 0.0, 0.0, 0.0) if c[k] is None else cands[c[k]][2:] for c in combos]
+            nom, lo, hi, rating = (np.array(x) for x in zip(*rows, strict=True))
+            arrays[role.name] = ResistorSpec(nom, np.zeros_like(nom), band=(lo, hi))
+            ratings[role.name] = rating
+        spec = _spec(job, st.topology, q, arrays)
+        ok, low, high = vertex_screen(job, st, spec, ratings)
+        icm = np.minimum(low["ic"] - t.ic_min, t.ic_max - high["ic"]) / t.ic
+        for i in np.flatnonzero(ok):
+            used = [r for x in combos[i] if x is not None for r in cands[x][0]]
+            counts: dict[str, int] = {}
+            for r in used:
+                counts[r.part_id] = counts.get(r.part_id, 0) + 1
+            if any(r.qty < counts[r.part_id] * job.build.quantity for r in used):
+                continue
+            vals = {"cost": round(q.unit_cost * 1e6) + sum(round(r.unit_cost * 1e6)
+                                                          for r in used),
+                    "part_count": 1 + len(used),
+                    "ic_margin": -math.floor(icm[i] * 1e6 + 1e-6)}
+            key = tuple(vals[o] for o in job.search.objectives)
+            found.append((key, q, [(role.name, combos[i][k])
+                                   for k, role in enumerate(net.roles)]))
+    found.sort(key=lambda x: x[0])
+    from stockbias.assign import pair_of
+
+    amb = (env.ambient_min_c, env.ambient_max_c)
+    best, seen = [], set()
+    for key, q, assign in found:
+        parts = {}
+        for role, x in assign:
+            if x is None:
+                continue
+            pieces, arr = cands[x][0], cands[x][1]
+            parts[role] = (_resolved(role, pieces[0]) if arr == "single"
+                           else pair_of(role, pieces[0], pieces[1], arr, ambient=amb))
+        if analyze_stage(job, st, parts, q, samples=0).ok:
+            best.append(key)
+            seen.add(tuple(sorted((r, tuple(p.part_ids), p.arrangement)
+                                  for r, p in parts.items())))
+            if len(best) == top:
+                break
+    return best
+
+
+@pytest.mark.parametrize("case", PAIR_CASES, ids=[f"pairs-seed{c[0]}-{c[1]}" for c in PAIR_CASES])
+def test_optimum_with_pairs_matches_exhaustive(case):
+    seed, topology, n_lines, n_q, window, objectives, temps = case
+    inv = _pair_shelf(seed, n_lines, topology in NARROW, n_q)
+    job = _job(seed, topology, window, 5, objectives, temps)
+    job = replace(job, build=replace(job.build, allow_pairs=True))
+    expected = _exhaustive_pairs(job, inv, 3)
+    result = design(job, inv, top=3)
+    # source: the exhaustive enumeration above (exact integer keys)
+    assert _search_keys(job, result) == expected, (result.status, result.stats)
+    assert expected, "each pair case is built to be feasible"
+    assert result.status == "optimal"
+    assert any(p.arrangement != "single" and len({x.part_id for x in p.parts}) == 2
+               and p.parts[0].tolerance_pct != p.parts[1].tolerance_pct
+               for d in result.designs for p in d.check.parts.values())
