@@ -375,3 +375,25 @@ def test_check_ic_margin_in_json_and_text(tmp_path: Path, shelf: Path, window: s
     flat = " ".join(text.stdout.split())
     assert f"IC margin {100 * expected:.2f} % of the target" in flat
     assert "min(IC worst-case min − IC min, IC max − IC worst-case max) / IC target" in flat
+
+
+def test_substitute_shows_the_same_margin_in_percent_of_the_target() -> None:
+    data = ROOT / "tests" / "data"
+    job, shelf = data / "substitute_job.toml", data / "substitute_shelf.csv"
+    values = {"R1": "R-47K", "R2": "R-47K", "RC": "R-2K7", "RE": "R-4K7"}
+    res = analyze(parse_job(job.read_text()), values, "Q-A", read_inventory(shelf),
+                  samples=0)
+    b = res.worst.bounds["ic"]
+    # hand arithmetic: window 0.7–1.4 mA given as ic_min/ic_max, target √(0.7·1.4) mA
+    expected = min(b.min - 0.7e-3, 1.4e-3 - b.max) / math.sqrt(0.7e-3 * 1.4e-3)
+    assert res.ic_margin == pytest.approx(expected, rel=1e-12)
+    args = ["substitute", str(job), "-i", str(shelf), "-v",
+            ",".join(f"{k}={v}" for k, v in values.items()), "-t", "Q-A", "--samples", "0"]
+    js = runner.invoke(app, [*args, "--json"])
+    qa = next(c for c in json.loads(js.stdout)["candidates"] if c["part_id"] == "Q-A")
+    assert qa["ic_margin"] == pytest.approx(expected, rel=1e-12)
+    text = runner.invoke(app, args)
+    row = next(line for line in text.stdout.splitlines() if "Q-A (NPN" in line)
+    assert f"{100 * expected:.2f} %" in row
+    assert "IC margin = min(IC worst-case min − IC min, IC max − IC worst-case max)" in \
+        text.stdout
