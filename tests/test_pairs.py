@@ -170,3 +170,80 @@ def test_a_part_over_its_allowance_at_the_worst_split_fails_the_check() -> None:
     # the nominal split (240 Ω carries 560/800 of the power) would have passed this total
     total = float(res.worst.bounds["p_RE"].max)
     assert total * 560 / 800 <= 0.0315
+
+
+SUB_SHELF = """kind,part_id,value,tolerance_pct,power_w,tempco_ppm,qty,unit_cost,polarity,hfe_min,\
+hfe_max,vceo_max,ic_max,pd_max_w,vbe_min,vbe_max,theta_ja
+resistor,R-47K,47k,1,0.25,,50,0.01,,,,,,,,,
+resistor,R-22K,22k,1,0.25,,50,0.01,,,,,,,,,
+resistor,R-10K,10k,1,0.25,+100,50,0.01,,,,,,,,,
+resistor,R-8K2,8k2,10,0.25,-350,50,0.01,,,,,,,,,
+resistor,R-4K7,4k7,1,0.25,,50,0.01,,,,,,,,,
+resistor,R-3K9,3k9,1,0.25,,50,0.02,,,,,,,,,
+resistor,R-3K3,3k3,5,0.25,±200,50,0.02,,,,,,,,,
+resistor,R-2K7,2k7,1,0.25,,50,0.03,,,,,,,,,
+resistor,R-2K2,2k2,1,0.25,,50,0.01,,,,,,,,,
+resistor,R-1K,1k,1,0.25,,50,0.01,,,,,,,,,
+transistor,Q-A,,,,,50,0.05,NPN,100,200,40,0.2,0.5,0.62,0.68,250
+transistor,Q-B,,,,,50,0.05,NPN,150,600,40,0.2,0.5,0.62,0.68,250
+"""
+
+SUB_JOB = """
+[supply]
+volts = 12
+tolerance_pct = 2
+[target]
+ic_min = "0.7 mA"
+ic_max = "1.4 mA"
+vce_min = "3.5 V"
+[environment]
+ambient_min_c = 0
+ambient_max_c = 50
+[build]
+quantity = 5
+[search]
+topology = "divider"
+"""
+
+
+def test_substitute_with_a_kept_pair_equals_an_exhaustive_one_change_search(tmp_path) -> None:
+    from stockbias.search.substitute import substitute
+    from stockbias.stock_io import read_inventory
+
+    path = tmp_path / "pair_shelf.csv"
+    path.write_text(SUB_SHELF)
+    inv = read_inventory(path)
+    job = parse_job(SUB_JOB, "<substitute pair job>")
+    # RE is 10 k (1 %, +100 ppm/°C) ‖ 8.2 k (10 %, −350 ppm/°C): unequal values, tolerances
+    # and tempco signs
+    values = {"R1": "R-47K", "R2": "R-47K", "RC": "R-2K7", "RE": "R-10K|R-8K2"}
+    result = substitute(job, values, "Q-A", inv, samples=0)
+    amb = (0.0, 50.0)
+    base = {r: resolve_resistor(r, t, inv, 5.0, ambient=amb) for r, t in values.items()}
+    assert (base["RE"].arrangement, base["RE"].part_ids) == ("parallel", ["R-10K", "R-8K2"])
+    for cand in result.candidates:
+        q = cand.transistor
+        if cand.ruled_out is not None:
+            continue
+        drop_in = analyze_stage(job, job.stage, base, q, samples=0).ok
+        assert cand.drop_in == drop_in, q.part_id
+        if drop_in:
+            continue
+        # exhaustive: every single-role change to every other stock line, checked in full
+        passing = []
+        for role in values:
+            for r in inv.resistors:
+                if role != "RE" and r.part_id == values[role]:
+                    continue
+                parts = dict(base)
+                parts[role] = resolve_resistor(role, r.part_id, inv, 5.0, ambient=amb)
+                if analyze_stage(job, job.stage, parts, q, samples=0).ok:
+                    passing.append((r.unit_cost, role, r.part_id))
+        if passing:
+            assert len(cand.changes) == 1 and cand.check.ok, q.part_id
+            # source: the exhaustive one-change enumeration above
+            assert cand.added_cost == pytest.approx(min(p[0] for p in passing), abs=1e-12)
+            (role, part), = ((r, p.part_ids[0]) for r, p in cand.changes.items())
+            assert any(p[1:] == (role, part) for p in passing)
+        else:
+            assert len(cand.changes) != 1
