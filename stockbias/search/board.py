@@ -36,7 +36,8 @@ from ..topologies import get_network
 from .board_model import BoardModel, Choice, LineInfo, StageSetup
 from .board_options import StageOptions, stage_options
 from .candidates import Shelf, build_shelf, micro, stage_networks, usable_transistors
-from .prepass import vertex_check
+from .deadline import Deadline
+from .prepass import PLANS, vertex_check
 
 __all__ = [
     "BOARD_OBJECTIVES",
@@ -171,13 +172,16 @@ def board_objectives(job: Job) -> tuple[tuple[str, ...], list[str]]:
 def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe: Universe,
               objectives: tuple[str, ...], top: int, deadline: float,
               progress: Progress | None = None, stock: bool = True,
-              limit_transistors: bool = True
+              limit_transistors: bool = True, skipped: dict[str, int] | None = None
               ) -> tuple[str, list[list[Choice]], list[dict[str, int]], dict[str, float],
                          BoardModel, dict[tuple, CheckResult | None], dict[str, int]]:
     """Ranked board choices; every returned stage passes :func:`analyze_stage`.
 
     ``limit_transistors`` False: transistor lines are not held to their stock (they are not
-    being chosen, as in consolidation).
+    being chosen, as in consolidation).  ``skipped``: stage name → how many (network,
+    transistor) option sets the time limit left unbuilt.  When options are missing, the
+    status is at most ``feasible`` (``unknown`` without a board) and
+    ``stats["prepass_cut"]`` says what was left out.
     """
     tq: dict[str, int | None] = {q.part_id: q.qty if limit_transistors else None
                                  for q in inventory.transistors}
@@ -223,7 +227,33 @@ def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe
         if st != "optimal":
             break
     bm.clear_fixing()
+    cut = prepass_cut(setups, skipped)
+    stats["prepass_cut"] = cut
+    if cut is not None:
+        # options are missing: a board found is not proven best, none found proves nothing
+        status = {"optimal": "feasible", "infeasible": "unknown"}.get(status, status)
+        bound = {}
     return status, ranked, values_out, bound, bm, verified, stats
+
+
+def prepass_cut(setups: list[StageSetup], skipped: dict[str, int] | None = None
+                ) -> str | None:
+    """What the time limit left out of the stage options (None when nothing)."""
+    parts = []
+    for st in setups:
+        if skipped and skipped.get(st.name):
+            parts.append(f"stage '{st.name}': {skipped[st.name]} network and transistor "
+                         "pairs not reached")
+        for g in st.options:
+            if not g.complete:
+                role = PLANS[g.network].enumerated[0]
+                parts.append(f"stage '{st.name}' {g.network} with {g.transistor.part_id}: "
+                             f"{role} candidates 1–{g.rows_done:,} of {g.rows_total:,} "
+                             "scanned")
+    if not parts:
+        return None
+    return ("the time limit cut the pre-pass, so the status is not a proof: "
+            + "; ".join(parts))
 
 
 def _design(g: StageOptions, ch: Choice) -> dict[str, int]:
@@ -397,13 +427,16 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
     t0 = time.monotonic()
     top = job.search.top if top is None else int(top)
     limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
-    deadline = t0 + limit
+    clock = Deadline(limit)                      # one deadline for the whole command
+    deadline = clock.monotonic_at()
+    prepass = clock.share(0.7)                   # options leave time for the board model
     objectives, notes = board_objectives(job)
     shelf = build_shelf(job, inventory, pairs=False)
     universe = universe_of(shelf)
     setups = []
     excluded: dict[str, list[dict[str, str]]] = {}
     n_opts = {}
+    skipped: dict[str, int] = {}
     for stage in job.stages:
         if stage.transistor is not None and inventory.find_transistor(stage.transistor) is None:
             raise stage_key_error(job, stage.name, "transistor", f"transistor "
@@ -418,13 +451,17 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
             net = get_network(net_name)
             cands = {r.name: shelf.candidates(r.optional, False) for r in net.roles}
             for q in qs:
-                groups.append(stage_options(sj, stage, si, net_name, q, cands))
+                if prepass.expired():
+                    skipped[stage.name] = skipped.get(stage.name, 0) + 1
+                    continue
+                groups.append(stage_options(sj, stage, si, net_name, q, cands, prepass))
         n_opts[stage.name] = sum(g.size for g in groups)
         setups.append(StageSetup(stage.name, groups))
         if progress is not None:
             progress("pre-pass", (si + 1) / len(job.stages))
     status, ranked, values, bound, bm, verified, rstats = run_board(
-        job, inventory, setups, universe, objectives, top, deadline, progress)
+        job, inventory, setups, universe, objectives, top, deadline, progress,
+        skipped=skipped)
     designs = build_board(job, inventory, setups, universe, status, ranked, values, bm,
                           verified)
     stats: dict[str, object] = {"options_per_stage": n_opts, **rstats,
@@ -434,6 +471,8 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
     result = BoardResult(status=status, solve_seconds=time.monotonic() - t0,
                          objectives=objectives, designs=designs, bound=bound, stats=stats,
                          assumptions=notes + _board_notes(job))
+    if rstats.get("prepass_cut"):
+        result.assumptions.append(str(rstats["prepass_cut"]))
     if not designs:
         result.explanation = explain_board(job, inventory, setups, universe, objectives,
                                            status, deadline)
@@ -467,7 +506,7 @@ def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
         from .design import design
 
         one = design(stage_job(job, stage), inventory, top=1,
-                     time_limit_s=max(5.0, deadline - time.monotonic()))
+                     time_limit_s=max(0.5, deadline - time.monotonic()))
         ex: Any = one.explanation
         text = ex.to_dict() if ex is not None else {}
         return {"reason": f"stage '{name}' cannot be met from this stock on its own",
@@ -476,8 +515,11 @@ def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
     # every stage has options: either the full check rules them out, or stock is shared
     status2, ranked, _v, _b, bm, _ver, _st = run_board(
         job, inventory, setups, universe, objectives, 1,
-        max(deadline, time.monotonic() + 10.0), stock=False,
+        max(deadline, time.monotonic() + 0.5), stock=False,
         limit_transistors=limit_transistors)
+    if not ranked and status2 == "unknown":
+        return {"reason": "the time limit ran out before the cause was found",
+                "suggestion": "raise [search] time_limit_s or --time-limit"}
     if not ranked:
         return {"reason": "no stage combination passes the full check at every corner",
                 "suggestion": "widen the IC window or lower the headroom of the tightest "

@@ -34,8 +34,10 @@ from ..job import Job, Stage
 from ..parts import Transistor
 from ..topologies import get_network
 from .candidates import RoleCandidates
+from .deadline import Deadline
 from .prepass import (
     PLANS,
+    ROW_BUDGET,
     corners,
     cross_product_check,
     free_role_bounds,
@@ -45,6 +47,7 @@ from .prepass import (
     materialise,
     rc_allowed_power,
     row_cuts,
+    row_slices,
     vertex_check,
 )
 
@@ -73,6 +76,11 @@ class StageOptions:
     core: dict[str, np.ndarray]
     lo: np.ndarray
     hi: np.ndarray
+    #: False when the time limit stopped the row scan: ``rows_done`` of ``rows_total``
+    #: candidates of the first enumerated role were scanned, the options stop there
+    complete: bool = True
+    rows_done: int = 0
+    rows_total: int = 0
 
     @property
     def size(self) -> int:
@@ -127,20 +135,35 @@ def _runs(core_row: np.ndarray, fj: np.ndarray) -> tuple[np.ndarray, np.ndarray,
 
 
 def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Transistor,
-                  cands: dict[str, RoleCandidates]) -> StageOptions:
+                  cands: dict[str, RoleCandidates], deadline: Deadline | None = None,
+                  row_budget: int = ROW_BUDGET) -> StageOptions:
     """The options of one stage for one network and transistor.
 
     ``job`` is the one-stage job of ``stage`` (its supply, environment, build and search).
+    The rows of the enumerated roles are built ``row_budget`` at a time (ranges of the
+    first enumerated role, in order, so the options are the same for any budget);
+    ``deadline`` (optional) is checked between ranges, and a scan it stops returns the
+    options of the ranges done with ``complete`` False.
     """
     net = get_network(network)
     if job.search.model == "exponential":
         return _exponential(job, stage, stage_index, network, q, cands)
     plan = PLANS[network]
-    rows = row_cuts(job, stage, network, q, cands)
-    cores = materialise(network, q, cands, rows)
-    idx = cores.idx
-    ok = _core_power_ok(job, stage, network, q, cands, idx)
-    idx = {r: v[ok] for r, v in idx.items()}
+    spans = row_slices(network, cands, row_budget)
+    pieces: list[dict[str, np.ndarray]] = []
+    done = 0
+    for span in spans:
+        if deadline is not None and deadline.expired():
+            break
+        rows = row_cuts(job, stage, network, q, cands, first=span)
+        part = materialise(network, q, cands, rows.take(np.flatnonzero(rows.i1 > rows.i0)))
+        ok = _core_power_ok(job, stage, network, q, cands, part.idx)
+        pieces.append({r: v[ok] for r, v in part.idx.items()})
+        done = span[1]
+    n_first = len(cands[plan.enumerated[0]])
+    scan = {"complete": done >= n_first, "rows_done": done, "rows_total": n_first}
+    idx = {r: np.concatenate([p[r] for p in pieces]) if pieces else np.zeros(0, dtype=np.int64)
+           for r in (*plan.enumerated, plan.interval)}
     core_roles = (*plan.enumerated, plan.interval)
     if plan.free is None:
         # every role is in the core: the options are whole designs, so screen them at every
@@ -151,7 +174,8 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
             idx = {r: v[chk["ok"]] for r, v in idx.items()}
             n = idx[plan.interval].size
         empty = np.full(n, -1, dtype=np.int64)
-        return StageOptions(stage_index, network, q, cands, core_roles, None, idx, empty, empty)
+        return StageOptions(stage_index, network, q, cands, core_roles, None, idx, empty, empty,
+                            **scan)
     fc = cands[plan.free]
     h, low_need, ic_top = free_role_bounds(job, stage, network, q, cands, idx)
     j0, j1 = free_role_range(fc, h, low_need)
@@ -166,7 +190,7 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
     crow, lo, hi = _runs(row, fj)
     core = {r: v[crow] for r, v in idx.items()}
     return StageOptions(stage_index, network, q, cands, core_roles, plan.free, core,
-                        lo.astype(np.int64), hi.astype(np.int64))
+                        lo.astype(np.int64), hi.astype(np.int64), **scan)
 
 
 def _exponential(job: Job, stage: Stage, stage_index: int, network: str, q: Transistor,

@@ -44,6 +44,7 @@ from .board import (
 from .board_model import StageSetup
 from .board_options import stage_options
 from .candidates import SINGLE, RoleCandidates, _concat, _sorted, _table, build_shelf
+from .deadline import Deadline
 
 __all__ = ["CONSOLIDATE_OBJECTIVES", "ConsolidateResult", "consolidate", "parse_keep"]
 
@@ -194,7 +195,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
         raise InputError(f"consolidation ranks by {', '.join(CONSOLIDATE_OBJECTIVES)}, "
                          "distinct_values or part_count", column="--objectives", text=bad[0])
     limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
-    deadline = t0 + limit
+    clock = Deadline(limit)                      # one deadline for the whole command
+    deadline = clock.monotonic_at()
     keep = set(keep)
     current = _current(job, inventory)
     shelf = build_shelf(job, inventory, pairs=False)
@@ -258,7 +260,7 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                     idx = 0
             cands[role.name] = table
             cur[role.name] = idx
-        opts = stage_options(sj, st, si, st.topology, q, cands)
+        opts = stage_options(sj, st, si, st.topology, q, cands, clock.share(0.7))
         setups.append(StageSetup(st.name, [opts], st.topology, cur))
         if progress is not None:
             progress("pre-pass", (si + 1) / len(job.stages))
@@ -280,6 +282,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                      "(uses × build quantity within each line's quantity)"],
         stats={"options_per_stage": {s.name: sum(g.size for g in s.options) for s in setups},
                **rstats, "resistor_lines": len(shelf.lines), "solver_steps": bm.step_seconds})
+    if rstats.get("prepass_cut"):
+        result.assumptions.append(str(rstats["prepass_cut"]))
     failing = [n for n, ok in before_ok.items() if not ok]
     if failing:
         result.assumptions.append("the current board fails its targets in "

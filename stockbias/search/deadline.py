@@ -70,6 +70,17 @@ class Deadline:
         """Seconds since the deadline was made, s."""
         return self.clock() - self.start
 
+    def share(self, fraction: float) -> Deadline:
+        """A deadline at ``fraction`` of this one's limit, on the same clock (the phase
+        that must leave time for later ones); a deadline counted in checks is shared as
+        itself."""
+        if self._checks_left is not None or not math.isfinite(self.limit):
+            return self
+        d = Deadline(0.0, self.clock)
+        d.start, d.limit = self.start, self.limit * fraction
+        d.at = self.start + d.limit
+        return d
+
     def past(self, fraction: float) -> bool:
         """True once more than ``fraction`` of the limit has been used (never for a
         deadline counted in checks)."""

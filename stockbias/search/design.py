@@ -739,7 +739,8 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     if deadline is None:
         limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
         deadline = Deadline(limit)
-    s = _Search(job, inventory, top, deadline, progress, row_budget)
+    # the search leaves a tenth of the limit to rank, re-verify and explain what it found
+    s = _Search(job, inventory, top, deadline.share(0.9), progress, row_budget)
     done, bound = s.run()
     pool_keys = np.stack(s.pool.keys) if s.pool.keys else np.zeros((0, len(s.objectives)))
     kappa = s.kappa()
@@ -785,10 +786,10 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     def accept(i: int) -> bool:
         return s.verify(int(keep[i])) is not None
 
-    # CP-SAT gets what is left (a tenth of a second at least, to rank what was found)
+    # CP-SAT gets what is left of the limit (half a second at least, to rank what was found)
     ranked, status, _rej = solve_ranked(mdesigns, s.objectives, line_qty, job.build.quantity,
                                         top, job.search.seed,
-                                        max(deadline.monotonic_at(), time.monotonic() + 0.1),
+                                        max(deadline.monotonic_at(), time.monotonic() + 0.5),
                                         accept)
     if done != "complete" and status == "optimal":
         status = "feasible"

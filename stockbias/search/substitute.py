@@ -398,9 +398,9 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
     base = {role: resolve_resistor(role, text, inventory, tol, ambient=ambient)
             for role, text in values.items()}
     limit = job.search.time_limit_s if time_limit_s is None else time_limit_s
+    deadline = t0 + limit       # one limit for the whole command, shared by every transistor
     out: list[SubstituteCandidate] = []
     for q in inventory.transistors:
-        deadline = time.monotonic() + limit   # each transistor gets the whole limit
         reason = _ruled_out(job, q, cur.polarity)
         if reason is not None:
             out.append(SubstituteCandidate(q, False, reason))
