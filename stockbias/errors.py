@@ -22,7 +22,17 @@ __all__ = [
     "StockFileError",
     "StockbiasError",
     "UnmetError",
+    "printable",
 ]
+
+
+def printable(text: str) -> str:
+    """``text`` on one line: line breaks, tabs and other unprintable characters escaped
+    (``\\n``, ``\\t``, ``\\x1b``, ``\\u2028``) so that a message stays one line and
+    cannot move the terminal's cursor."""
+    if text.isprintable():
+        return text
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in text)
 
 
 class StockbiasError(Exception):
@@ -90,7 +100,7 @@ class StockbiasError(Exception):
             place = f"line {self.line}: "
         col = f"{self.field_label} '{self.column}': " if self.column is not None else ""
         txt = f" (text '{self.text}')" if self.text is not None else ""
-        return f"{place}{col}{self.message}{txt}"
+        return printable(f"{place}{col}{self.message}{txt}")
 
     def __str__(self) -> str:
         return self.one_line()
@@ -138,7 +148,7 @@ class Problem:
     def one_line(self, file: str) -> str:
         col = f" column '{self.column}':" if self.column else ""
         txt = f" (text '{self.text}')" if self.text != "" else ""
-        return f"{file}:{self.line}:{col} {self.message}{txt}"
+        return printable(f"{file}:{self.line}:{col} {self.message}{txt}")
 
 
 class StockFileError(InputError):

@@ -33,7 +33,7 @@ except ImportError:  # pragma: no cover - older typer depends on click
     )
 
 from .. import __version__
-from ..errors import StockbiasError, StockFileError
+from ..errors import StockbiasError, StockFileError, printable
 from .failsafe import (
     EXIT_BAD_INPUT,
     EXIT_INTERNAL,
@@ -45,7 +45,7 @@ from .failsafe import (
 
 
 def _flatten(message: str) -> str:
-    return " ".join(part.strip() for part in message.splitlines() if part.strip())
+    return printable(" ".join(part.strip() for part in message.splitlines() if part.strip()))
 
 
 def _interrupted() -> None:
@@ -95,7 +95,8 @@ class _OneLineErrors(TyperGroup):
             if exc.filename is None:
                 _internal_error(exc, argv)
             # a file the user named cannot be read or written: their input, not our bug
-            typer.echo(f"{exc.filename}: {exc.strerror or _flatten(str(exc))}", err=True)
+            typer.echo(printable(f"{exc.filename}: {exc.strerror or _flatten(str(exc))}"),
+                       err=True)
             sys.exit(EXIT_BAD_INPUT)
         except Exception as exc:
             _internal_error(exc, argv)
