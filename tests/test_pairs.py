@@ -247,3 +247,73 @@ def test_substitute_with_a_kept_pair_equals_an_exhaustive_one_change_search(tmp_
             assert any(p[1:] == (role, part) for p in passing)
         else:
             assert len(cand.changes) != 1
+
+
+BOARD = """
+[supply]
+volts = 12
+tolerance_pct = 2
+[environment]
+ambient_min_c = 0
+ambient_max_c = 50
+[build]
+quantity = 5
+[search]
+time_limit_s = 60
+
+[[stage]]
+name = "input"
+topology = "divider"
+transistor = "Q-A"
+[stage.target]
+ic_min = "0.7 mA"
+ic_max = "1.4 mA"
+vce_min = "3 V"
+[stage.values]
+R1 = "R-47K"
+R2 = "R-47K"
+RC = "R-2K2"
+RE = "{re}"
+
+[[stage]]
+name = "driver"
+topology = "divider"
+transistor = "Q-A"
+[stage.target]
+ic_min = "0.7 mA"
+ic_max = "1.4 mA"
+vce_min = "3 V"
+[stage.values]
+R1 = "R-47K"
+R2 = "R-47K"
+RC = "R-2K2"
+RE = "R-4K7"
+"""
+
+
+@pytest.mark.parametrize("re", ["R-10K|R-8K2", "R-10K|6k8"])
+def test_consolidate_checks_a_fixed_pair_with_its_exact_band_and_replaces_it(tmp_path,
+                                                                            re) -> None:
+    # Boards search single lines only; a pair on the current board (here of unequal values,
+    # tolerances and tempco signs, or with one half off the shelf) is checked as it is, with
+    # its exact band, and replaced by one stock line, counted as a change.
+    from stockbias.search.board import stage_job
+    from stockbias.search.consolidate import consolidate
+    from stockbias.stock_io import read_inventory
+
+    path = tmp_path / "pair_shelf.csv"
+    path.write_text(SUB_SHELF)
+    inv = read_inventory(path)
+    job = parse_job(BOARD.format(re=re), "<pair board>")
+    result = consolidate(job, inv)
+    st = job.stages[0]
+    amb = (0.0, 50.0)
+    parts = {r: resolve_resistor(r, t, inv, 5.0, ambient=amb) for r, t in st.values.items()}
+    assert parts["RE"].arrangement == "parallel"
+    ref = analyze_stage(stage_job(job, st), st, parts, inv.find_transistor("Q-A"), samples=0)
+    assert result.before_ok["input"] == ref.ok
+    assert any("RE@input is a pair now" in n for n in result.assumptions)
+    assert result.after is not None
+    after = next(s for s in result.after.stages if s.name == "input")
+    assert after.check.parts["RE"].arrangement == "single" and "RE" in after.changed
+    assert after.check.ok
