@@ -84,7 +84,28 @@ def test_s_icbo_limits_and_hand_value(beta: float, r_th: float, r_e: float,
 
 
 def test_s_vbe_and_s_beta_hand_values() -> None:
-    # hand calculation: −100/(3.55 k + 101·1.5 k) = −0.644953 mA/V
-    assert s_vbe(100.0, 3.55e3, 1.5e3) == pytest.approx(-100.0 / 155050.0, rel=1e-12)
+    # hand calculation: −100/(3.55 k + 101·1.5 k) = −100/155 050 Ω = −0.6449532 mA/V
+    assert s_vbe(100.0, 3.55e3, 1.5e3) == pytest.approx(-6.449532e-4, rel=1e-6)
     # hand calculation: 1 mA·(5.05 k)/(100·155.05 k) = 0.325701 µA per unit β
     assert s_beta(1e-3, 100.0, 3.55e3, 1.5e3) == pytest.approx(3.25701e-7, rel=1e-5)
+
+
+def test_s_vbe_is_the_slope_of_the_solved_operating_point() -> None:
+    # The operating-point solver (stockbias.analysis.stage, nodal solution of the divider)
+    # differentiated numerically in VBE equals the closed form: R1‖R2 = 3.55 kΩ
+    # (R2 = 5 kΩ, R1 = 1/(1/3.55 k − 1/5 k)), RE = 1.5 kΩ, β = 100 at 25 °C, no leakage.
+    from stockbias.analysis.stage import DeviceSpec, ResistorSpec, StageSpec, evaluate
+
+    r1 = 1.0 / (1.0 / 3.55e3 - 1.0 / 5e3)
+    spec = StageSpec("divider", {"R1": ResistorSpec(r1, 0.0), "R2": ResistorSpec(5e3, 0.0),
+                                 "RC": ResistorSpec(2e3, 0.0), "RE": ResistorSpec(1.5e3, 0.0)},
+                     DeviceSpec("NPN", 100.0, 100.0, 0.65, 0.65), vcc=10.0)
+    p0 = spec.nominal_point()
+    h = 1e-4
+
+    def ic(vbe: float) -> float:
+        return float(evaluate(spec, spec.point_from({"vbe": np.asarray(vbe)}, p0))
+                     .quantities["ic"])
+
+    slope = (ic(0.65 + h) - ic(0.65 - h)) / (2 * h)
+    assert slope == pytest.approx(-6.449532e-4, rel=1e-6)

@@ -29,7 +29,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .stage import Evaluation, StagePoint, StageSpec, evaluate, self_heated_temperature
+from .stage import (
+    SMALL_SIGNAL_QUANTITIES,
+    Evaluation,
+    StagePoint,
+    StageSpec,
+    evaluate,
+    self_heated_temperature,
+)
 
 __all__ = [
     "Bound",
@@ -41,6 +48,10 @@ __all__ = [
     "vertex_points",
     "worst_case",
 ]
+
+#: Currents and node voltages: monotone inside a region, refined where a region
+#: boundary runs through the box.
+BOUNDARY_REFINED = ("ic", "ib", "ie", "vb", "vc", "ve", "vce")
 
 REPORTED = ("ic", "ib", "ie", "vb", "vc", "ve", "vce", "supply_power", "pd", "tj", "gain", "rin")
 
@@ -189,67 +200,250 @@ def point_at_unit(spec: StageSpec, axes: tuple[str, ...], u: np.ndarray) -> Stag
     return spec.point_from(values)
 
 
-def _refine_max(spec: StageSpec, axes: tuple[str, ...], names: list[str],
-                starts: dict[str, np.ndarray], rounds: int = 7,
-                grid: int = 17) -> dict[str, tuple[float, np.ndarray]]:
-    """Largest value of each quantity inside the unit box (vectorised pattern search).
+def _refine_extremes(spec: StageSpec, axes: tuple[str, ...],
+                     starts: dict[tuple[str, int], np.ndarray], rounds: int = 40,
+                     grid: int = 9, tol: float = 1e-6) -> list[np.ndarray]:
+    """Points inside the unit box that push each quantity to its extreme (pattern search).
 
-    For every quantity and every start, each round tries, for each axis in
-    turn, a grid of values around the current point with the other axes held,
-    all in one batched evaluation; the grid shrinks by half each round.  The
-    quantities are smooth in the parameters, so this converges to the interior
-    stationary point (or a face or vertex) that the start leads to.
+    ``starts`` maps (quantity, sign) to start points, shape ``(s, k)``; sign +1 seeks
+    the maximum, −1 the minimum.  Each round, for every target and start at once (one
+    batched evaluation), tries a grid of ``grid`` values along each axis around the
+    current point within its step width, and the pattern moves x + m·(x − x_prev)
+    (m = 1, 2, 4) along the last successful step; the best trial is taken if it
+    improves, else the width halves.  It stops when every width is below ``tol`` (unit
+    box) or after ``rounds``.  Smooth quantities converge to the interior stationary
+    point (or a face or vertex) the start leads to, ridges included; across a region
+    boundary the search follows the kink.  Returns the final point of every start.
     """
     k = len(axes)
-    cur = {q: starts[q].copy() for q in names}          # (n_starts, k)
+    keys = list(starts)
+    counts = [starts[key].shape[0] for key in keys]
+    signs = np.concatenate([np.full(c, key[1], dtype=float) for key, c in zip(keys, counts,
+                                                                             strict=True)])
+    owner = np.concatenate([np.full(c, i) for i, c in enumerate(counts)])
+    x = np.concatenate([starts[key] for key in keys]).astype(float)   # (S, k)
+    n_s = x.shape[0]
+    prev = x.copy()
+    width = np.full(n_s, 0.5)
     offsets = np.linspace(-1.0, 1.0, grid)
-    width = 0.5
+
+    small = any(key[0] in SMALL_SIGNAL_QUANTITIES for key in keys)
+
+    def values(u: np.ndarray, rows: np.ndarray) -> np.ndarray:
+        ev = evaluate(spec, point_at_unit(spec, axes, u), small_signal=small)
+        out = np.full(u.shape[0], -np.inf)
+        for i, key in enumerate(keys):
+            sel = owner[rows] == i
+            if np.any(sel):
+                q = np.asarray(ev.quantities[key[0]], dtype=float).reshape(-1)[sel]
+                out[sel] = np.nan_to_num(key[1] * q, nan=-np.inf)
+        return out
+
+    best = values(x, np.arange(n_s))
+    del signs
     for _ in range(rounds):
-        cands = []
-        for q in names:
-            u = cur[q]                                  # (s, k)
-            trial = np.repeat(u[:, None, None, :], k, axis=1).repeat(grid, axis=2)
-            for j in range(k):
-                trial[:, j, :, j] = np.clip(u[:, j, None] + width * offsets, 0.0, 1.0)
-            cands.append(trial.reshape(-1, k))
-        flat = np.concatenate(cands, axis=0)
-        ev = evaluate(spec, point_at_unit(spec, axes, flat))
-        pos = 0
-        for q in names:
-            s_count = cur[q].shape[0]
-            n = s_count * k * grid
-            vals = np.asarray(ev.quantities[q], dtype=float).reshape(-1)[pos:pos + n]
-            vals = np.nan_to_num(vals, nan=-np.inf).reshape(s_count, k * grid)
-            pts = flat[pos:pos + n].reshape(s_count, k * grid, k)
-            best = np.argmax(vals, axis=1)
-            cur[q] = pts[np.arange(s_count), best]
-            pos += n
-        width *= 0.5
-    final = evaluate(spec, point_at_unit(spec, axes, np.concatenate([cur[q] for q in names])))
-    out: dict[str, tuple[float, np.ndarray]] = {}
-    pos = 0
-    for q in names:
-        s_count = cur[q].shape[0]
-        vals = np.nan_to_num(np.asarray(final.quantities[q], dtype=float).reshape(-1)
-                             [pos:pos + s_count], nan=-np.inf)
-        i = int(np.argmax(vals))
-        out[q] = (float(vals[i]), cur[q][i])
-        pos += s_count
+        live = width > tol
+        if not np.any(live):
+            break
+        rows = np.flatnonzero(live)
+        m = rows.size
+        trial = np.repeat(x[rows][:, None, None, :], k, axis=1).repeat(grid, axis=2)
+        for j in range(k):
+            trial[:, j, :, j] = x[rows, j, None] + width[rows, None] * offsets
+        trial = trial.reshape(m, k * grid, k)
+        step = x[rows] - prev[rows]
+        pattern = x[rows][:, None, :] + np.array([1.0, 2.0, 4.0])[None, :, None] * step[:, None]
+        trial = np.clip(np.concatenate([trial, pattern], axis=1), 0.0, 1.0)
+        n_t = trial.shape[1]
+        vals = values(trial.reshape(-1, k), np.repeat(rows, n_t)).reshape(m, n_t)
+        pick = np.argmax(vals, axis=1)
+        gain = vals[np.arange(m), pick] > best[rows]
+        moved = rows[gain]
+        prev[moved] = x[moved]
+        x[moved] = trial[np.flatnonzero(gain), pick[gain]]
+        best[moved] = vals[np.flatnonzero(gain), pick[gain]]
+        stuck = rows[~gain]
+        width[stuck] *= 0.5
+        prev[stuck] = x[stuck]
+    out, pos = [], 0
+    for c in counts:
+        out.append(x[pos:pos + c])
+        pos += c
     return out
+
+
+def _boundary_points(spec: StageSpec, axes: tuple[str, ...], bits: np.ndarray,
+                     region: np.ndarray, iterations: int = 34) -> np.ndarray:
+    """Points on both sides of every region boundary that crosses an edge of the box.
+
+    Along an edge whose two vertices lie in different regions (active against
+    saturated or cut off), the crossing is bracketed by bisection on the region
+    (``iterations`` halvings, 2^-34 of the axis range); both ends of the final
+    bracket are returned, shape ``(2·m, k)`` in unit coordinates.  Currents and
+    voltages are monotone inside each region but not across its boundary, so an
+    extreme can sit where the boundary meets an edge.
+    """
+    n, k = bits.shape
+    idx = np.arange(n)
+    starts, axis = [], []
+    for j in range(k):
+        a = idx[bits[:, j] == 0]
+        b = a | (1 << j)
+        cross = region[a] != region[b]
+        starts.append(a[cross])
+        axis.append(np.full(int(cross.sum()), j))
+    first = np.concatenate(starts)
+    if first.size == 0:
+        return np.empty((0, k))
+    j_of = np.concatenate(axis)
+    rows = np.arange(first.size)
+    u0 = bits[first].astype(float)
+    region0 = region[first]
+    lo, hi = np.zeros(first.size), np.ones(first.size)
+    for _ in range(iterations):
+        mid = 0.5 * (lo + hi)
+        u = u0.copy()
+        u[rows, j_of] = mid
+        r = np.asarray(evaluate(spec, point_at_unit(spec, axes, u), small_signal=False)
+                       .op.region).reshape(-1)
+        same = r == region0
+        lo = np.where(same, mid, lo)
+        hi = np.where(same, hi, mid)
+    u_lo, u_hi = u0.copy(), u0.copy()
+    u_lo[rows, j_of] = lo
+    u_hi[rows, j_of] = hi
+    return np.vstack([u_lo, u_hi])
+
+
+_EDGE_POINTS = 7
+
+
+def _edge_grid(bits: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Interior points along every edge of the unit box, 7 per edge.
+
+    Returns the points, shape ``(edges·7, k)`` (edge by edge), and the axis each edge runs
+    along, shape ``(edges,)``.
+    """
+    n, k = bits.shape
+    idx = np.arange(n)
+    t = np.arange(1, _EDGE_POINTS + 1) / (_EDGE_POINTS + 1)
+    out, axis = [], []
+    for j in range(k):
+        base = bits[idx[bits[:, j] == 0]]
+        u = np.repeat(base[:, None, :], _EDGE_POINTS, axis=1)
+        u[:, :, j] = t
+        out.append(u.reshape(-1, k))
+        axis.append(np.full(base.shape[0], j))
+    if not out:
+        return np.empty((0, k)), np.empty(0, dtype=int)
+    return np.concatenate(out), np.concatenate(axis)
+
+
+def _edge_maxima(spec: StageSpec, axes: tuple[str, ...], edge_u: np.ndarray,
+                 edge_axis: np.ndarray, edge_vals: dict[tuple[str, int], np.ndarray],
+                 best_edges: int = 12, iterations: int = 40) -> np.ndarray:
+    """The extreme of each target along its most promising edges (golden-section search).
+
+    For each target (quantity, sign), the ``best_edges`` edges whose grid points reach
+    furthest are searched between the grid neighbours of their best point; the points
+    found are returned, shape ``(m, k)``.  An interior extreme with every other
+    parameter at an end of its range lies on such an edge.
+    """
+    k = len(axes)
+    n_edges = edge_axis.size
+    if n_edges == 0:
+        return np.empty((0, k))
+    grid = np.arange(1, _EDGE_POINTS + 1) / (_EDGE_POINTS + 1)
+    base_u, axis_of, lo, hi, owner = [], [], [], [], []
+    keys = list(edge_vals)
+    for i, key in enumerate(keys):
+        vals = edge_vals[key].reshape(n_edges, _EDGE_POINTS)
+        peak = vals.max(axis=1)
+        top = np.argsort(-peak)[:best_edges]
+        top = top[np.isfinite(peak[top])]
+        at = np.argmax(vals[top], axis=1)
+        base_u.append(edge_u.reshape(n_edges, _EDGE_POINTS, k)[top, 0])
+        axis_of.append(edge_axis[top])
+        lo.append(np.maximum(grid[at] - 1.0 / (_EDGE_POINTS + 1), 0.0))
+        hi.append(np.minimum(grid[at] + 1.0 / (_EDGE_POINTS + 1), 1.0))
+        owner.append(np.full(top.size, i))
+    u0 = np.concatenate(base_u)
+    if u0.shape[0] == 0:
+        return np.empty((0, k))
+    j_of, a, b = np.concatenate(axis_of), np.concatenate(lo), np.concatenate(hi)
+    who = np.concatenate(owner)
+    rows = np.arange(u0.shape[0])
+    signs = np.array([key[1] for key in keys], dtype=float)[who]
+
+    small = any(key[0] in SMALL_SIGNAL_QUANTITIES for key in keys)
+
+    def f(t: np.ndarray) -> np.ndarray:
+        u = u0.copy()
+        u[rows, j_of] = t
+        ev = evaluate(spec, point_at_unit(spec, axes, u), small_signal=small)
+        out = np.full(t.shape, -np.inf)
+        for i, key in enumerate(keys):
+            sel = who == i
+            q = np.asarray(ev.quantities[key[0]], dtype=float).reshape(-1)[sel]
+            out[sel] = np.nan_to_num(signs[sel] * q, nan=-np.inf)
+        return out
+
+    ratio = (np.sqrt(5.0) - 1.0) / 2.0
+    c, d = b - ratio * (b - a), a + ratio * (b - a)
+    fc, fd = f(c), f(d)
+    for _ in range(iterations):
+        left = fc >= fd      # the maximum lies in [a, d]
+        b = np.where(left, d, b)
+        a = np.where(left, a, c)
+        c_new = np.where(left, b - ratio * (b - a), d)
+        d_new = np.where(left, c, a + ratio * (b - a))
+        f_new = f(np.where(left, c_new, d_new))
+        fd = np.where(left, fc, f_new)
+        fc = np.where(left, f_new, fd)
+        c, d = c_new, d_new
+    u = u0.copy()
+    u[rows, j_of] = 0.5 * (a + b)
+    return u
+
+
+def _self_heated_tj(spec: StageSpec, axes: tuple[str, ...], u: np.ndarray) -> float:
+    """Self-heated junction temperature at one point of the box (°C), TJ = TA + θJA·PD(TJ)."""
+    from .stage import solve_point
+    from .thermal import self_heated_point
+
+    point = point_at_unit(spec, axes, u) if axes else spec.nominal_point()
+
+    def pd_of_tj(tj: np.ndarray) -> np.ndarray:
+        op, _ = solve_point(spec, point, np.asarray(tj))
+        return np.asarray(op.pd, dtype=float)
+
+    sh = self_heated_point(pd_of_tj, np.asarray(point.ambient_c, dtype=float),
+                           np.asarray(spec.device.theta_ja_effective, dtype=float))
+    return float(np.asarray(sh.tj_c).reshape(-1)[0])
 
 
 def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = True,
                quantities: Iterable[str] | None = None) -> WorstCase:
     """Extreme value analysis of one stage (scalar spec).
 
+    The bounds are taken over: every vertex; where θJA is known, every vertex again
+    with the device at its self-heated junction temperature; with ``refine``, the
+    points where a region boundary (the onset of saturation or cut-off) crosses an
+    edge of the box, and the interior maxima of the products (powers, TJ) found by
+    a pattern search, each also self-heated where θJA is known.  The largest
+    junction temperature is always the self-heated one (TJ = TA + θJA·PD(TJ), θJA
+    from the row or derived from the PD rating), solved at the hottest candidates:
+    the same figure the thermal summary gives for that corner.
+
     Parameters
     ----------
     spec : StageSpec
         A single stage (no candidate arrays).
     refine : bool
-        Refine the maxima of products inside the box (see module notes).
+        Also search region boundaries on the edges and the interior maxima of
+        products (see above).
     self_heating : bool
-        Where θJA is known, also evaluate every vertex with the device at its
+        Where θJA is known, also evaluate every point with the device at its
         self-heated junction temperature (the bounds cover both).
     quantities : iterable of str, optional
         Which to report (default: currents, node voltages, VCE, powers, TJ, gain, rin).
@@ -261,52 +455,117 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
     axes = spec.axes()
     point, bits = vertex_points(spec, axes)
     ev = evaluate(spec, point)
-    heated = None
-    if self_heating and not np.all(np.isnan(np.asarray(spec.device.theta_ja, dtype=float))):
-        # DESIGN §2: where θJA is known, the device is also evaluated at its self-heated
-        # junction temperature; every bound covers both.
-        heated = evaluate(spec, point, device_temp_c=self_heated_temperature(spec, point))
+    heat = self_heating and not np.all(np.isnan(np.asarray(spec.device.theta_ja, dtype=float)))
     names = list(quantities) if quantities is not None else \
         [*REPORTED, *(f"p_{r}" for r in spec.resistors)]
-    refined = set(refined_quantities(spec)) if refine else set()
-    bounds: dict[str, Bound] = {}
-    table = {n: np.asarray(ev.quantities[n], dtype=float).reshape(-1) for n in names
-             if n in ev.quantities and not np.all(np.isnan(ev.quantities[n]))}
-    n_vertex = len(bits)
-    if heated is not None:   # rows n_vertex.. are the same vertices, self-heated
-        table = {n: np.concatenate([v, np.asarray(heated.quantities[n], dtype=float).reshape(-1)])
-                 for n, v in table.items()}
-        tj_heated = np.asarray(heated.temp_c, dtype=float).reshape(-1)
-    to_refine = [n for n in table if n in refined] if axes else []
-    starts = {}
-    for n in to_refine:
-        order = np.argsort(-np.nan_to_num(table[n], nan=-np.inf))[:4]
-        starts[n] = np.vstack([bits[order % len(bits)], np.full((1, len(axes)), 0.5)])
-    refined_max = _refine_max(spec, axes, to_refine, starts) if to_refine else {}
-    def corner_of(i: int, u: np.ndarray) -> dict[str, dict[str, object]]:
-        tj = float(tj_heated[i - n_vertex]) if i >= n_vertex else None
-        return corner_setting(spec, dict(zip(axes, u, strict=True)), tj)
+    names = [n for n in dict.fromkeys(names) if n in ev.quantities]
+    k = len(axes)
+    # Rows of the table: unit point, device temperature (NaN: the ambient), values.
+    row_u: list[np.ndarray] = []
+    row_tj: list[np.ndarray] = []
+    row_q: dict[str, list[np.ndarray]] = {n: [] for n in names}
 
+    def add(u: np.ndarray, e: Evaluation, tj: np.ndarray | None) -> None:
+        row_u.append(u.reshape(-1, k))
+        m = row_u[-1].shape[0]
+        row_tj.append(np.full(m, np.nan) if tj is None else np.asarray(tj, dtype=float)
+                      .reshape(-1))
+        for n in names:
+            row_q[n].append(np.broadcast_to(np.asarray(e.quantities[n], dtype=float)
+                                            .reshape(-1), (m,)))
+
+    def add_points(u: np.ndarray) -> None:
+        pts = point_at_unit(spec, axes, u)
+        add(u, evaluate(spec, pts), None)
+        if heat:
+            tj = self_heated_temperature(spec, pts)
+            add(u, evaluate(spec, pts, device_temp_c=tj), tj)
+
+    add(bits, ev, None)
+    region = np.asarray(ev.op.region).reshape(-1)
+    heated = None
+    if heat:
+        # DESIGN §2: where θJA is known, the device is also evaluated at its self-heated
+        # junction temperature; every bound covers both.
+        tj_v = self_heated_temperature(spec, point)
+        heated = evaluate(spec, point, device_temp_c=tj_v)
+        add(bits, heated, tj_v)
+        region = np.concatenate([region, np.asarray(heated.op.region).reshape(-1)])
+    if refine and k:
+        vertex_region = np.asarray(ev.op.region).reshape(-1)
+        edge_u = _boundary_points(spec, axes, bits, vertex_region)
+        if edge_u.size:
+            add_points(edge_u)
+        # Maxima of products inside the box; where the region changes inside the box,
+        # both extremes of every quantity along the region boundary.
+        targets = [(n, 1) for n in names if n in refined_quantities(spec)]
+        if np.any(vertex_region != vertex_region[0]):
+            targets += [(n, sign) for n in names if n in BOUNDARY_REFINED
+                        for sign in (1, -1) if (n, sign) not in targets]
+        # Starts: the best rows so far, the centre, and the best points of a grid along
+        # every edge (an interior extreme is usually reached from an edge with the other
+        # axes at their favourable ends).
+        edge_u, edge_axis = _edge_grid(bits)
+        edge_ev = evaluate(spec, point_at_unit(spec, axes, edge_u), small_signal=any(
+            t[0] in SMALL_SIGNAL_QUANTITIES for t in targets))
+        edge_vals = {t: np.nan_to_num(t[1] * np.asarray(edge_ev.quantities[t[0]], dtype=float)
+                                      .reshape(-1), nan=-np.inf) for t in targets}
+        line_u = _edge_maxima(spec, axes, edge_u, edge_axis, edge_vals)
+        if line_u.size:
+            add_points(line_u)
+        all_u = np.concatenate(row_u)
+        starts = {}
+        for name, sign in targets:
+            vals = np.nan_to_num(sign * np.concatenate(row_q[name]), nan=-np.inf)
+            if np.all(np.isinf(vals)):
+                continue
+            order = np.argsort(-vals)[:6]
+            starts[(name, sign)] = np.vstack([all_u[order], np.full((1, k), 0.5)])
+        if starts:
+            add_points(np.vstack(_refine_extremes(spec, axes, starts)))
+    all_u = np.concatenate(row_u) if k else np.zeros((len(row_u), 0))
+    all_tj = np.concatenate(row_tj)
+    table = {n: np.concatenate(v) for n, v in row_q.items()}
+    table = {n: v for n, v in table.items() if not np.all(np.isnan(v))}
+
+    def corner_of(i: int) -> dict[str, dict[str, object]]:
+        tj = None if np.isnan(all_tj[i]) else float(all_tj[i])
+        return corner_setting(spec, dict(zip(axes, all_u[i], strict=True)), tj)
+
+    bounds: dict[str, Bound] = {}
     for name, values in table.items():
         i_min, i_max = int(np.nanargmin(values)), int(np.nanargmax(values))
-        v_min, v_max = float(values[i_min]), float(values[i_max])
-        u_min, u_max = bits[i_min % n_vertex], bits[i_max % n_vertex]
-        c_max = corner_of(i_max, u_max)
-        if name in refined_max and refined_max[name][0] > v_max * (1 + 1e-12):
-            v_max, u_max = refined_max[name]
-            c_max = corner_of(0, u_max)
-        bounds[name] = Bound(v_min, v_max, corner_of(i_min, u_min), c_max, u_min,
-                             np.asarray(u_max))
-    region = np.asarray(ev.op.region).reshape(-1)
-    if heated is not None:
-        region = np.concatenate([region, np.asarray(heated.op.region).reshape(-1)])
+        v_max, c_max, u_max = float(values[i_max]), corner_of(i_max), all_u[i_max]
+        if name == "tj":
+            # the hottest junction is the self-heated one, solved at the hottest candidates
+            order = np.argsort(-np.nan_to_num(values, nan=-np.inf))
+            seen: list[np.ndarray] = []
+            best = -np.inf
+            for i in order:
+                if len(seen) == 4:
+                    break
+                if any(np.allclose(all_u[i], u) for u in seen):
+                    continue
+                seen.append(all_u[i])
+                tj_i = _self_heated_tj(spec, axes, all_u[i])
+                if tj_i > best:
+                    best, u_max = tj_i, all_u[i]
+            v_max = best
+            c_max = corner_setting(spec, dict(zip(axes, u_max, strict=True)), v_max)
+        bounds[name] = Bound(float(values[i_min]), v_max, corner_of(i_min), c_max,
+                             all_u[i_min], np.asarray(u_max))
     bad = np.flatnonzero(region != 0)
     from .operating_point import region_names
 
-    seen = tuple(sorted(set(region_names(region).tolist())))
-    example = corner_of(int(bad[0]), bits[bad[0] % n_vertex]) if bad.size else None
-    return WorstCase(axes=axes, bounds=bounds, n_vertices=len(bits), vertex_eval=ev,
-                     regions_seen=seen, non_active_corners=int(bad.size),
+    seen_regions = tuple(sorted(set(region_names(region).tolist())))
+    n_vertex = len(bits)
+    example = None
+    if bad.size:
+        i = int(bad[0])
+        tj_ex = None if i < n_vertex else float(all_tj[i])
+        example = corner_setting(spec, dict(zip(axes, bits[i % n_vertex], strict=True)), tj_ex)
+    return WorstCase(axes=axes, bounds=bounds, n_vertices=n_vertex, vertex_eval=ev,
+                     regions_seen=seen_regions, non_active_corners=int(bad.size),
                      non_active_example=example)
 
 
