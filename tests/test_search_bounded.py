@@ -202,3 +202,77 @@ def test_deadline_with_an_injected_clock():
     c = Deadline.after_checks(3)
     assert [c.expired() for _ in range(4)] == [False, False, True, True]
     assert not Deadline.after_checks(3).past(0.5)
+
+
+BOARD = """
+[supply]
+volts = 12
+tolerance_pct = 5
+[environment]
+ambient_min_c = 0
+ambient_max_c = 50
+[build]
+quantity = 10
+[search]
+objectives = ["cost", "distinct_values"]
+time_limit_s = 600
+top = 1
+[[stage]]
+name = "input"
+topology = "divider"
+[stage.target]
+ic = "1 mA"
+ic_window_pct = 20
+vce_min = "3 V"
+[[stage]]
+name = "driver"
+topology = "divider"
+[stage.target]
+ic = "3 mA"
+ic_window_pct = 20
+vce_min = "2.5 V"
+"""
+
+
+def test_stage_options_are_the_same_for_any_row_budget():
+    from stockbias.search.board import stage_job
+    from stockbias.search.board_options import stage_options
+    from stockbias.search.candidates import build_shelf
+
+    inv = generated_shelf(70, 2, seed=6)
+    job = parse_job(BOARD, "<board>")
+    st = job.stages[0]
+    sj = stage_job(job, st)
+    shelf = build_shelf(job, inv, pairs=False)
+    cands = {r: shelf.candidates(False, False) for r in ("R1", "R2", "RC", "RE")}
+    for q in inv.transistors:
+        whole = stage_options(sj, st, 0, "divider", q, cands)
+        small = stage_options(sj, st, 0, "divider", q, cands, row_budget=200)
+        assert whole.complete and small.complete and whole.size > 0
+        for r in whole.core:
+            np.testing.assert_array_equal(small.core[r], whole.core[r])
+        np.testing.assert_array_equal(small.lo, whole.lo)
+        np.testing.assert_array_equal(small.hi, whole.hi)
+        cut = stage_options(sj, st, 0, "divider", q, cands, Deadline.after_checks(3),
+                            row_budget=200)
+        assert not cut.complete and 0 < cut.rows_done < cut.rows_total == 70
+        assert cut.size < whole.size                     # a prefix of the options
+        for r in whole.core:
+            np.testing.assert_array_equal(cut.core[r], whole.core[r][:cut.size])
+
+
+def test_a_board_whose_options_were_cut_is_never_optimal():
+    from stockbias.search.board import design_board
+
+    inv = generated_shelf(70, 2, seed=6)
+    job = parse_job(BOARD, "<board>")
+    full = design_board(job, inv)
+    assert full.status == "optimal" and full.stats["prepass_cut"] is None
+    for n in (1, 2, 3):
+        r = design_board(job, inv, deadline=Deadline.after_checks(n))
+        assert r.status in ("feasible", "unknown")
+        assert (r.status == "unknown") == (not r.designs)
+        cut = r.stats["prepass_cut"]
+        assert cut.startswith("the time limit cut the pre-pass, so the status is not a proof")
+        assert cut in r.assumptions
+        assert "stage 'input'" in cut or "stage 'driver'" in cut

@@ -405,8 +405,8 @@ def _board_design(rank: int, stages: list[BoardStage], build_qty: int,
 
 
 def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
-                 time_limit_s: float | None = None, progress: Progress | None = None
-                 ) -> BoardResult:
+                 time_limit_s: float | None = None, progress: Progress | None = None,
+                 deadline: Deadline | None = None) -> BoardResult:
     """Design every stage of a board together from one shared stock (DESIGN §2, §3).
 
     Parameters
@@ -417,8 +417,12 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
     top : int, optional
         How many distinct boards (default: the job's ``top``).
     time_limit_s : float, optional
-        Wall-clock limit for the whole search, s (default: the job's).
+        Wall-clock limit for the whole search, s (default: the job's): stage options,
+        board model and re-verification.  A run it cuts short is at most ``feasible``
+        and says in ``assumptions`` which rows of which stage were scanned.
     progress : callable(stage: str, fraction: float), optional
+    deadline : Deadline, optional
+        Use this deadline instead of one made from ``time_limit_s``.
 
     Returns
     -------
@@ -427,8 +431,7 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
     t0 = time.monotonic()
     top = job.search.top if top is None else int(top)
     limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
-    clock = Deadline(limit)                      # one deadline for the whole command
-    deadline = clock.monotonic_at()
+    clock = Deadline(limit) if deadline is None else deadline   # one for the whole command
     prepass = clock.share(0.7)                   # options leave time for the board model
     objectives, notes = board_objectives(job)
     shelf = build_shelf(job, inventory, pairs=False)
@@ -460,7 +463,7 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
         if progress is not None:
             progress("pre-pass", (si + 1) / len(job.stages))
     status, ranked, values, bound, bm, verified, rstats = run_board(
-        job, inventory, setups, universe, objectives, top, deadline, progress,
+        job, inventory, setups, universe, objectives, top, clock.monotonic_at(), progress,
         skipped=skipped)
     designs = build_board(job, inventory, setups, universe, status, ranked, values, bm,
                           verified)
@@ -475,7 +478,7 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
         result.assumptions.append(str(rstats["prepass_cut"]))
     if not designs:
         result.explanation = explain_board(job, inventory, setups, universe, objectives,
-                                           status, deadline)
+                                           status, clock.monotonic_at())
     result.solve_seconds = time.monotonic() - t0
     return result
 

@@ -733,7 +733,7 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
         from .board import design_board
 
         return design_board(job, inventory, top=top, time_limit_s=time_limit_s,
-                            progress=progress)  # type: ignore[return-value]
+                            progress=progress, deadline=deadline)  # type: ignore[return-value]
     t0 = time.monotonic()
     top = job.search.top if top is None else int(top)
     if deadline is None:
