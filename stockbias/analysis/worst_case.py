@@ -8,14 +8,25 @@ Vertices
     networks in the active region (proved for the divider in DESIGN §2 and
     checked for all four by interior sampling in the tests).
 
+Region boundaries
+    Across the onset of saturation or cut-off a current or voltage can turn
+    back (past the saturation edge more base drive lowers IC), so where the
+    vertices do not all share one region, the points where the boundary
+    crosses an edge of the box are found by bisection, and every current and
+    node voltage is pushed to both extremes along the boundary by a pattern
+    search (:mod:`stockbias.analysis.box_search`).
+
 Interior points
     Products peak inside the box: transistor dissipation IC·VCE is largest
     where VCE is near half the available voltage, RC's dissipation in
-    collector feedback where RC = RE + RB/(β+1).  For every dissipation and
-    the supply power, the maximum is refined by a bounded quasi-Newton
-    search (L-BFGS-B on the unit box) started from the best vertices and the
-    centre; the reported bound is the largest value found at a vertex or at an
-    interior stationary point.  The tests sample the interior to check it.
+    collector feedback where RC = RE + RB/(β+1).  For every dissipation, the
+    supply power and TJ, the maximum is searched along the most promising
+    edges (golden section) and then inside the box (pattern search) from the
+    best points found.  Every point found is also evaluated self-heated where
+    θJA is known; the bound is the largest value at any point evaluated.  The
+    largest TJ is the self-heated fixed point TJ = TA + θJA·PD(TJ) at the
+    hottest candidates, the figure the thermal summary gives.  The tests
+    sample the box densely to check every bound.
 
 Root-sum-square
     nominal ± sqrt(Σ (∂f/∂p · Δp)²) with Δp the half range of each axis and
@@ -29,6 +40,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .box_search import (
+    boundary_points,
+    edge_grid,
+    edge_maxima,
+    point_at_unit,
+    refine_extremes,
+    self_heated_tj,
+)
 from .stage import (
     SMALL_SIGNAL_QUANTITIES,
     Evaluation,
@@ -192,236 +211,6 @@ def vertex_points(spec: StageSpec, axes: Iterable[str] | None = None,
     return spec.point_from(values, base), bits
 
 
-def point_at_unit(spec: StageSpec, axes: tuple[str, ...], u: np.ndarray) -> StagePoint:
-    values = {}
-    for j, axis in enumerate(axes):
-        lo, hi = (np.asarray(v, dtype=float) for v in spec.axis_range(axis))
-        values[axis] = lo + u[..., j] * (hi - lo)
-    return spec.point_from(values)
-
-
-def _refine_extremes(spec: StageSpec, axes: tuple[str, ...],
-                     starts: dict[tuple[str, int], np.ndarray], rounds: int = 40,
-                     grid: int = 9, tol: float = 1e-6) -> list[np.ndarray]:
-    """Points inside the unit box that push each quantity to its extreme (pattern search).
-
-    ``starts`` maps (quantity, sign) to start points, shape ``(s, k)``; sign +1 seeks
-    the maximum, −1 the minimum.  Each round, for every target and start at once (one
-    batched evaluation), tries a grid of ``grid`` values along each axis around the
-    current point within its step width, and the pattern moves x + m·(x − x_prev)
-    (m = 1, 2, 4) along the last successful step; the best trial is taken if it
-    improves, else the width halves.  It stops when every width is below ``tol`` (unit
-    box) or after ``rounds``.  Smooth quantities converge to the interior stationary
-    point (or a face or vertex) the start leads to, ridges included; across a region
-    boundary the search follows the kink.  Returns the final point of every start.
-    """
-    k = len(axes)
-    keys = list(starts)
-    counts = [starts[key].shape[0] for key in keys]
-    signs = np.concatenate([np.full(c, key[1], dtype=float) for key, c in zip(keys, counts,
-                                                                             strict=True)])
-    owner = np.concatenate([np.full(c, i) for i, c in enumerate(counts)])
-    x = np.concatenate([starts[key] for key in keys]).astype(float)   # (S, k)
-    n_s = x.shape[0]
-    prev = x.copy()
-    width = np.full(n_s, 0.5)
-    offsets = np.linspace(-1.0, 1.0, grid)
-
-    small = any(key[0] in SMALL_SIGNAL_QUANTITIES for key in keys)
-
-    def values(u: np.ndarray, rows: np.ndarray) -> np.ndarray:
-        ev = evaluate(spec, point_at_unit(spec, axes, u), small_signal=small)
-        out = np.full(u.shape[0], -np.inf)
-        for i, key in enumerate(keys):
-            sel = owner[rows] == i
-            if np.any(sel):
-                q = np.asarray(ev.quantities[key[0]], dtype=float).reshape(-1)[sel]
-                out[sel] = np.nan_to_num(key[1] * q, nan=-np.inf)
-        return out
-
-    best = values(x, np.arange(n_s))
-    del signs
-    for _ in range(rounds):
-        live = width > tol
-        if not np.any(live):
-            break
-        rows = np.flatnonzero(live)
-        m = rows.size
-        trial = np.repeat(x[rows][:, None, None, :], k, axis=1).repeat(grid, axis=2)
-        for j in range(k):
-            trial[:, j, :, j] = x[rows, j, None] + width[rows, None] * offsets
-        trial = trial.reshape(m, k * grid, k)
-        step = x[rows] - prev[rows]
-        pattern = x[rows][:, None, :] + np.array([1.0, 2.0, 4.0])[None, :, None] * step[:, None]
-        trial = np.clip(np.concatenate([trial, pattern], axis=1), 0.0, 1.0)
-        n_t = trial.shape[1]
-        vals = values(trial.reshape(-1, k), np.repeat(rows, n_t)).reshape(m, n_t)
-        pick = np.argmax(vals, axis=1)
-        gain = vals[np.arange(m), pick] > best[rows]
-        moved = rows[gain]
-        prev[moved] = x[moved]
-        x[moved] = trial[np.flatnonzero(gain), pick[gain]]
-        best[moved] = vals[np.flatnonzero(gain), pick[gain]]
-        stuck = rows[~gain]
-        width[stuck] *= 0.5
-        prev[stuck] = x[stuck]
-    out, pos = [], 0
-    for c in counts:
-        out.append(x[pos:pos + c])
-        pos += c
-    return out
-
-
-def _boundary_points(spec: StageSpec, axes: tuple[str, ...], bits: np.ndarray,
-                     region: np.ndarray, iterations: int = 34) -> np.ndarray:
-    """Points on both sides of every region boundary that crosses an edge of the box.
-
-    Along an edge whose two vertices lie in different regions (active against
-    saturated or cut off), the crossing is bracketed by bisection on the region
-    (``iterations`` halvings, 2^-34 of the axis range); both ends of the final
-    bracket are returned, shape ``(2·m, k)`` in unit coordinates.  Currents and
-    voltages are monotone inside each region but not across its boundary, so an
-    extreme can sit where the boundary meets an edge.
-    """
-    n, k = bits.shape
-    idx = np.arange(n)
-    starts, axis = [], []
-    for j in range(k):
-        a = idx[bits[:, j] == 0]
-        b = a | (1 << j)
-        cross = region[a] != region[b]
-        starts.append(a[cross])
-        axis.append(np.full(int(cross.sum()), j))
-    first = np.concatenate(starts)
-    if first.size == 0:
-        return np.empty((0, k))
-    j_of = np.concatenate(axis)
-    rows = np.arange(first.size)
-    u0 = bits[first].astype(float)
-    region0 = region[first]
-    lo, hi = np.zeros(first.size), np.ones(first.size)
-    for _ in range(iterations):
-        mid = 0.5 * (lo + hi)
-        u = u0.copy()
-        u[rows, j_of] = mid
-        r = np.asarray(evaluate(spec, point_at_unit(spec, axes, u), small_signal=False)
-                       .op.region).reshape(-1)
-        same = r == region0
-        lo = np.where(same, mid, lo)
-        hi = np.where(same, hi, mid)
-    u_lo, u_hi = u0.copy(), u0.copy()
-    u_lo[rows, j_of] = lo
-    u_hi[rows, j_of] = hi
-    return np.vstack([u_lo, u_hi])
-
-
-_EDGE_POINTS = 7
-
-
-def _edge_grid(bits: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Interior points along every edge of the unit box, 7 per edge.
-
-    Returns the points, shape ``(edges·7, k)`` (edge by edge), and the axis each edge runs
-    along, shape ``(edges,)``.
-    """
-    n, k = bits.shape
-    idx = np.arange(n)
-    t = np.arange(1, _EDGE_POINTS + 1) / (_EDGE_POINTS + 1)
-    out, axis = [], []
-    for j in range(k):
-        base = bits[idx[bits[:, j] == 0]]
-        u = np.repeat(base[:, None, :], _EDGE_POINTS, axis=1)
-        u[:, :, j] = t
-        out.append(u.reshape(-1, k))
-        axis.append(np.full(base.shape[0], j))
-    if not out:
-        return np.empty((0, k)), np.empty(0, dtype=int)
-    return np.concatenate(out), np.concatenate(axis)
-
-
-def _edge_maxima(spec: StageSpec, axes: tuple[str, ...], edge_u: np.ndarray,
-                 edge_axis: np.ndarray, edge_vals: dict[tuple[str, int], np.ndarray],
-                 best_edges: int = 12, iterations: int = 40) -> np.ndarray:
-    """The extreme of each target along its most promising edges (golden-section search).
-
-    For each target (quantity, sign), the ``best_edges`` edges whose grid points reach
-    furthest are searched between the grid neighbours of their best point; the points
-    found are returned, shape ``(m, k)``.  An interior extreme with every other
-    parameter at an end of its range lies on such an edge.
-    """
-    k = len(axes)
-    n_edges = edge_axis.size
-    if n_edges == 0:
-        return np.empty((0, k))
-    grid = np.arange(1, _EDGE_POINTS + 1) / (_EDGE_POINTS + 1)
-    base_u, axis_of, lo, hi, owner = [], [], [], [], []
-    keys = list(edge_vals)
-    for i, key in enumerate(keys):
-        vals = edge_vals[key].reshape(n_edges, _EDGE_POINTS)
-        peak = vals.max(axis=1)
-        top = np.argsort(-peak)[:best_edges]
-        top = top[np.isfinite(peak[top])]
-        at = np.argmax(vals[top], axis=1)
-        base_u.append(edge_u.reshape(n_edges, _EDGE_POINTS, k)[top, 0])
-        axis_of.append(edge_axis[top])
-        lo.append(np.maximum(grid[at] - 1.0 / (_EDGE_POINTS + 1), 0.0))
-        hi.append(np.minimum(grid[at] + 1.0 / (_EDGE_POINTS + 1), 1.0))
-        owner.append(np.full(top.size, i))
-    u0 = np.concatenate(base_u)
-    if u0.shape[0] == 0:
-        return np.empty((0, k))
-    j_of, a, b = np.concatenate(axis_of), np.concatenate(lo), np.concatenate(hi)
-    who = np.concatenate(owner)
-    rows = np.arange(u0.shape[0])
-    signs = np.array([key[1] for key in keys], dtype=float)[who]
-
-    small = any(key[0] in SMALL_SIGNAL_QUANTITIES for key in keys)
-
-    def f(t: np.ndarray) -> np.ndarray:
-        u = u0.copy()
-        u[rows, j_of] = t
-        ev = evaluate(spec, point_at_unit(spec, axes, u), small_signal=small)
-        out = np.full(t.shape, -np.inf)
-        for i, key in enumerate(keys):
-            sel = who == i
-            q = np.asarray(ev.quantities[key[0]], dtype=float).reshape(-1)[sel]
-            out[sel] = np.nan_to_num(signs[sel] * q, nan=-np.inf)
-        return out
-
-    ratio = (np.sqrt(5.0) - 1.0) / 2.0
-    c, d = b - ratio * (b - a), a + ratio * (b - a)
-    fc, fd = f(c), f(d)
-    for _ in range(iterations):
-        left = fc >= fd      # the maximum lies in [a, d]
-        b = np.where(left, d, b)
-        a = np.where(left, a, c)
-        c_new = np.where(left, b - ratio * (b - a), d)
-        d_new = np.where(left, c, a + ratio * (b - a))
-        f_new = f(np.where(left, c_new, d_new))
-        fd = np.where(left, fc, f_new)
-        fc = np.where(left, f_new, fd)
-        c, d = c_new, d_new
-    u = u0.copy()
-    u[rows, j_of] = 0.5 * (a + b)
-    return u
-
-
-def _self_heated_tj(spec: StageSpec, axes: tuple[str, ...], u: np.ndarray) -> float:
-    """Self-heated junction temperature at one point of the box (°C), TJ = TA + θJA·PD(TJ)."""
-    from .stage import solve_point
-    from .thermal import self_heated_point
-
-    point = point_at_unit(spec, axes, u) if axes else spec.nominal_point()
-
-    def pd_of_tj(tj: np.ndarray) -> np.ndarray:
-        op, _ = solve_point(spec, point, np.asarray(tj))
-        return np.asarray(op.pd, dtype=float)
-
-    sh = self_heated_point(pd_of_tj, np.asarray(point.ambient_c, dtype=float),
-                           np.asarray(spec.device.theta_ja_effective, dtype=float))
-    return float(np.asarray(sh.tj_c).reshape(-1)[0])
-
-
 def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = True,
                quantities: Iterable[str] | None = None) -> WorstCase:
     """Extreme value analysis of one stage (scalar spec).
@@ -493,7 +282,7 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
         region = np.concatenate([region, np.asarray(heated.op.region).reshape(-1)])
     if refine and k:
         vertex_region = np.asarray(ev.op.region).reshape(-1)
-        edge_u = _boundary_points(spec, axes, bits, vertex_region)
+        edge_u = boundary_points(spec, axes, bits, vertex_region)
         if edge_u.size:
             add_points(edge_u)
         # Maxima of products inside the box; where the region changes inside the box,
@@ -505,12 +294,12 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
         # Starts: the best rows so far, the centre, and the best points of a grid along
         # every edge (an interior extreme is usually reached from an edge with the other
         # axes at their favourable ends).
-        edge_u, edge_axis = _edge_grid(bits)
+        edge_u, edge_axis = edge_grid(bits)
         edge_ev = evaluate(spec, point_at_unit(spec, axes, edge_u), small_signal=any(
             t[0] in SMALL_SIGNAL_QUANTITIES for t in targets))
         edge_vals = {t: np.nan_to_num(t[1] * np.asarray(edge_ev.quantities[t[0]], dtype=float)
                                       .reshape(-1), nan=-np.inf) for t in targets}
-        line_u = _edge_maxima(spec, axes, edge_u, edge_axis, edge_vals)
+        line_u = edge_maxima(spec, axes, edge_u, edge_axis, edge_vals)
         if line_u.size:
             add_points(line_u)
         all_u = np.concatenate(row_u)
@@ -522,7 +311,7 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
             order = np.argsort(-vals)[:6]
             starts[(name, sign)] = np.vstack([all_u[order], np.full((1, k), 0.5)])
         if starts:
-            add_points(np.vstack(_refine_extremes(spec, axes, starts)))
+            add_points(np.vstack(refine_extremes(spec, axes, starts)))
     all_u = np.concatenate(row_u) if k else np.zeros((len(row_u), 0))
     all_tj = np.concatenate(row_tj)
     table = {n: np.concatenate(v) for n, v in row_q.items()}
@@ -547,7 +336,7 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
                 if any(np.allclose(all_u[i], u) for u in seen):
                     continue
                 seen.append(all_u[i])
-                tj_i = _self_heated_tj(spec, axes, all_u[i])
+                tj_i = self_heated_tj(spec, axes, all_u[i])
                 if tj_i > best:
                     best, u_max = tj_i, all_u[i]
             v_max = best
