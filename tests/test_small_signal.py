@@ -14,6 +14,7 @@ from stockbias.analysis.small_signal import (
     parallel,
     r_o,
     r_pi,
+    stage_response,
     transconductance,
 )
 
@@ -221,3 +222,30 @@ def test_collector_feedback_against_numeric_linearisation() -> None:
     # (RB taken as a mere collector load, ignoring its feed-forward, is off by about 1e-3 here)
     assert av == pytest.approx(av_num, rel=1e-7)
     assert rin == pytest.approx(rin_num, rel=1e-7)
+
+
+def test_stage_response_hand_calculation() -> None:
+    # hand calculation: gm 40 mS, gπ 0.4 mS (β 100), RC‖RL = 3197.279 Ω, RE_u 100 Ω,
+    # bias network 20 kΩ, no rₒ: gain −β·RL'/(rπ + (β+1)·RE_u) = −319727.9/12600 and
+    # input 20 k ‖ (2.5 k + 10.1 k) = 20 k ‖ 12.6 k = 7730.06 Ω
+    gain, rin = stage_response(0.04, 4e-4, parallel(4.7e3, 10e3), 100.0, np.inf, np.inf, 20e3)
+    assert gain == pytest.approx(-25.375229, rel=1e-6)
+    assert rin == pytest.approx(7730.0613, rel=1e-6)
+
+
+def test_stage_response_input_with_ro_against_nodal_matrix() -> None:
+    # With rₒ and RE_u the base current is gπ·(v_b − v_e), v_e from the full nodal
+    # solution: compare with a 3-node conductance matrix (base driven by a 1 A source)
+    # solved by numpy, a different route to the same circuit.
+    gm, gpi, rl, re_u, ro, rb, rbias = 0.05, 2.5e-4, 3.3e3, 220.0, 40e3, 150e3, 30e3
+    gain, rin = stage_response(gm, gpi, rl, re_u, ro, rb, rbias)
+    go, gl, ge, gf, gb = 1 / ro, 1 / rl, 1 / re_u, 1 / rb, 1 / rbias
+    # unknowns v_b, v_e, v_c; currents leaving each node; gm·(v_b − v_e) from C to E
+    a = np.array([
+        [gpi + gf + gb, -gpi, -gf],
+        [-gpi - gm, gpi + ge + go + gm, -go],
+        [gm - gf, -gm - go, gl + go + gf],
+    ])
+    v = np.linalg.solve(a, np.array([1.0, 0.0, 0.0]))
+    assert rin == pytest.approx(v[0], rel=1e-12)
+    assert gain == pytest.approx(v[2] / v[0], rel=1e-12)

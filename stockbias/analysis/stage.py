@@ -486,6 +486,8 @@ def evaluate(spec: StageSpec, point: StagePoint, *, small_signal: bool = True,
     if not spec.re_bypassed and "RE" in point.r:
         re_u = point.r["RE"]
     rc = point.r["RC"]
+    r_fb: float | np.ndarray
+    r_bias: float | np.ndarray
     if spec.network.name == "collector_feedback":
         r_fb, r_bias = point.r["RB"], np.inf
     elif spec.network.name == "divider":
