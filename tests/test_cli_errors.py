@@ -322,3 +322,14 @@ def test_permission_denied_reading_the_job_or_the_stock(
     assert result.exit_code == 2
     line = _one_line(result.output)
     assert line.startswith(str(SHELF)) and "Permission denied" in line
+
+
+def test_line_breaks_in_a_key_or_text_stay_on_one_line(tmp_path: Path) -> None:
+    result = _check(_job(tmp_path, GOOD + '"a\\nb\\u001b[2J" = 1\n'))
+    assert result.exit_code == 2
+    line = _one_line(result.output)
+    assert "unknown key 'a\\nb\\x1b[2J'" in line       # escaped, not a line break or a
+    assert "\x1b" not in line                              # terminal control sequence
+    result = _check(_job(tmp_path, GOOD + '[build]\nallow_pairs = """x\ny"""\n'))
+    assert result.exit_code == 2
+    assert _one_line(result.output).endswith("(text 'x\\ny')")

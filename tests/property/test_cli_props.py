@@ -95,6 +95,16 @@ def test_check_with_plausible_extremes(tmp_path: Path, doc: str) -> None:
     _assert_clean(_invoke(args), args)
 
 
+@settings(max_examples=15, derandomize=True, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+@given(doc=plausible_jobs())
+def test_design_with_plausible_extremes(tmp_path: Path, doc: str) -> None:
+    job = _write(tmp_path, doc)
+    args = ["design", str(job), "-i", str(DRAWERS), "--time-limit", "1", "--top", "2",
+            "--json"]
+    _assert_clean(_invoke(args), args)
+
+
 @settings(max_examples=120, derandomize=True, deadline=None,
           suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
 @given(options=_options, values=st.lists(_value_text, min_size=1, max_size=3),
