@@ -99,7 +99,6 @@ class OutputSet:
     inputs: Mapping[str, str | Path | None]
     force: bool = False
     _outputs: dict[str, _Output] = field(default_factory=dict)
-    _committed: bool = False
 
     # --- declaring -----------------------------------------------------------
 
@@ -111,7 +110,7 @@ class OutputSet:
             out.append((label, file_identity(p), os.path.realpath(p)))
         return out
 
-    def _refuse(self, option: str, path: Path, message: str) -> InputError:
+    def _refuse(self, option: str, path: Path, message: str) -> OutputError:
         return OutputError(message, file=str(path), column=option)
 
     def _check_folder(self, option: str, path: Path) -> None:
@@ -326,7 +325,6 @@ class OutputSet:
                 with contextlib.suppress(OSError):
                     os.unlink(p.undo)
         self.discard()
-        self._committed = True
         written: dict[str, list[Path]] = {}
         for p in placed:
             written.setdefault(p.option, []).append(p.final)
