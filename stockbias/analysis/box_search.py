@@ -41,8 +41,8 @@ def point_at_unit(spec: StageSpec, axes: tuple[str, ...], u: np.ndarray) -> Stag
 
 
 def refine_extremes(spec: StageSpec, axes: tuple[str, ...],
-                     starts: dict[tuple[str, int], np.ndarray], rounds: int = 40,
-                     grid: int = 9, tol: float = 1e-6) -> list[np.ndarray]:
+                     starts: dict[tuple[str, int], np.ndarray], rounds: int = 30,
+                     grid: int = 9, tol: float = 1e-5) -> list[np.ndarray]:
     """Points inside the unit box that push each quantity to its extreme (pattern search).
 
     ``starts`` maps (quantity, sign) to start points, shape ``(s, k)``; sign +1 seeks
@@ -181,7 +181,7 @@ def edge_grid(bits: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def edge_maxima(spec: StageSpec, axes: tuple[str, ...], edge_u: np.ndarray,
                  edge_axis: np.ndarray, edge_vals: dict[tuple[str, int], np.ndarray],
-                 best_edges: int = 12, iterations: int = 40) -> np.ndarray:
+                 best_edges: int = 12, iterations: int = 16) -> np.ndarray:
     """The extreme of each target along its most promising edges (golden-section search).
 
     For each target (quantity, sign), the ``best_edges`` edges whose grid points reach
@@ -246,11 +246,17 @@ def edge_maxima(spec: StageSpec, axes: tuple[str, ...], edge_u: np.ndarray,
     return u
 
 
-def self_heated_tj(spec: StageSpec, axes: tuple[str, ...], u: np.ndarray) -> float:
-    """Self-heated junction temperature at one point of the box (°C), TJ = TA + θJA·PD(TJ)."""
+def self_heated_tj(spec: StageSpec, axes: tuple[str, ...], u: np.ndarray) -> np.ndarray:
+    """Self-heated junction temperature TJ = TA + θJA·PD(TJ) at points of the box, °C.
+
+    ``u`` has shape ``(m, k)``; the result ``(m,)``.  Each point is solved on its own
+    terms (the fixed-point search is elementwise), so one point gives the same figure
+    alone or in a batch.
+    """
     from .stage import solve_point
     from .thermal import self_heated_point
 
+    u = np.atleast_2d(np.asarray(u, dtype=float))
     point = point_at_unit(spec, axes, u) if axes else spec.nominal_point()
 
     def pd_of_tj(tj: np.ndarray) -> np.ndarray:
@@ -259,4 +265,4 @@ def self_heated_tj(spec: StageSpec, axes: tuple[str, ...], u: np.ndarray) -> flo
 
     sh = self_heated_point(pd_of_tj, np.asarray(point.ambient_c, dtype=float),
                            np.asarray(spec.device.theta_ja_effective, dtype=float))
-    return float(np.asarray(sh.tj_c).reshape(-1)[0])
+    return np.broadcast_to(np.asarray(sh.tj_c, dtype=float), (u.shape[0],)).copy()

@@ -308,7 +308,7 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
             vals = np.nan_to_num(sign * np.concatenate(row_q[name]), nan=-np.inf)
             if np.all(np.isinf(vals)):
                 continue
-            order = np.argsort(-vals)[:6]
+            order = np.argsort(-vals)[:3]
             starts[(name, sign)] = np.vstack([all_u[order], np.full((1, k), 0.5)])
         if starts:
             add_points(np.vstack(refine_extremes(spec, axes, starts)))
@@ -329,16 +329,13 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
             # the hottest junction is the self-heated one, solved at the hottest candidates
             order = np.argsort(-np.nan_to_num(values, nan=-np.inf))
             seen: list[np.ndarray] = []
-            best = -np.inf
             for i in order:
                 if len(seen) == 4:
                     break
-                if any(np.allclose(all_u[i], u) for u in seen):
-                    continue
-                seen.append(all_u[i])
-                tj_i = self_heated_tj(spec, axes, all_u[i])
-                if tj_i > best:
-                    best, u_max = tj_i, all_u[i]
+                if not any(np.allclose(all_u[i], u) for u in seen):
+                    seen.append(all_u[i])
+            u_max = seen[int(np.argmax(self_heated_tj(spec, axes, np.vstack(seen))))]
+            best = float(self_heated_tj(spec, axes, u_max[None, :])[0])
             v_max = best
             c_max = corner_setting(spec, dict(zip(axes, u_max, strict=True)), v_max)
         bounds[name] = Bound(float(values[i_min]), v_max, corner_of(i_min), c_max,
