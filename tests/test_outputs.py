@@ -350,3 +350,25 @@ def test_export_never_writes_over_its_from_file(bench: dict[str, Path], option: 
                                 "(--from), an input of the command; it is never written over "
                                 "(even with --force)")
     assert listing(bench["job"].parent) == before
+
+
+def looks_written(option: str, data: bytes) -> bool:
+    """The file holds what the option writes (not the stale bytes put there first)."""
+    text = data.decode("utf-8")
+    return {"--report": text.startswith("<!DOCTYPE html>"),
+            "--pick-list": text.startswith("location,part_id"),
+            "--save": '"designs"' in text and '"inputs"' in text,
+            "--netlist": ".model" in text and text.rstrip().endswith(".end")}[option]
+
+
+@pytest.mark.parametrize(("kind", "option"), FILE_OPTIONS)
+def test_force_replaces_an_existing_file(bench: dict[str, Path], kind: str,
+                                         option: str) -> None:
+    folder = bench["job"].parent
+    out = folder / "earlier.out"
+    out.write_bytes(b"stale\n")
+    others = {k: v for k, v in listing(folder).items() if k != "earlier.out"}
+    result = runner.invoke(app, [*command(kind, bench), option, str(out), "--force"])
+    assert result.exit_code == 0, result.output
+    assert looks_written(option, out.read_bytes())
+    assert {k: v for k, v in listing(folder).items() if k != "earlier.out"} == others
