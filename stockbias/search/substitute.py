@@ -204,14 +204,13 @@ class _Screen:
             table = self.tables.get(role)
             if table is None:
                 rows = cand[role]
-                lo, hi = piece_band([r.value_ohm for r in rows],
-                                    [r.tolerance_pct / 100 for r in rows],
-                                    [r.tempco_ppm or 0.0 for r in rows],
-                                    [r.tempco_signed for r in rows], *self.ambient)
-                table = np.stack([lo, hi], axis=1)
+                r_lo, r_hi = piece_band([r.value_ohm for r in rows],
+                                        [r.tolerance_pct / 100 for r in rows],
+                                        [r.tempco_ppm or 0.0 for r in rows],
+                                        [r.tempco_signed for r in rows], *self.ambient)
+                table = np.stack([r_lo, r_hi], axis=1)
                 self.tables[role] = table
-            lo, hi = table[idx[:, j]].T
-            bands[role] = (lo, hi)
+            bands[role] = (table[idx[:, j], 0], table[idx[:, j], 1])
         return bands
 
     def prefilter(self, roles: tuple[str, ...], cand: dict[str, list[Resistor]],
