@@ -133,9 +133,11 @@ def band_at(value: ArrayLike, tol: ArrayLike, tempco_ppm: ArrayLike, signed: Arr
     return v * (1 - t) * f_lo, v * (1 + t) * f_hi
 
 
-def pair_rating(power_a: ArrayLike, power_b: ArrayLike, a: tuple[ArrayLike, ...],
-                b: tuple[ArrayLike, ...], series: bool, ambient_min_c: float,
-                ambient_max_c: float) -> Array:
+Piece = tuple[ArrayLike, ArrayLike, ArrayLike, ArrayLike]
+
+
+def pair_rating(power_a: ArrayLike, power_b: ArrayLike, a: Piece, b: Piece, series: bool,
+                ambient_min_c: float, ambient_max_c: float) -> Array:
     """The pair's allowed total dissipation, W: min over parts of rating_i / worst share_i.
 
     ``a``, ``b``: each part's (value ohm, tol fraction, tempco ppm/°C, signed).  Both parts
@@ -145,7 +147,8 @@ def pair_rating(power_a: ArrayLike, power_b: ArrayLike, a: tuple[ArrayLike, ...]
     """
     out = None
     for temp in sorted({ambient_min_c, ambient_max_c}):
-        sa, sb = worst_shares(*band_at(*a, temp), *band_at(*b, temp), series=series)
+        sa, sb = worst_shares(*band_at(*a, temp_c=temp), *band_at(*b, temp_c=temp),
+                              series=series)
         r = np.minimum(np.asarray(power_a, dtype=float) / sa,
                        np.asarray(power_b, dtype=float) / sb)
         out = r if out is None else np.minimum(out, r)
