@@ -21,7 +21,7 @@ import csv
 import re
 import unicodedata
 from collections.abc import Iterator
-from dataclasses import dataclass
+from typing import NamedTuple
 
 __all__ = ["Record", "field_fault", "line_faults", "records", "sanitise", "visible"]
 
@@ -44,11 +44,13 @@ def _hidden(ch: str, *, spaces: bool) -> bool:
 def visible(text: str) -> str:
     """``text`` with every invisible, format or control character written as ``<U+XXXX>``.
 
-    Non-ASCII spaces are spelled out too (a no-break space looks like a space).
+    Non-ASCII spaces are spelled out too (a no-break space looks like a space).  These are
+    exactly the characters :meth:`str.isprintable` calls unprintable (categories C* and Z*
+    other than the ASCII space).
     """
-    if text.isascii() and text.isprintable():
+    if text.isprintable():
         return text
-    return "".join(f"<U+{ord(ch):04X}>" if _hidden(ch, spaces=True) else ch for ch in text)
+    return "".join(ch if ch.isprintable() else f"<U+{ord(ch):04X}>" for ch in text)
 
 
 def describe(ch: str) -> str:
@@ -74,7 +76,7 @@ def field_fault(text: str, *, number: bool) -> str | None:
         an invisible, format or control character, a non-ASCII space in a part id, or
         a digit other than ASCII 0-9.
     """
-    if text.isascii() and text.isprintable():
+    if text.isprintable() and (text.isascii() or not any(ch.isdigit() for ch in text)):
         return None
     for pos, ch in enumerate(text, start=1):
         if _hidden(ch, spaces=not number):
@@ -107,8 +109,7 @@ def sanitise(text: str) -> str:
     return _LINE_FAULT.sub(_REPLACEMENT, text)
 
 
-@dataclass(frozen=True)
-class Record:
+class Record(NamedTuple):
     """One CSV record.
 
     Attributes

@@ -297,9 +297,8 @@ class _RowReader:
         self.warnings = warnings
         self.ok = True
         self.refused: set[str] = set()
-        fields = record.fields
-        width = len(fields)
-        self.values = {col: fields[i].strip() for col, i in layout.known if i < width}
+        # column name -> stripped field (a duplicated name is refused with the header)
+        self.values = dict(zip(layout.columns, map(str.strip, record.fields), strict=False))
 
     def has_header_width(self) -> bool:
         """A row must have exactly as many fields as the header (RFC 4180); else one problem."""
@@ -358,7 +357,7 @@ class _RowReader:
         if found is None:
             found = self.layout.numbers[text, col] = _evaluate(text, col, self.decimal_comma)
         if isinstance(found, str):
-            self.fail(col, text, found)
+            self.fail(col, visible(text), found)
             return None
         return found
 
@@ -388,9 +387,10 @@ class _RowReader:
             self.screen("part_id", number=False)
         if "tempco_ppm" in self.index and kind == "resistor" and self.raw("tempco_ppm"):
             self.screen("tempco_ppm", number=True)  # before any reading of the field
+        values = self.values
         for col in self.layout.foreign[kind]:
-            if self.raw(col) != "":
-                self.warnings.append((self.line, col, visible(self.raw(col)),
+            if values.get(col):
+                self.warnings.append((self.line, col, visible(values[col]),
                                       f"field does not apply to a {kind} row; ignored"))
         missing = self.layout.missing[kind]
         for col in missing:
@@ -454,7 +454,8 @@ class _RowReader:
             if polarity == "":
                 self.fail("polarity", "", "required field 'polarity' is empty")
             else:
-                self.fail("polarity", self.raw("polarity"), "unknown polarity: use NPN or PNP")
+                self.fail("polarity", visible(self.raw("polarity")),
+                          "unknown polarity: use NPN or PNP")
         values: dict[str, float] = {}
         for col, spec in COLUMNS.items():
             if "transistor" not in spec.kinds or spec.unit is None or col in ("qty", "unit_cost"):

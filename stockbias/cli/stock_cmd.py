@@ -28,7 +28,7 @@ def check(
         "summary is drawn by default).")] = False,
 ) -> None:
     """Validate a stock file and summarise what is on the shelf."""
-    from ..render.stock_table import ReadingProgress, render_stock_summary
+    from ..render.stock_table import ReadingProgress, render_stock_summary, stock_check_json
 
     err = make_console(stderr=True)
     show_progress = not json_out and err.is_terminal
@@ -49,7 +49,7 @@ def check(
                    "warnings": [{"line": w[0], "column": w[1], "text": w[2], "message": w[3]}
                                 for w in inv.warnings],
                    "summary": summary.to_dict()}
-        typer.echo(dumps(payload))
+        typer.echo(stock_check_json(payload))
         return
     render_stock_summary(make_console(), inv, summary, rows=True if rows else None)
 

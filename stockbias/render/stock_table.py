@@ -10,6 +10,8 @@ unless every row was asked for.
 
 from __future__ import annotations
 
+import functools
+import json
 import time
 from collections.abc import Sequence
 
@@ -21,14 +23,18 @@ from rich.table import Table
 from ..parts import MODEL_CARD_FIELDS, TRANSISTOR_DEFAULTS, Inventory, Resistor, Transistor
 from ..stock_csv import visible
 from ..stock_summary import StockSummary
-from ..units import format_quantity
+from ..units import format_quantity as _format_quantity
 
-__all__ = ["LIST_LIMIT", "ROW_LIMIT", "ReadingProgress", "render_stock_summary"]
+__all__ = ["LIST_LIMIT", "ROW_LIMIT", "ReadingProgress", "render_stock_summary",
+           "stock_check_json"]
 
 #: Above this many stock lines the rows are summarised unless ``--rows`` is given.
 ROW_LIMIT = 200
 #: Entries shown of a long list (no pieces left, notes) when the rows are summarised.
 LIST_LIMIT = 20
+
+#: Stock files repeat their values: each (value, unit) is formatted once.
+format_quantity = functools.lru_cache(maxsize=1 << 16)(_format_quantity)
 
 _SERIES_ORDER = ("E3", "E6", "E12", "E24", "E48", "E96", "E192", "off-series")
 _R_COLUMNS = ("part id", "value", "tol", "power", "tempco", "qty", "series", "location")
@@ -79,7 +85,7 @@ def _plain_table(console: Console, title: str, columns: Sequence[str], right: se
 
     out = [title, line(columns), "  ".join("-" * w for w in widths)]
     out.extend(line(row) for row in cells)
-    console.out("\n".join(out), highlight=False)
+    console.file.write("\n".join(out) + "\n")  # plain text, past rich's per-line processing
 
 
 def _shortened(items: list[str], limit: int | None) -> str:
@@ -217,3 +223,44 @@ class ReadingProgress:
     def __exit__(self, *exc: object) -> None:
         if self.bar is not None:
             self.bar.stop()
+
+
+_SLOT = "\x00{}\x00"  # strings no stock file can hold (NUL is refused)
+
+
+def stock_check_json(payload: dict[str, object]) -> str:
+    """The ``stock check --json`` object: indented, one part (one series entry) per line.
+
+    Everything but the two long members, ``parts`` and ``summary.series_of_value``, goes
+    through :func:`stockbias.render.json_out.dumps`; their items (plain numbers, strings,
+    booleans, None) are encoded by the C encoder, one per line, which keeps 100 000 parts
+    to about a second.
+    """
+    from .json_out import clean, dumps
+
+    encode = json.JSONEncoder(ensure_ascii=False, allow_nan=False).encode
+    parts = payload.get("parts")
+    summary = payload.get("summary")
+    series = summary.get("series_of_value") if isinstance(summary, dict) else None
+    if not isinstance(parts, list) or not isinstance(series, dict):
+        return dumps(payload)
+    slim = dict(payload, parts=_SLOT.format("parts"),
+                summary=dict(summary, series_of_value=_SLOT.format("series")))
+    head = dumps(slim)
+    try:
+        part_lines = [encode(part) for part in parts]
+    except (TypeError, ValueError):  # anything beyond plain values: the general path
+        part_lines = [encode(clean(part)) for part in parts]
+    series_lines = [f"{encode(str(k))}: {encode(v)}" for k, v in series.items()]
+
+    def block(lines: list[str], indent: str, empty: str) -> str:
+        if not lines:
+            return empty
+        return empty[0] + "\n" + indent + f",\n{indent}".join(lines) + "\n" \
+            + indent[:-2] + empty[1]
+
+    for name, lines, indent, empty in (("parts", part_lines, "    ", "[]"),
+                                       ("series", series_lines, "      ", "{}")):
+        head = head.replace(json.dumps(_SLOT.format(name), ensure_ascii=False),
+                            block(lines, indent, empty), 1)
+    return head
