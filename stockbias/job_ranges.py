@@ -46,6 +46,8 @@ class Plausible:
     def _show(self, value: float) -> str:
         if self.whole or (self.unit == "" and value == int(value) and abs(value) < 1e7):
             return str(int(value))
+        if self.unit == "s":  # seconds read best without a prefix: 86400 s, not 86.4 ks
+            return f"{value:g} s"
         return format_quantity(value, self.unit)
 
     def words(self) -> str:
@@ -108,8 +110,8 @@ PLAUSIBLE: dict[str, Plausible] = {
     "ambient_min_c": Plausible(-60.0, 200.0, "°C", _TEMP),
     "ambient_max_c": Plausible(-60.0, 200.0, "°C", _TEMP),
     # [small_signal]
-    "load": Plausible(1.0, 1e9, "ohm", "loads from 1 Ω (a loudspeaker coil is more) to 1 GΩ "
-                      "(an electrometer input)"),
+    "load": Plausible(1.0, 1e9, "ohm", "from 1 Ω (below any loudspeaker) to 1 GΩ (an "
+                      "electrometer input)"),
     # [build]
     "quantity": Plausible(1, 10_000_000, "", "boards built in one batch", whole=True),
     "default_tolerance_pct": Plausible(0.0, 50.0, "%", "resistor tolerances run from 0.01 % "
