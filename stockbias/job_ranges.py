@@ -110,8 +110,8 @@ PLAUSIBLE: dict[str, Plausible] = {
     "ambient_min_c": Plausible(-60.0, 200.0, "°C", _TEMP),
     "ambient_max_c": Plausible(-60.0, 200.0, "°C", _TEMP),
     # [small_signal]
-    "load": Plausible(1.0, 1e9, "ohm", "from 1 Ω (below any loudspeaker) to 1 GΩ (an "
-                      "electrometer input)"),
+    "load": Plausible(1.0, 1e9, "ohm", "1 Ω is below any loudspeaker, 1 GΩ an electrometer "
+                      "input"),
     # [build]
     "quantity": Plausible(1, 10_000_000, "", "boards built in one batch", whole=True),
     "default_tolerance_pct": Plausible(0.0, 50.0, "%", "resistor tolerances run from 0.01 % "
