@@ -239,3 +239,14 @@ def test_reserve_takes_from_a_file_with_multi_line_notes(tmp_path: Path) -> None
     res = reserve_stock(path, lambda inv: {"R2": 5})
     assert [(c.part_id, c.line, c.before, c.after) for c in res.changes] == [("R2", 4, 20, 15)]
     assert {r.part_id: r.qty for r in read_inventory(path).resistors} == {"R1": 10, "R2": 15}
+
+
+def test_reserve_refuses_a_file_with_a_line_splitter_and_writes_nothing(tmp_path: Path) -> None:
+    ghost = ROW.format(pid="GHOST", qty=500, note="")
+    text = f"{HEADER}\n{ROW.format(pid='R1', qty=10, note='a' + chr(0x2028) + ghost)}\n"
+    path = write(tmp_path, text)
+    before = path.read_bytes()
+    with pytest.raises(StockFileError):
+        reserve_stock(path, lambda inv: {"GHOST": 5})
+    assert path.read_bytes() == before
+    assert not list(tmp_path.glob("*.bak"))
