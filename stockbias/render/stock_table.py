@@ -17,7 +17,7 @@ from collections.abc import Sequence
 
 from rich.console import Console
 from rich.markup import escape
-from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+from rich.progress import BarColumn, Progress, TaskID, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
 from ..parts import MODEL_CARD_FIELDS, TRANSISTOR_DEFAULTS, Inventory, Resistor, Transistor
@@ -204,7 +204,7 @@ class ReadingProgress:
         self.delay_s = delay_s
         self.started = time.monotonic()
         self.bar: Progress | None = None
-        self.task = 0
+        self.task = TaskID(0)
 
     def __call__(self, done: int, total: int) -> None:
         if self.bar is None:
@@ -244,8 +244,9 @@ def stock_check_json(payload: dict[str, object]) -> str:
     series = summary.get("series_of_value") if isinstance(summary, dict) else None
     if not isinstance(parts, list) or not isinstance(series, dict):
         return dumps(payload)
-    slim = dict(payload, parts=_SLOT.format("parts"),
-                summary=dict(summary, series_of_value=_SLOT.format("series")))
+    assert isinstance(summary, dict)
+    slim = {**payload, "parts": _SLOT.format("parts"),
+            "summary": {**summary, "series_of_value": _SLOT.format("series")}}
     head = dumps(slim)
     try:
         part_lines = [encode(part) for part in parts]
