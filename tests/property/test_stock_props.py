@@ -136,4 +136,4 @@ def test_rows_written_by_the_csv_module_read_back_exactly(
         if tempco is None:
             assert got.tempco_ppm is None
         else:  # a written sign makes a signed coefficient; a bare number is a magnitude
-            assert (got.tempco_ppm, got.tempco_signed) == (tempco, tempco < 0)
+            assert (got.tempco_ppm, got.tempco_signed) == (tempco, repr(tempco)[0] == "-")
