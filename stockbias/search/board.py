@@ -174,7 +174,7 @@ def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe
               progress: Progress | None = None, stock: bool = True,
               limit_transistors: bool = True, skipped: dict[str, int] | None = None
               ) -> tuple[str, list[list[Choice]], list[dict[str, int]], dict[str, float],
-                         BoardModel, dict[tuple, CheckResult | None], dict[str, int]]:
+                         BoardModel, dict[tuple, CheckResult | None], dict[str, Any]]:
     """Ranked board choices; every returned stage passes :func:`analyze_stage`.
 
     ``limit_transistors`` False: transistor lines are not held to their stock (they are not
@@ -189,8 +189,8 @@ def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe
                     universe.qty, tq, job.build.quantity)
     bm = BoardModel(setups, info, stock=stock)
     verified: dict[tuple, CheckResult | None] = {}
-    stats = {"reverify_rounds": 0, "stage_designs_verified": 0,
-             "stage_designs_forbidden": 0}
+    stats: dict[str, Any] = {"reverify_rounds": 0, "stage_designs_verified": 0,
+                             "stage_designs_forbidden": 0}
     ranked: list[list[Choice]] = []
     values_out: list[dict[str, int]] = []
     bound: dict[str, float] = {}

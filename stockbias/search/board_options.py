@@ -27,6 +27,7 @@ design that fails it is forbidden in the model and the board is solved again.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -161,7 +162,8 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
         pieces.append({r: v[ok] for r, v in part.idx.items()})
         done = span[1]
     n_first = len(cands[plan.enumerated[0]])
-    scan = {"complete": done >= n_first, "rows_done": done, "rows_total": n_first}
+    scan: dict[str, Any] = {"complete": done >= n_first, "rows_done": done,
+                            "rows_total": n_first}
     idx = {r: np.concatenate([p[r] for p in pieces]) if pieces else np.zeros(0, dtype=np.int64)
            for r in (*plan.enumerated, plan.interval)}
     core_roles = (*plan.enumerated, plan.interval)

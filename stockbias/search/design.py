@@ -75,6 +75,8 @@ __all__ = ["Design", "DesignResult", "design", "objective_key"]
 
 _REL = 1e-12
 EXPONENTIAL_MAX_DESIGNS = 300_000
+#: A group (rows searched best-first together) holds at most this many times the row budget.
+GROUP_FACTOR = 4
 #: With pairs on, the enumerated roles take pairs only while rows × transistors stay below this.
 PAIR_ROW_LIMIT = 20_000_000
 
@@ -139,7 +141,7 @@ class _Search:
                  progress: Progress | None, row_budget: int = ROW_BUDGET):
         self.job, self.inv, self.top, self.deadline = job, inventory, top, deadline
         #: rows built at once (one unit), and rows held at once (one group)
-        self.row_budget, self.group_rows = int(row_budget), 16 * int(row_budget)
+        self.row_budget, self.group_rows = int(row_budget), GROUP_FACTOR * int(row_budget)
         self.progress = progress
         self.stage = job.stage
         self.objectives = tuple(job.search.objectives)
@@ -156,6 +158,7 @@ class _Search:
         self.pair_roles_limited: list[str] = []
         self.timed_out = False
         self.coverage = Coverage(len(self.transistors))
+        self._seen = self._mark = 0.0     # fractions of the row order loaded / searched
         self.stats: dict[str, int] = {"cores": 0, "designs_vertex_checked": 0,
                                       "designs_kept": 0, "verified": 0, "row_units": 0,
                                       "row_groups": 0}
@@ -179,8 +182,11 @@ class _Search:
         """The row order: (network, candidates, range of the first enumerated role,
         transistor index, transistor), network by network, range by range (each at most
         ``row_budget`` rows), transistor by transistor."""
-        for net_name in self.networks:
-            cands = self.network_cands(net_name)
+        nets = [(n, self.network_cands(n)) for n in self.networks]
+        per = [1 if self.job.search.model == "exponential"
+               else len(row_slices(n, c, self.row_budget)) for n, c in nets]
+        total = max(1, sum(per) * len(self.transistors))
+        for net_name, cands in nets:
             if self.job.search.model == "exponential":
                 self.coverage.start(net_name, "", [0.0])
                 spans = [(0, 1)]
@@ -191,6 +197,7 @@ class _Search:
             for span in spans:
                 for qi, q in enumerate(self.transistors):
                     yield net_name, cands, span, qi, q
+                    self._seen += 1 / total
 
     def load(self, net_name: str, cands: dict[str, RoleCandidates], span: tuple[int, int],
              qi: int, q: Transistor, kappa: np.ndarray) -> _Block | None:
@@ -634,10 +641,11 @@ class _Search:
         bids, rids, keys, weights = [], [], [], []
         for k in group:
             b = self.blocks[k]
+            assert b.lb is not None and (b.exact or b.rows is not None)
             bids.append(np.full(b.n_rows, k))
             rids.append(np.arange(b.n_rows))
             keys.append(b.lb)
-            weights.append(np.ones(b.n_rows, dtype=np.int64) if b.exact
+            weights.append(np.ones(b.n_rows, dtype=np.int64) if b.rows is None
                            else (b.rows.i1 - b.rows.i0))
         m = len(self.objectives)
         bid = np.concatenate(bids) if bids else np.zeros(0, dtype=np.int64)
@@ -681,7 +689,10 @@ class _Search:
                 chunk = min(chunk * 2, 65536)
                 new = self.kappa()
                 if self.progress is not None:
-                    self.progress("searching", float(done.mean()) if done.size else 1.0)
+                    share = float(done.mean()) if done.size else 1.0
+                    # the groups searched before, and this group's share of the row order
+                    self.progress("searching", min(1.0, self._mark
+                                                   + share * (self._seen - self._mark)))
                 if not finite and np.all(new < _BIG):
                     kappa, restart = new, True
                     break
@@ -696,6 +707,7 @@ class _Search:
                 batch *= 4
         for k in group:
             self.blocks[k].release()
+        self._mark = self._seen
         return complete, bound, kappa
 
 
