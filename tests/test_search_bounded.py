@@ -276,3 +276,30 @@ def test_a_board_whose_options_were_cut_is_never_optimal():
         assert cut.startswith("the time limit cut the pre-pass, so the status is not a proof")
         assert cut in r.assumptions
         assert "stage 'input'" in cut or "stage 'driver'" in cut
+
+
+def test_cli_design_cut_by_the_time_limit_says_so(monkeypatch):
+    """`stockbias design`: a search the limit stops before anything is searched exits 1 with
+    status unknown and the unsearched part named (a deadline counted in checks stands in
+    for the clock)."""
+    import json
+    from pathlib import Path
+
+    from typer.testing import CliRunner
+
+    import stockbias.search.design as design_module
+    from stockbias.cli.app import app
+
+    samples = Path(__file__).resolve().parent.parent / "inventory_samples"
+    monkeypatch.setattr(design_module, "Deadline", lambda limit: Deadline.after_checks(1))
+    args = ["design", str(samples / "line_driver_job.toml"), "--inventory",
+            str(samples / "workshop_drawers.csv")]
+    result = CliRunner().invoke(app, [*args, "--json"])
+    assert result.exit_code == 1, result.output
+    payload = json.loads(result.stdout)
+    assert payload["status"] == "unknown" and payload["designs"] == []
+    assert payload["stats"]["prepass_cut"].startswith("the time limit cut the pre-pass")
+    assert payload["stats"]["prepass_cut"] in payload["assumptions"]
+    table = CliRunner().invoke(app, args)
+    assert table.exit_code == 1
+    assert "the time limit cut the pre-pass" in " ".join(table.output.split())

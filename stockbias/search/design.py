@@ -14,6 +14,24 @@ Data flow
     :mod:`.solve`) picks the lexicographic top K from what is left, with the stock and
     BOM constraints → every pick re-verified before it is shown.
 
+Bounded memory
+    The rows of the enumerated roles (R1 × R2, RB × RE, RB) are never built whole: a
+    *unit* is one network, one range of the first enumerated role's candidates (at most
+    ``row_budget`` rows, :func:`.prepass.row_slices`) and one transistor.  Units are
+    built in that order and only their rows with a non-empty cut and a lower-bound key
+    ≤ κ are kept; the kept rows are searched best-first in *groups* of at most
+    ``GROUP_FACTOR × row_budget`` rows, then dropped.  κ only falls, so a row skipped
+    against the κ of its moment could never rank in the top K: any budget gives the
+    same designs (tested).
+
+Time limit
+    One :class:`.deadline.Deadline` covers the command.  The row scan and the
+    best-first search stop at 90 % of it (checked between units, chunks and batches);
+    CP-SAT ranks and re-verifies what was found in the rest.  A run stopped early is
+    ``feasible`` (designs found) or ``unknown`` (none), never ``optimal`` or
+    ``infeasible``, and ``stats["prepass_cut"]`` (also in ``assumptions``) says which
+    part of the row order was searched (:mod:`.scan_coverage`).
+
 What is proven
     Rejections are exact at a vertex (see :mod:`.prepass`); lower bounds are
     componentwise lower bounds of the objective vector (so lexicographic lower bounds);
