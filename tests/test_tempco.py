@@ -173,7 +173,7 @@ def _dense_ic(re_tempco: float, signed_values: list[float]) -> tuple[float, floa
 ])
 def test_worst_case_bounds_equal_a_dense_evaluation(tc, signed, coefficients) -> None:
     spec = _temperature_free_spec(tc, signed)
-    b = worst_case(spec, quantities=["ic"]).bounds["ic"]
+    b = worst_case(spec).bounds["ic"]
     lo, hi = _dense_ic(tc, coefficients)
     # source: the dense grid above (it holds every corner, so equality to rounding)
     assert float(b.min) == pytest.approx(lo, rel=1e-12)
@@ -186,7 +186,7 @@ def test_the_sign_moves_the_bound_the_right_way() -> None:
     # takes the worse of both on each side (hand calculation).
     def bounds(tc, signed):
         job, parts, q = _stage_parts(tc, signed)
-        b = worst_case(build_spec(job, job.stage, parts, q), quantities=["ic"]).bounds["ic"]
+        b = worst_case(build_spec(job, job.stage, parts, q)).bounds["ic"]
         return float(b.min), float(b.max)
 
     neg, pos, either = bounds(-350.0, True), bounds(350.0, True), bounds(350.0, False)
