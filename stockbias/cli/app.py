@@ -86,9 +86,9 @@ class _OneLineErrors(TyperGroup):
         except StockbiasError as exc:
             typer.echo(exc.one_line(), err=True)
             sys.exit(exc.exit_code)
-        except ClickException as exc:
+        except ClickException as exc:  # a file typer could not open, say: bad input
             typer.echo(f"stockbias: {_flatten(exc.format_message())}", err=True)
-            sys.exit(exc.exit_code)
+            sys.exit(EXIT_BAD_INPUT)
         except (typer.Abort, KeyboardInterrupt):
             _interrupted()
         except OSError as exc:
