@@ -118,6 +118,8 @@ ReadProgress = Callable[[int, int], None]
 def _line_fault_problems(faults: list[tuple[int, int, str]], text: str, lines: list[str],
                          delimiter: str, columns: list[str]) -> list[Problem]:
     """One problem per refused character, naming the column where the line is a record."""
+    if not faults:
+        return []
     starts = [0]
     for raw in lines:
         starts.append(starts[-1] + len(raw))
