@@ -330,3 +330,15 @@ def test_worst_case_tj_is_the_thermal_summary_figure() -> None:
     assert b.max == pytest.approx(ta + 200.0 * float(np.asarray(at_tj.op.pd)), abs=1e-6)
     vertices, _ = vertex_points(spec)
     assert np.max(self_heated_temperature(spec, vertices)) <= b.max + 1e-4
+
+
+def test_bounds_of_a_few_quantities_alone() -> None:
+    # Asking for IC and VCE only (no products to refine) gives the same IC and VCE bounds,
+    # saturation inside the box included.
+    spec = make_spec("divider", theta_ja=float("nan"), RC=6.8e3)
+    few = worst_case(spec, quantities=["ic", "vce"])
+    full = worst_case(spec)
+    assert set(few.bounds) == {"ic", "vce"}
+    for q in ("ic", "vce"):
+        assert few.bounds[q].max == pytest.approx(full.bounds[q].max, rel=1e-9)
+        assert few.bounds[q].min == pytest.approx(full.bounds[q].min, rel=1e-9)

@@ -191,7 +191,7 @@ def edge_maxima(spec: StageSpec, axes: tuple[str, ...], edge_u: np.ndarray,
     """
     k = len(axes)
     n_edges = edge_axis.size
-    if n_edges == 0:
+    if n_edges == 0 or not edge_vals:
         return np.empty((0, k))
     grid = np.arange(1, _EDGE_POINTS + 1) / (_EDGE_POINTS + 1)
     base_u, axis_of, lo, hi, owner = [], [], [], [], []

@@ -294,14 +294,16 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
         # Starts: the best rows so far, the centre, and the best points of a grid along
         # every edge (an interior extreme is usually reached from an edge with the other
         # axes at their favourable ends).
-        edge_u, edge_axis = edge_grid(bits)
-        edge_ev = evaluate(spec, point_at_unit(spec, axes, edge_u), small_signal=any(
-            t[0] in SMALL_SIGNAL_QUANTITIES for t in targets))
-        edge_vals = {t: np.nan_to_num(t[1] * np.asarray(edge_ev.quantities[t[0]], dtype=float)
-                                      .reshape(-1), nan=-np.inf) for t in targets}
-        line_u = edge_maxima(spec, axes, edge_u, edge_axis, edge_vals)
-        if line_u.size:
-            add_points(line_u)
+        if targets:
+            edge_u, edge_axis = edge_grid(bits)
+            edge_ev = evaluate(spec, point_at_unit(spec, axes, edge_u), small_signal=any(
+                t[0] in SMALL_SIGNAL_QUANTITIES for t in targets))
+            edge_vals = {t: np.nan_to_num(t[1] * np.asarray(edge_ev.quantities[t[0]],
+                                                             dtype=float).reshape(-1),
+                                          nan=-np.inf) for t in targets}
+            line_u = edge_maxima(spec, axes, edge_u, edge_axis, edge_vals)
+            if line_u.size:
+                add_points(line_u)
         all_u = np.concatenate(row_u)
         starts = {}
         for name, sign in targets:
