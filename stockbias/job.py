@@ -64,9 +64,10 @@ _SECTIONS: dict[str, dict[str, str | None]] = {
     "supply": {"volts": "V", "tolerance_pct": "%", "negative_volts": "V",
                "negative_tolerance_pct": "%", "mains_derived": None},
     "target": {"ic": "A", "ic_window_pct": "%", "ic_min": "A", "ic_max": "A", "vce_min": "V",
-               "swing_pk": "V", "gain_min": "", "gain_max": "", "yield_min": ""},
+               "swing_pk": "V", "gain_min": "", "gain_max": "", "yield_min": "",
+               "rin_min": "ohm", "divider_ratio_min": ""},
     "limits": {"supply_power_max": "W", "resistor_derating": "", "tj_max": "°C",
-               "derating_knee_c": "°C", "derating_zero_c": "°C"},
+               "derating_knee_c": "°C", "derating_zero_c": "°C", "supply_current_max": "A"},
     "environment": {"ambient_min_c": "°C", "ambient_max_c": "°C"},
     "small_signal": {"load": "ohm", "re_bypassed": None},
     "build": {"quantity": "", "allow_pairs": None, "default_tolerance_pct": "%"},
@@ -226,7 +227,7 @@ class _Parser:
         if vce_min < 0:
             raise self.error("vce_min must not be negative", section, "vce_min", t["vce_min"],
                              occurrence)
-        for key in ("swing_pk", "gain_min", "gain_max"):
+        for key in ("swing_pk", "gain_min", "gain_max", "rin_min"):
             if q[key] is not None and q[key] <= 0:
                 raise self.error(f"{key} must be positive", section, key, t[key], occurrence)
         if q["gain_min"] is not None and q["gain_max"] is not None and \
@@ -237,7 +238,8 @@ class _Parser:
             raise self.error("yield_min is a fraction: more than 0 and at most 1", section,
                              "yield_min", t["yield_min"], occurrence)
         return Target(ic_min, ic_max, vce_min, q["swing_pk"], q["gain_min"], q["gain_max"],
-                      q["yield_min"], ic_set=q["ic"] if not has_bounds else None)
+                      q["yield_min"], ic_set=q["ic"] if not has_bounds else None,
+                      rin_min=q["rin_min"], divider_ratio_min=q["divider_ratio_min"])
 
     def limits(self, t: dict[str, Any], section: str, base: Limits | None = None,
                occurrence: int = 0) -> Limits:
@@ -245,9 +247,9 @@ class _Parser:
         base = base or Limits()
         q: dict[str, Any] = {k: self.quantity(t, section, k, getattr(base, k), occurrence)
                              for k in _SECTIONS["limits"]}
-        if q["supply_power_max"] is not None and q["supply_power_max"] <= 0:
-            raise self.error("supply_power_max must be positive", section, "supply_power_max",
-                             t["supply_power_max"], occurrence)
+        for key in ("supply_power_max", "supply_current_max"):
+            if q[key] is not None and q[key] <= 0:
+                raise self.error(f"{key} must be positive", section, key, t[key], occurrence)
         if not 0 < q["resistor_derating"] <= 1:
             raise self.error("resistor_derating is the fraction of the derated rating a part "
                              "may use: more than 0 and at most 1", section, "resistor_derating",

@@ -68,6 +68,8 @@ class Target:
     gain_max: float | None = None
     yield_min: float | None = None
     ic_set: float | None = None  # the job's ``ic`` when the window is ic ± ic_window_pct, A
+    rin_min: float | None = None  # input resistance incl. the bias network, ohm
+    divider_ratio_min: float | None = None  # I(R2)/IB at every corner (divider); 0: none
 
     @property
     def ic(self) -> float:
@@ -85,6 +87,7 @@ class Limits:
     tj_max: float | None = None
     derating_knee_c: float = 70.0
     derating_zero_c: float = 155.0
+    supply_current_max: float | None = None  # A, drawn from the supply at the worst corner
 
 
 @dataclass(frozen=True)

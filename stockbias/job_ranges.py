@@ -94,9 +94,16 @@ PLAUSIBLE: dict[str, Plausible] = {
     "gain_min": Plausible(1e-3, 1e6, "", "the magnitude of a stage's voltage gain"),
     "gain_max": Plausible(1e-3, 1e6, "", "the magnitude of a stage's voltage gain"),
     "yield_min": Plausible(0.0, 1.0, "", "a fraction: 0.95 is 95 %", low_open=True),
+    "rin_min": Plausible(1.0, 1e9, "ohm", "an input resistance from 1 Ω up to an "
+                         "electrometer's 1 GΩ"),
+    "divider_ratio_min": Plausible(0.0, 1000.0, "", "the divider current as a multiple of "
+                                   "the base current; 0 drops the rule, 10 is the rule of "
+                                   "thumb, beyond 1000 the divider carries more than IC"),
     # [limits]
     "supply_power_max": Plausible(1e-6, 10e3, "W", "1 µW is below any biased stage, 10 kW "
                                   "beyond any bias network"),
+    "supply_current_max": Plausible(100e-9, 100.0, "A", "the current drawn from the supply, "
+                                    "from 100 nA up to beyond any biased stage's"),
     "resistor_derating": Plausible(0.0, 1.0, "", "the fraction of the derated rating a part "
                                    "may use", low_open=True),
     "tj_max": Plausible(25.0, 250.0, "°C", "silicon junctions are rated 125 to 200 °C; "

@@ -128,9 +128,18 @@ def stage_limits(job: Job, stage: Stage, spec: StageSpec,
     if t.gain_max is not None:
         out.append(Limit("gain_max", "gain_abs", "max", t.gain_max, "V/V",
                          "|voltage gain| (0 where saturated or cut off)", outside_active=0.0))
+    if t.rin_min is not None:
+        out.append(Limit("rin_min", "rin", "min", t.rin_min, "ohm",
+                         "input resistance with the bias network, as the source sees it"))
+    if t.divider_ratio_min and spec.network.name == "divider":
+        out.append(Limit("divider_ratio_min", "divider_ratio", "min", t.divider_ratio_min, "",
+                         "divider current I(R2) as a multiple of the base current"))
     if lim.supply_power_max is not None:
         out.append(Limit("supply_power", "supply_power", "max", lim.supply_power_max, "W",
                          "power drawn from the supplies"))
+    if lim.supply_current_max is not None:
+        out.append(Limit("supply_current_max", "supply_current", "max", lim.supply_current_max,
+                         "A", "current drawn from the supply"))
     for role, rating in resistor_ratings.items():
         allowed = allowed_resistor_power(rating, hot, lim.resistor_derating,
                                          lim.derating_knee_c, lim.derating_zero_c)

@@ -44,6 +44,7 @@ import numpy as np
 from ..topologies import Network, get_network
 from . import device
 from .operating_point import ACTIVE, OperatingPoint, solve_constant_vbe, solve_exponential
+from .rail_current import divider_ratio, supply_current
 from .small_signal import parallel, r_o, r_pi, stage_response, transconductance
 
 __all__ = [
@@ -463,6 +464,9 @@ def evaluate(spec: StageSpec, point: StagePoint, *, small_signal: bool = True,
     for role in spec.resistors:
         q[f"p_{role}"] = op.resistor_power(role)
     q["tj"] = ambient + spec.device.theta_ja_effective * op.pd
+    q["supply_current"] = supply_current(spec.network, op)
+    if spec.network.name == "divider":
+        q["divider_ratio"] = divider_ratio(op)
     q["swing_to_saturation"] = op.vce - np.asarray(d.vce_sat, dtype=float)
     if not small_signal:
         return Evaluation(op=op, quantities=q, beta=np.asarray(beta), temp_c=temp_c)
