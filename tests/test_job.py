@@ -272,3 +272,14 @@ def test_byte_order_mark_is_ignored(tmp_path: Path) -> None:
     assert job.supply.volts == 12.0
     assert job.stage.target.ic_min == pytest.approx(1.35e-3)   # 1.5 mA − 10 %
     assert parse_job("\ufeff" + BASE).supply.volts == 12.0
+
+
+def test_every_numeric_job_key_has_a_plausible_range() -> None:
+    import stockbias.job as job_module
+
+    # [keep_purpose] percentages are bounded by the reader's own table of them
+    own = set(getattr(job_module, "_KEEP_RANGES", {}))
+    missing = [f"[{section}] {key}" for section, keys in _SECTIONS.items()
+               for key, unit in keys.items()
+               if unit is not None and key not in PLAUSIBLE and key not in own]
+    assert missing == []
