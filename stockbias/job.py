@@ -288,7 +288,7 @@ class _Parser:
         if not isinstance(bypassed, bool):
             raise self.error("re_bypassed must be true or false", "small_signal", "re_bypassed",
                              bypassed)
-        return SmallSignal(load, bypassed)
+        return SmallSignal(load, bypassed, tuple(k for k in ("load", "re_bypassed") if k in t))
 
     def build(self, doc: dict[str, Any]) -> Build:
         t = self.table(doc, "build")

@@ -111,6 +111,7 @@ class SmallSignal:
 
     load: float = math.inf
     re_bypassed: bool = True
+    stated: tuple[str, ...] = ()  # the keys the job gave; the others took their defaults
 
 
 @dataclass(frozen=True)

@@ -118,8 +118,11 @@ swing_pk = "0.5 V"
 gain_min = 1.5
 gain_max = 3
 yield_min = 0.5
+rin_min = "100"
+divider_ratio_min = 5
 [limits]
 supply_power_max = "100 mW"
+supply_current_max = "20 mA"
 resistor_derating = 0.6
 tj_max = "125 °C"
 derating_knee_c = 70
@@ -192,6 +195,8 @@ def test_every_job_key_through_every_output(tmp_path: Path, shelf: Path, job_tex
             "300"]
     expected = {"ic_min", "ic_max", "vce_min", "swing_saturation", "swing_cutoff", "gain_min",
                 "gain_max", "supply_power", "yield_min"}
+    if "rin_min" in job_text:
+        expected |= {"rin_min", "divider_ratio_min", "supply_current_max"}
 
     js = runner.invoke(app, [*base, "--json"])
     assert js.exit_code in (0, 1), js.output

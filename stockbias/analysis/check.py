@@ -23,6 +23,7 @@ from ..topologies import get_network
 from . import device
 from .constraints import ConstraintResult, Limit, evaluate_limits, ic_margin, stage_limits
 from .montecarlo import MonteCarloResult, monte_carlo
+from .purpose import PURPOSE_QUANTITIES, Purpose, stage_purpose
 from .stage import DeviceSpec, StageSpec, evaluate, solve_point
 from .thermal import self_heated_point
 from .worst_case import REPORTED, WorstCase, point_at_unit, rss, worst_case
@@ -30,10 +31,11 @@ from .worst_case import REPORTED, WorstCase, point_at_unit, rss, worst_case
 __all__ = ["CheckResult", "analyze", "analyze_stage", "build_spec", "check_roles",
            "not_active_reason"]
 
-NOMINAL_KEYS = ("ic", "ib", "ie", "vb", "vc", "ve", "vce", "supply_power", "pd")
+NOMINAL_KEYS = ("ic", "ib", "ie", "vb", "vc", "ve", "vce", "supply_power", "pd",
+                "supply_current")
 #: Nominal figures that only mean something in the active region (β is IC/IB there; in
 #: saturation IC/IB is a forced ratio, not the device's current gain).
-ACTIVE_ONLY = ("beta", "gm", "gain", "rin")
+ACTIVE_ONLY = ("beta", "gm", "gain", "rin", "swing_pk")
 STABILITY_KEYS = ("s_icbo", "s_vbe", "s_beta")
 RSS_KEYS = ("ic", "vce")
 
@@ -67,6 +69,7 @@ class CheckResult:
     cautions: list[str]
     axes: tuple[str, ...] = field(default_factory=tuple)
     ic_target: float = math.nan  # A: the target current the IC margin is a fraction of
+    purpose: Purpose | None = None  # gain, input resistance, swing, supply current
 
     @property
     def ok(self) -> bool:
@@ -101,6 +104,7 @@ class CheckResult:
             "thermal": self.thermal,
             "assumptions": self.assumptions, "warnings": self.warnings,
             "cautions": self.cautions,
+            "purpose": None if self.purpose is None else self.purpose.to_dict(),
         }
 
 
@@ -131,7 +135,10 @@ def _nominal(spec: StageSpec) -> dict[str, object]:
         out[f"p_{role}"] = _scalar(ev.quantities[f"p_{role}"])
     out["region"] = region
     out["temperature_c"] = spec.nominal_ambient_c
-    values = {"beta": ev.beta, **{k: ev.quantities[k] for k in ACTIVE_ONLY if k != "beta"}}
+    q = ev.quantities
+    values = {"beta": ev.beta, "swing_pk": np.minimum(q["swing_to_saturation"],
+                                                      q["swing_to_cutoff"]),
+              **{k: q[k] for k in ACTIVE_ONLY if k not in ("beta", "swing_pk")}}
     for k in ACTIVE_ONLY:  # never active-region figures for a saturated or cut-off point
         out[k] = _scalar(values[k]) if region == "active" else None
     out["not_active_reason"] = not_active_reason(region)
@@ -211,7 +218,7 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
     extra_q = [lim.quantity for lim in limits if lim.quantity not in REPORTED
                and lim.quantity not in ("non_active_corners", "vceo_needed")]
     wc = worst_case(spec, quantities=[*REPORTED, *(f"p_{r}" for r in spec.resistors),
-                                      *dict.fromkeys(extra_q)])
+                                      *dict.fromkeys([*extra_q, *PURPOSE_QUANTITIES])])
     low = {q: np.asarray(b.min) for q, b in wc.bounds.items()}
     high = {q: np.asarray(b.max) for q, b in wc.bounds.items()}
     low["non_active_corners"] = high["non_active_corners"] = np.asarray(
@@ -298,7 +305,8 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
         transistor=transistor, parts=dict(parts), nominal=nominal, worst=wc, rss=rss_out,
         monte_carlo=mc, constraints=results, stability=_stability(spec, region),
         thermal=thermal, assumptions=assumptions, warnings=warnings,
-        cautions=cautions(job, results, thermal), axes=wc.axes, ic_target=stage.target.ic)
+        cautions=cautions(job, results, thermal), axes=wc.axes, ic_target=stage.target.ic,
+        purpose=stage_purpose(job, nominal, wc))
 
 
 def cautions(job: Job, results: list[ConstraintResult], thermal: dict[str, object]) -> list[str]:

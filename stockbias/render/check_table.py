@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from ..analysis.check import CheckResult
@@ -10,7 +11,8 @@ from ..analysis.constraints import IC_MARGIN_DEFINITION, ConstraintResult
 from ..job import Job
 from ..units import format_quantity
 
-__all__ = ["CORNER_LEGEND", "corner_text", "render_check", "render_constraints"]
+__all__ = ["CORNER_LEGEND", "corner_text", "purpose_rows", "render_check", "render_constraints",
+           "render_purpose"]
 
 _UNITS = {"ic": "A", "ib": "A", "ie": "A", "vb": "V", "vc": "V", "ve": "V", "vce": "V",
           "supply_power": "W", "pd": "W", "tj": "°C", "gain": "", "rin": "ohm"}
@@ -82,7 +84,8 @@ def render_constraints(console: Console, constraints: list[ConstraintResult],
     ordered = sorted(constraints, key=lambda c: (c.ok, c.name))
     for c in ordered:
         sign = "≥" if c.name in ("ic_min", "vce_min", "swing_saturation", "swing_cutoff",
-                                 "gain_min", "yield_min") else "≤"
+                                 "gain_min", "yield_min", "rin_min",
+                                 "divider_ratio_min") else "≤"
         mark = "[green]ok[/green]" if c.ok else "[bold red]FAIL[/bold red]"
         limit = f"{sign} {_q(c.limit, c.unit)}"
         worst = _q(c.worst, c.unit) if c.worst == c.worst else "n/a"
@@ -91,6 +94,72 @@ def render_constraints(console: Console, constraints: list[ConstraintResult],
         table.add_row(mark, f"{c.name}: {c.description}", limit, worst, margin,
                       corner_text(c.corner))
     console.print(table)
+
+
+#: figure → the limits that bound it (constraint names) and the sign each shows
+_FIGURE_LIMITS = {"gain": (("gain_min", "≥"), ("gain_max", "≤")), "rin": (("rin_min", "≥"),),
+                  "swing_pk": (("swing_saturation", "≥"),),
+                  "supply_current": (("supply_current_max", "≤"),)}
+
+
+def purpose_rows(result: CheckResult) -> list[dict[str, str]]:
+    """The Stage block as text rows: figure, nominal, worst case, limit (with its verdict).
+
+    The worst case of the gain is its |gain| range; of input resistance and swing the
+    smallest, of the supply current the largest, each at the worst corner.
+    """
+    p = result.purpose
+    if p is None:
+        return []
+    by = {c.name: c for c in result.constraints}
+    rows = []
+    for name, f in p.figures.items():
+        unit = "" if f.unit == "V/V" else f.unit
+
+        def show(x: float | None, unit: str = unit) -> str:
+            if x is None or x != x:
+                return "n/a"
+            return f"{x:.3g}" if unit == "" else format_quantity(x, unit)
+
+        if name == "gain":
+            worst = f"|gain| {show(f.low)} … {show(f.high)}"
+        else:
+            worst = ("≥ " if name != "supply_current" else "≤ ") + show(f.worst)
+        limits = []
+        for cname, sign in _FIGURE_LIMITS[name]:
+            c = by.get(cname)
+            if c is not None:
+                verdict = "ok" if c.ok and (cname != "swing_saturation" or
+                                            by["swing_cutoff"].ok) else "FAIL"
+                limits.append(f"{sign} {show(c.limit)} {verdict}")
+        rows.append({"figure": f.label, "nominal": show(f.nominal), "worst": worst,
+                     "limit": ", ".join(limits) or "none set", "unit": f.unit,
+                     "corner": corner_text(f.corner)})
+    return rows
+
+
+def render_purpose(console: Console, result: CheckResult) -> None:
+    """The Stage block: what the stage does, nominal and at the worst corner."""
+    p = result.purpose
+    if p is None:
+        return
+    table = Table(title=f"Stage: what it does (mid-band, {p.conditions}; worst case at the "
+                        "worst corner)", title_justify="left")
+    for col in ("figure", "nominal", "worst case", "limit", "worst corner"):
+        table.add_column(col)
+    for r in purpose_rows(result):
+        unit = " V/V" if r["unit"] == "V/V" else ""
+        nominal = r["nominal"] + (unit if r["nominal"] != "n/a" else "")
+        limit = r["limit"].replace(" FAIL", " [bold red]FAIL[/bold red]")
+        table.add_row(r["figure"], nominal, r["worst"] + unit, limit, r["corner"])
+    console.print(table)
+    console.print("  swing = min(VCE − VCE(sat), IC·(RC‖RL)), peak, symmetric; supply current "
+                  "= current drawn from the supply (the larger rail current on a split supply)",
+                  style="dim")
+    if p.defaults:
+        console.print(escape("  Assumed for gain and input resistance ([small_signal] not "
+                             "given): " + ", ".join(p.defaults) + "; set [small_signal] load "
+                             "and re_bypassed to state them"))
 
 
 def render_check(console: Console, job: Job, result: CheckResult) -> None:
@@ -126,6 +195,7 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
         console.print(f"[bold green]PASS[/bold green]: all {n_all} constraints hold at every "
                       "worst-case corner" + flag)
     render_constraints(console, result.constraints)
+    render_purpose(console, result)
 
     console.print(f"IC margin {100 * result.ic_margin:.2f} % of the target "
                   f"{_q(result.ic_target, 'A')} ({IC_MARGIN_DEFINITION})")

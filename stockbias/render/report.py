@@ -116,7 +116,7 @@ def _value_text(value: object) -> str:
 
 _SETTING_UNITS = {"volts": "V", "negative_volts": "V", "load": "ohm", "ic_min": "A",
                   "ic_max": "A", "vce_min": "V", "swing_pk": "V", "supply_power_max": "W",
-                  "time_limit_s": "s"}
+                  "time_limit_s": "s", "rin_min": "ohm", "supply_current_max": "A"}
 
 
 def _setting(key: str, value: object) -> str:
@@ -188,6 +188,30 @@ def _designs_section(designs: Sequence[Mapping[str, Any]]) -> str:
     return html_out
 
 
+def _purpose_section(r: CheckResult) -> str:
+    """The Stage block: gain, input resistance, swing and supply current, nominal and worst."""
+    from .check_table import purpose_rows
+
+    if r.purpose is None:
+        return ""
+    rows = []
+    for row in purpose_rows(r):
+        unit = " V/V" if row["unit"] == "V/V" else ""
+        limit = _e(row["limit"]).replace(" ok", ' <span class="ok">ok</span>').replace(
+            " FAIL", ' <span class="fail">FAIL</span>')
+        rows.append([_e(row["figure"]), _e(row["nominal"] + unit), _e(row["worst"] + unit),
+                     limit, _e(row["corner"])])
+    defaults = r.purpose.defaults
+    note = ("<p class=\"small\">Assumed for gain and input resistance ([small_signal] not "
+            f"given): {_e(', '.join(defaults))}.</p>" if defaults else "")
+    return (f"<h3>Stage: what it does (mid-band, {_e(r.purpose.conditions)})</h3>"
+            + _table(["figure", "nominal", "worst case", "limit", "worst corner"], rows,
+                     numeric=(1, 2))
+            + "<p class=\"small\">swing = min(VCE − VCE(sat), IC·(RC‖RL)), peak, symmetric; "
+              "supply current = current drawn from the supply (the larger rail current on a "
+              "split supply).</p>" + note)
+
+
 def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
     t = r.transistor
     badge = ('<span class="badge ok">PASS</span>' if r.ok
@@ -240,6 +264,7 @@ def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
     out.append("<h3>Constraints at the worst corner (failures first)</h3>" + _table(
         ["", "constraint", "what", "limit", "worst", "margin", "at corner"], rows,
         numeric=(3, 4, 5)))
+    out.append(_purpose_section(r))
     out.append(f"<p>IC margin <b>{100 * r.ic_margin:.2f} %</b> of the target "
                f"{_e(_q(r.ic_target, 'A'))} ({_e(IC_MARGIN_DEFINITION)}).</p>")
 
