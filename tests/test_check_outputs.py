@@ -402,3 +402,22 @@ def test_substitute_shows_the_same_margin_in_percent_of_the_target() -> None:
     assert f"{100 * expected:.2f} %" in row
     assert "IC margin = min(IC worst-case min − IC min, IC max − IC worst-case max)" in \
         text.stdout
+
+
+def test_monte_carlo_counts_gain_max_failures_on_boards_with_saturated_corners(
+        shelf: Path) -> None:
+    """RC 6.8 kΩ saturates some corners; every active corner has a gain above 100 V/V (the
+    worst case above), so with gain_max = 50 every board with one active corner fails it.
+    Reference: the boards' own VCE at each environment corner: a saturated corner is solved
+    with VCE held at VCE(sat), an active one lies above it (the DESIGN §2 region rule)."""
+    job = parse_job(DIVIDER_JOB.replace("gain_max = 2000", "gain_max = 50")
+                    .replace("gain_min = 100", "gain_min = 10"))
+    res = analyze(job, parts("39k", "8.2k", "6.8k", "1k"), "TQ-N1", read_inventory(shelf),
+                  samples=4000, seed=3)
+    mc = res.monte_carlo
+    assert mc is not None
+    active = np.asarray(mc.vce) > VCE_SAT + 1e-9
+    some_saturated = (~active).any(axis=1)
+    assert some_saturated.sum() > 100            # the case bites: many boards saturate somewhere
+    assert res.worst.bounds["gain_abs"].min > 50
+    assert mc.failing["gain_max"] == int(active.any(axis=1).sum())

@@ -92,6 +92,8 @@ def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int,
     checked = [lim for lim in limits if lim.name != "vceo"]
     needed = {lim.quantity for lim in checked} | {"ic", "vce"}
     small_signal = bool(needed & SMALL_SIGNAL_QUANTITIES)
+    nan_known = ({lim.quantity for lim in checked if lim.outside_active is not None}
+                 - {lim.quantity for lim in checked if lim.outside_active is None})
     ok = np.empty(n, dtype=bool)
     ic_all = np.empty((n, len(corners)))
     vce_all = np.empty((n, len(corners)))
@@ -108,8 +110,11 @@ def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int,
         ev = evaluate(spec, point, small_signal=small_signal)
         q = {k: v for k, v in ev.quantities.items() if k in needed}
         q["non_active_corners"] = (ev.op.region != 0).astype(float)
-        low = {k: _columns(np.minimum, v) for k, v in q.items()}
-        high = {k: _columns(np.maximum, v) for k, v in q.items()}
+        # A quantity undefined outside the active region (NaN there) whose every limit says
+        # what it is worth there is reduced over the active corners only; evaluate_limits then
+        # folds in that value.  Every other NaN propagates and fails its limit.
+        low = {k: _columns(np.fmin if k in nan_known else np.minimum, v) for k, v in q.items()}
+        high = {k: _columns(np.fmax if k in nan_known else np.maximum, v) for k, v in q.items()}
         good = np.ones(size, dtype=bool)
         for name, marg in evaluate_limits(checked, low, high).items():
             bad = marg < 0
