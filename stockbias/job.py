@@ -29,6 +29,7 @@ from .job_model import (
     Build,
     Environment,
     Job,
+    KeepPurpose,
     Limits,
     Search,
     SmallSignal,
@@ -46,6 +47,7 @@ __all__ = [
     "Build",
     "Environment",
     "Job",
+    "KeepPurpose",
     "Limits",
     "Search",
     "SmallSignal",
@@ -73,8 +75,14 @@ _SECTIONS: dict[str, dict[str, str | None]] = {
     "build": {"quantity": "", "allow_pairs": None, "default_tolerance_pct": "%"},
     "search": {"topology": None, "model": None, "objectives": None, "top": "", "time_limit_s": "s",
                "seed": ""},
+    # how far consolidate and substitute may move an existing stage's purpose (% of today's)
+    "keep_purpose": {"gain_pct": "%", "rin_pct": "%", "swing_pct": "%",
+                     "supply_current_pct": "%"},
 }
-_STAGE_KEYS = {"name", "topology", "transistor", "target", "limits", "values"}
+_STAGE_KEYS = {"name", "topology", "transistor", "target", "limits", "values", "keep_purpose"}
+#: (lowest, highest) % per keep_purpose key; gain_pct is a ± band around today's gain
+_KEEP_RANGES = {"gain_pct": (0.0, 100.0), "rin_pct": (0.0, 100.0), "swing_pct": (0.0, 100.0),
+                "supply_current_pct": (100.0, 1000.0)}
 
 
 class _Locator:
@@ -259,6 +267,28 @@ class _Parser:
                              "derating_knee_c", t.get("derating_knee_c"), occurrence)
         return Limits(**q)
 
+    def keep_purpose(self, t: dict[str, Any], section: str, base: KeepPurpose | None = None,
+                     occurrence: int = 0) -> KeepPurpose | None:
+        """[keep_purpose] or [stage.keep_purpose]: each key a % or false (not held)."""
+        self.check_keys(t, section, set(_KEEP_RANGES), occurrence)
+        if not t:
+            return base
+        out = dict(vars(base or KeepPurpose()))
+        for key, (lo, hi) in _KEEP_RANGES.items():
+            if key not in t:
+                continue
+            if t[key] is False:
+                out[key] = None
+                continue
+            value = self.quantity(t, section, key, None, occurrence)
+            assert value is not None
+            if not lo < value <= hi:
+                raise self.error(f"{key} is a percentage of today's figure: more than {lo:g} "
+                                 f"and at most {hi:g} (false: not held)", section, key, t[key],
+                                 occurrence)
+            out[key] = value
+        return KeepPurpose(**out)
+
     def environment(self, doc: dict[str, Any]) -> Environment:
         t = self.table(doc, "environment")
         lo = self.quantity(t, "environment", "ambient_min_c", 25.0)
@@ -343,13 +373,15 @@ class _Parser:
 
     def stages(self, doc: dict[str, Any], search: Search, supply: Supply) -> tuple[Stage, ...]:
         default_limits = self.limits(self.table(doc, "limits"), "limits")
+        default_keep = self.keep_purpose(self.table(doc, "keep_purpose"), "keep_purpose")
         raw_stages = doc.get("stage")
         if raw_stages is None:
             if "target" not in doc:
                 raise self.error("the job needs a [target] (or [[stage]] tables for a board)",
                                  "target", None, None)
             target = self.target(self.table(doc, "target"), "target")
-            return (Stage("stage", search.topology, target, default_limits),)
+            return (Stage("stage", search.topology, target, default_limits,
+                          keep_purpose=default_keep),)
         if "target" in doc:
             raise self.error("a board file gives each [[stage]] its own [stage.target]; "
                              "remove the top-level [target]", "target", None, None)
@@ -360,7 +392,7 @@ class _Parser:
         for i, raw in enumerate(raw_stages):
             if not isinstance(raw, dict):
                 raise self.error("stages are written as [[stage]] tables", "stage", None, raw, i)
-            for sub in ("target", "limits", "values"):
+            for sub in ("target", "limits", "values", "keep_purpose"):
                 if sub in raw and not isinstance(raw[sub], dict):
                     raise self.error(f"{sub} is a table: write [stage.{sub}] under the "
                                      "[[stage]]", "stage", sub, raw[sub], i)
@@ -391,8 +423,10 @@ class _Parser:
                     isinstance(v, (str, int, float)) for v in values.values()):
                 raise self.error("[stage.values] maps roles to part ids or values", "stage.values",
                                  None, values, i)
+            keep = self.keep_purpose(raw.get("keep_purpose", {}), "stage.keep_purpose",
+                                     default_keep, i)
             stages.append(Stage(name, topology, target, limits, transistor,
-                                {str(k): str(v) for k, v in values.items()}))
+                                {str(k): str(v) for k, v in values.items()}, keep))
         if not stages:
             raise self.error("a board needs at least one [[stage]]", "stage", None, None)
         return tuple(stages)

@@ -18,6 +18,7 @@ __all__ = [
     "Build",
     "Environment",
     "Job",
+    "KeepPurpose",
     "Limits",
     "Search",
     "SmallSignal",
@@ -70,6 +71,10 @@ class Target:
     ic_set: float | None = None  # the job's ``ic`` when the window is ic ± ic_window_pct, A
     rin_min: float | None = None  # input resistance incl. the bias network, ohm
     divider_ratio_min: float | None = None  # I(R2)/IB at every corner (divider); 0: none
+    # |gain| at the nominal point, V/V: set from an existing stage's own figure
+    # (consolidate, substitute), not a job key
+    gain_nominal_min: float | None = None
+    gain_nominal_max: float | None = None
 
     @property
     def ic(self) -> float:
@@ -136,6 +141,21 @@ class Search:
 
 
 @dataclass(frozen=True)
+class KeepPurpose:
+    """How far a change to an existing stage may move its purpose, in % of today's figures.
+
+    ``gain_pct``: nominal |gain| within ± this; ``rin_pct``: worst-case input resistance at
+    least this; ``swing_pct``: worst-case peak swing at least this; ``supply_current_pct``:
+    worst-case supply current at most this.  None: that figure is not held.
+    """
+
+    gain_pct: float | None = 10.0
+    rin_pct: float | None = 80.0
+    swing_pct: float | None = 90.0
+    supply_current_pct: float | None = 125.0
+
+
+@dataclass(frozen=True)
 class Stage:
     """One transistor stage of a job or board."""
 
@@ -145,6 +165,8 @@ class Stage:
     limits: Limits
     transistor: str | None = None
     values: dict[str, str] = field(default_factory=dict)
+    #: the file's [keep_purpose] / [stage.keep_purpose] (None: the defaults)
+    keep_purpose: KeepPurpose | None = None
 
 
 @dataclass(frozen=True)

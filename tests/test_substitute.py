@@ -28,7 +28,9 @@ VALUES = {"R1": "R-47K", "R2": "R-47K", "RC": "R-2K7", "RE": "R-4K7"}
 
 @pytest.fixture(scope="module")
 def result():
-    return substitute(load_job(JOB), VALUES, "Q-A", read_inventory(SHELF), samples=200)
+    # the worst-case limits alone (tests/test_keep_purpose.py holds the stage's purpose too)
+    return substitute(load_job(JOB), VALUES, "Q-A", read_inventory(SHELF), samples=200,
+                      purpose=False)
 
 
 def by_id(result, part_id):
@@ -86,7 +88,7 @@ def test_cli_json_and_exit_codes() -> None:
     runner = CliRunner()
     args = ["substitute", str(JOB), "-i", str(SHELF), "-v",
             ",".join(f"{k}={v}" for k, v in VALUES.items()), "-t", "Q-A", "--json",
-            "--samples", "100"]
+            "--samples", "100", "--no-keep-purpose"]
     out = runner.invoke(app, args)
     assert out.exit_code == 0, out.output
     payload = json.loads(out.stdout)

@@ -245,7 +245,10 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
     for lim in [*limits, *extra]:
         m = _scalar(margins[lim.name])
         b = wc.bounds.get(lim.quantity)
-        if lim.quantity in ("non_active_corners", "vceo_needed", "runaway_factor"):
+        if lim.figure is not None:  # a nominal-point limit: the nominal figure, no corner
+            worst, corner = lim.limit - m if lim.kind == "max" else lim.limit + m, None
+            worst = _scalar(worst) if math.isfinite(m) else math.nan
+        elif lim.quantity in ("non_active_corners", "vceo_needed", "runaway_factor"):
             worst = _scalar(low[lim.quantity])
             corner = wc.non_active_example if lim.quantity == "non_active_corners" else None
         elif b is None:
@@ -253,7 +256,7 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
         else:
             worst = b.min if lim.kind == "min" else b.max
             corner = b.corner_min if lim.kind == "min" else b.corner_max
-        if lim.outside_active is not None and wc.non_active_corners:
+        if lim.outside_active is not None and wc.non_active_corners and lim.figure is None:
             v = lim.outside_active
             if math.isnan(worst) or (v < worst if lim.kind == "min" else v > worst):
                 worst, corner = v, wc.non_active_example

@@ -21,10 +21,10 @@ import numpy as np
 
 from ..job import Job, Stage
 from .ratings import allowed_resistor_power, transistor_pd_allowed
-from .stage import StageSpec
+from .stage import StageSpec, evaluate
 
 __all__ = ["IC_MARGIN_DEFINITION", "ConstraintResult", "Limit", "evaluate_limits", "ic_margin",
-           "stage_limits"]
+           "nominal_gain_abs", "stage_limits"]
 
 #: The IC margin as arithmetic, printed once wherever the margin is shown.
 IC_MARGIN_DEFINITION = ("IC margin = min(IC worst-case min − IC min, IC max − IC worst-case max)"
@@ -62,6 +62,11 @@ class Limit:
     ``outside_active``: the value the quantity takes for this limit where the transistor is
     saturated or cut off and the quantity itself is undefined (NaN); None: undefined, so the
     limit fails there.
+
+    ``figure``: a limit that holds at the nominal point (not over the corners) carries the
+    design's nominal figure here, a scalar or an array over candidate designs (NaN where the
+    nominal point is not active); :func:`evaluate_limits` compares it instead of the corner
+    bounds.  None: the limit holds at every corner.
     """
 
     name: str
@@ -71,6 +76,7 @@ class Limit:
     unit: str
     description: str
     outside_active: float | None = None
+    figure: float | np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -128,6 +134,14 @@ def stage_limits(job: Job, stage: Stage, spec: StageSpec,
     if t.gain_max is not None:
         out.append(Limit("gain_max", "gain_abs", "max", t.gain_max, "V/V",
                          "|voltage gain| (0 where saturated or cut off)", outside_active=0.0))
+    if t.gain_nominal_min is not None or t.gain_nominal_max is not None:
+        g = nominal_gain_abs(spec)
+        for key, kind in (("gain_nominal_min", "min"), ("gain_nominal_max", "max")):
+            value = getattr(t, key)
+            if value is not None:
+                out.append(Limit(key, "gain_abs_nominal", kind, value, "V/V",
+                                 "|voltage gain| at the nominal point (0 where saturated or "
+                                 "cut off there)", outside_active=0.0, figure=g))
     if t.rin_min is not None:
         out.append(Limit("rin_min", "rin", "min", t.rin_min, "ohm",
                          "input resistance with the bias network, as the source sees it"))
@@ -158,6 +172,16 @@ def stage_limits(job: Job, stage: Stage, spec: StageSpec,
     return out
 
 
+def nominal_gain_abs(spec: StageSpec) -> np.ndarray:
+    """|voltage gain| at the nominal point (DESIGN §3), V/V; NaN where it is not active.
+
+    Vectorised over the candidate arrays of ``spec`` (one figure per design).
+    """
+    with np.errstate(all="ignore"):
+        return np.asarray(evaluate(spec, spec.nominal_point()).quantities["gain_abs"],
+                          dtype=float)
+
+
 def evaluate_limits(limits: list[Limit], low: dict[str, np.ndarray],
                     high: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     """Margins of every limit given the lower and upper bounds of each quantity.
@@ -176,6 +200,15 @@ def evaluate_limits(limits: list[Limit], low: dict[str, np.ndarray],
     not_active = high.get("non_active_corners")
     for lim in limits:
         side = low if lim.kind == "min" else high
+        if lim.figure is not None:      # a nominal-point limit: the design's own figure
+            q = np.asarray(lim.figure, dtype=float)
+            if "ic" in side:
+                q = np.broadcast_to(q, np.broadcast_shapes(np.shape(side["ic"]), q.shape))
+            if lim.outside_active is not None:
+                q = np.where(np.isnan(q), lim.outside_active, q)
+            m = q - lim.limit if lim.kind == "min" else lim.limit - q
+            out[lim.name] = np.where(np.isnan(m), -math.inf, m)
+            continue
         q = np.asarray(side[lim.quantity], dtype=float)
         if lim.outside_active is not None:
             v = lim.outside_active

@@ -27,15 +27,26 @@ def consolidate(
     time_limit: Annotated[float | None, typer.Option(
         "--time-limit", min=0.1, max=86400.0,
         help="Seconds for the whole search (default: the board's time_limit_s).")] = None,
+    keep_purpose: Annotated[str | None, typer.Option(
+        "--keep-purpose", help="NAME=PERCENT[,...] for every stage, NAME one of gain (± % of "
+        "today's nominal gain), rin (≥ % of today's input resistance), swing (≥ % of today's "
+        "worst-case swing), current (≤ % of today's supply current); NAME=off drops one. "
+        "Default gain=10,rin=80,swing=90,current=125, or the board's [stage.keep_purpose].")
+    ] = None,
+    no_keep_purpose: Annotated[bool, typer.Option(
+        "--no-keep-purpose", help="Hold no stage's purpose, only its worst-case targets.")
+    ] = False,
     json_out: JsonOpt = False,
     report: Annotated[Path | None, typer.Option(
         "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
     force: ForceOpt = False,
 ) -> None:
     """Merge a board's resistor values onto fewer stock lines, every stage still meeting its
-    worst-case targets."""
+    worst-case targets and keeping its purpose (gain, input resistance, swing, supply
+    current) within the stated tolerances of today's."""
     from ..search.consolidate import consolidate as run
     from ..search.consolidate import parse_keep
+    from ..search.keep_purpose import parse_keep_purpose
 
     outs = OutputSet({"the board file": board_file,
                       "the stock file (--inventory)": inventory}, force=force)
@@ -50,9 +61,14 @@ def consolidate(
                 raise InputError("name at least one objective", column="--objectives",
                                  text=objectives)
         kept = parse_keep(keep, job)
+        tolerances = parse_keep_purpose(keep_purpose)
+        if no_keep_purpose and tolerances:
+            raise InputError("--keep-purpose and --no-keep-purpose contradict each other",
+                             column="--no-keep-purpose", text=keep_purpose)
         with search_progress(json_out, "consolidating") as progress:
             result = run(job, inv, keep=kept, objectives=order, time_limit_s=time_limit,
-                         progress=progress)
+                         progress=progress, keep_purpose=tolerances,
+                         purpose=not no_keep_purpose)
         if report is not None:
             _stage_report(outs, board_file, job, inv, result)
         written = outs.commit()

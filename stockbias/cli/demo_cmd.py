@@ -11,19 +11,21 @@ from ..stock_io import read_inventory
 def demo() -> None:
     """Design a line-driver stage from the bundled workshop drawers and show the ranking."""
     from ..render.design_table import render_design
+    from ..search.defaults import with_design_defaults
     from ..search.design import design
 
     console = make_console()
     shelf = sample_path("workshop_drawers.csv")
     job_path = sample_path("line_driver_job.toml")
     inv = read_inventory(shelf)
-    job = load_job(job_path)
+    job, assumed = with_design_defaults(load_job(job_path))
     console.rule("stockbias demo")
     console.print(f"Shelf: {shelf.name} ({len(inv.resistors)} resistor lines, "
                   f"{len(inv.transistors)} transistors); job: {job_path.name}")
     console.print(f"Equivalent command: stockbias design inventory_samples/{job_path.name} "
                   f"--inventory inventory_samples/{shelf.name}")
     result = design(job, inv)
+    result.assumptions[:0] = assumed
     render_design(console, job, result)
     if result.designs:
         from ..selection import from_design

@@ -35,6 +35,7 @@ def design(
 ) -> None:
     """Search the stock for the best designs that meet every worst-case limit."""
     from ..render.plots import DESIGN_PLOTS
+    from ..search.defaults import with_design_defaults
     from ..search.design import design as run_design
     from ..selection import input_record
 
@@ -46,8 +47,10 @@ def design(
     with outs:
         job, inv = load(job_file, inventory)
         assert inv is not None
+        job, assumed = with_design_defaults(job)
         with search_progress(json_out, "searching the shelf") as progress:
             result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress)
+        result.assumptions[:0] = assumed
         payload = result.to_dict()
         payload["job"] = str(job_file)
         payload["inventory"] = str(inventory)

@@ -37,11 +37,21 @@ def substitute(
     samples: Annotated[int, typer.Option("--samples", min=0, max=1_000_000,
                                          help="Monte Carlo boards per reported check.")] = 2000,
     seed: SeedOpt = 0,
+    keep_purpose: Annotated[str | None, typer.Option(
+        "--keep-purpose", help="NAME=PERCENT[,...], NAME one of gain (± % of today's nominal "
+        "gain), rin (≥ % of today's input resistance), swing (≥ % of today's worst-case "
+        "swing), current (≤ % of today's supply current); NAME=off drops one. Default "
+        "gain=10,rin=80,swing=90,current=125, or the job's [keep_purpose].")] = None,
+    no_keep_purpose: Annotated[bool, typer.Option(
+        "--no-keep-purpose", help="Hold only the job's limits, not the stage's purpose.")
+    ] = False,
     report: Annotated[Path | None, typer.Option(
         "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
     force: ForceOpt = False,
 ) -> None:
     """Judge every stock transistor for an existing stage: drop-in, least rework, or ruled out."""
+    from ..errors import InputError
+    from ..search.keep_purpose import parse_keep_purpose
     from ..search.substitute import substitute as run
 
     outs = OutputSet({"the job file": job_file, "the stock file (--inventory)": inventory},
@@ -50,8 +60,13 @@ def substitute(
     with outs:
         job, inv = load(job_file, inventory)
         assert inv is not None
+        tolerances = parse_keep_purpose(keep_purpose)
+        if no_keep_purpose and tolerances:
+            raise InputError("--keep-purpose and --no-keep-purpose contradict each other",
+                             column="--no-keep-purpose", text=keep_purpose)
         result = run(job, parse_assignments(values), transistor, inv, max_changes=max_changes,
-                     time_limit_s=time_limit, samples=samples, seed=seed)
+                     time_limit_s=time_limit, samples=samples, seed=seed,
+                     keep_purpose=tolerances, purpose=not no_keep_purpose)
         if report is not None:
             from ..render.report import render_report
             from ..render.substitute_table import verdict_lines

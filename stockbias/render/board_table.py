@@ -104,6 +104,54 @@ def _explanation(console: Console, ex: dict | None) -> None:
         console.print(f"[bold]What would help:[/bold] {hint}")
 
 
+def purpose_table(title: str, records: list, show_after: bool = True) -> Table:
+    """Per stage: each purpose figure today → after, and the limits held from today's."""
+    from ..search.keep_purpose import FIGURE_LABELS, change_text
+
+    table = Table(title=title, title_justify="left")
+    table.add_column("stage")
+    for label, _unit in FIGURE_LABELS.values():
+        table.add_column(label)
+    table.add_column("held")
+    for h in records:
+        cells = [h.stage]
+        for key, (_label, unit) in FIGURE_LABELS.items():
+            before = h.before.get(key)
+            after = h.after.get(key) if (show_after and h.after) else None
+            cells.append(change_text(before, after, unit) if show_after and h.after
+                         else change_text(before, None, unit).split(" →")[0])
+        cells.append(_held_text(h.limits))
+        table.add_row(*cells)
+    return table
+
+
+def _held_text(limits: dict) -> str:
+    if not limits:
+        return "—"
+    out = []
+    if "gain_nominal_min" in limits:
+        out.append(f"|gain| {limits['gain_nominal_min']:.3g}–{limits['gain_nominal_max']:.3g}")
+    if "rin_min" in limits:
+        out.append(f"rin ≥ {format_quantity(limits['rin_min'], 'ohm')}")
+    if "swing_pk" in limits:
+        out.append(f"swing ≥ {format_quantity(limits['swing_pk'], 'V')}")
+    if "supply_current_max" in limits:
+        out.append(f"current ≤ {format_quantity(limits['supply_current_max'], 'A')}")
+    return ", ".join(out)
+
+
+def purpose_notes(console: Console, rule: str, records: list) -> None:
+    """The tolerances in words, and what today's design itself does not meet."""
+    from rich.markup import escape
+
+    console.print(escape(f"Each stage keeps its purpose: {rule} (set per stage in "
+                         "[stage.keep_purpose] or [keep_purpose], for every stage with "
+                         "--keep-purpose NAME=PERCENT, none with --no-keep-purpose)."))
+    for h in records:
+        for note in h.notes:
+            console.print(f"[yellow]Stage '{escape(h.stage)}':[/yellow] {escape(note)}")
+
+
 def render_board(console: Console, job: Job, result) -> None:
     """Print a :class:`stockbias.search.board.BoardResult`."""
     console.print(f"[bold]Board design[/bold] of {len(job.stages)} stages sharing the stock, "
@@ -136,6 +184,7 @@ def render_consolidate(console: Console, job: Job, result) -> None:
     console.print("Before: " + _totals(result.before)
                   + (f"; [red]fails its targets in {', '.join(failing)}[/red]" if failing
                      else "; every stage meets its targets"))
+    purpose = getattr(result, "purpose", [])
     if result.after is not None:
         from ..search.board import bom_totals
 
@@ -146,9 +195,17 @@ def render_consolidate(console: Console, job: Job, result) -> None:
         after = bom_totals(result.after.bom)
         saved = result.before["bom_lines"] - after["bom_lines"]
         console.print("After: " + _totals(after) + f" — {saved} BOM line(s) fewer")
+        if purpose:
+            console.print(purpose_table("What each stage does: today → after", purpose))
         console.print(f"{IC_MARGIN_DEFINITION}, each stage against its own target.")
         console.print("Every stage was re-verified with the same analysis as `stockbias check`.")
         _cautions(console, [s.check for s in result.after.stages])
+    elif purpose:
+        console.print(purpose_table("What each stage does today", purpose, show_after=False))
+    if purpose:
+        purpose_notes(console, result.purpose_rule, purpose)
     _explanation(console, result.explanation)
+    if result.explanation and result.explanation.get("purpose"):
+        console.print(f"[bold]Purpose:[/bold] {result.explanation['purpose']}")
     if result.assumptions:
         console.print("[dim]Assumptions: " + "; ".join(result.assumptions) + "[/dim]")

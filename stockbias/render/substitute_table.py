@@ -30,7 +30,42 @@ def verdict_lines(result: SubstituteResult) -> list[str]:
                        f"{c.added_cost:g} per board{proof}.")
         else:
             out.append(f"{rank}. {q}: no fix from stock; {c.note}.")
+    if result.purpose is not None:
+        out.append(f"Every verdict keeps the stage's purpose: {result.purpose_rule}.")
     return out
+
+
+def _purpose(console: Console, result: SubstituteResult) -> None:
+    """Today's figures → each fixed transistor's, and the tolerances held."""
+    from rich.markup import escape
+
+    from ..search.keep_purpose import FIGURE_LABELS, change_text, figures_of
+
+    held = result.purpose
+    if held is None:
+        return
+    table = Table(title=f"What the stage does: today ({result.current.part_id}, values as "
+                  "they stand) → with each transistor that fits", title_justify="left")
+    table.add_column("transistor")
+    for label, _unit in FIGURE_LABELS.values():
+        table.add_column(label)
+    for c in result.candidates:
+        if not c.fixed or c.check is None:
+            continue
+        after = figures_of(c.check)
+        table.add_row(c.transistor.part_id, *(change_text(held.before.get(k), after.get(k), u)
+                                              for k, (_l, u) in FIGURE_LABELS.items()))
+    if table.row_count:
+        console.print(table)
+    else:
+        today = ", ".join(f"{label} {change_text(held.before.get(k), None, u).split(' →')[0]}"
+                          for k, (label, u) in FIGURE_LABELS.items())
+        console.print(f"Today's stage: {today}.")
+    console.print(escape(f"The stage keeps its purpose: {result.purpose_rule} (set in the "
+                         "job's [keep_purpose] or with --keep-purpose NAME=PERCENT; "
+                         "--no-keep-purpose holds only the job's limits)."))
+    for note in held.notes:
+        console.print(f"[yellow]Today's stage:[/yellow] {escape(note)}")
 
 
 def render_substitute(console: Console, job: Job, result: SubstituteResult) -> None:
@@ -75,6 +110,7 @@ def render_substitute(console: Console, job: Job, result: SubstituteResult) -> N
             table.add_row(str(rank), name, "[red]no fix[/red]", "", "", "",
                           f"fails {fails}; {c.note}")
     console.print(table)
+    _purpose(console, result)
     console.print(f"{IC_MARGIN_DEFINITION} ({format_quantity(t.ic, 'A')}). Every "
                   "verdict is the full worst-case check (the same as `stockbias check`); a "
                   "rework is the fewest resistor changes, then the lowest added cost, then the "

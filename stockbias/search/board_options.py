@@ -97,7 +97,8 @@ class StageOptions:
 
 def _core_power_ok(job: Job, stage: Stage, network: str, q: Transistor,
                    cands: dict[str, RoleCandidates], idx: dict[str, np.ndarray]) -> np.ndarray:
-    """Divider: R1, R2, RE and supply power at one vertex (active closed form)."""
+    """Divider: R1, R2, RE, supply power and supply current at one vertex (active closed
+    form)."""
     if network != "divider":
         return np.ones(idx[PLANS[network].interval].size, dtype=bool)
     cn = corners(job, q, "divider")
@@ -120,6 +121,9 @@ def _core_power_ok(job: Job, stage: Stage, network: str, q: Transistor,
     lim = stage.limits.supply_power_max
     if lim is not None:
         ok &= ps <= lim * (1 + 1e-9)
+    cap = stage.limits.supply_current_max
+    if cap is not None:  # the current out of VCC at the same vertex: R1's and RC's
+        ok &= ps / cn.vcc_hi <= cap * (1 + 1e-9)
     return ok
 
 

@@ -7,6 +7,14 @@ minimises, lexicographically, ``bom_lines`` (distinct lines over the board), the
 (the order can be set; ``distinct_values`` and ``part_count`` may be named too),
 with every stage meeting its own worst-case targets and the stock shared.
 
+Every stage keeps its purpose (:mod:`.keep_purpose`): the stage as it stands is its
+own reference, and by default a change keeps the nominal gain within ±10 %, the
+worst-case input resistance at or above 80 %, the worst-case swing at or above 90 % and
+the worst-case supply current at or below 125 % of today's figures (per stage in
+``[stage.keep_purpose]``, for every stage with ``keep_purpose=``; ``purpose=False``
+drops them).  They are limits of the stage like any other: screened in the stage's
+options and re-verified with the full check.
+
 Transistors stay as they are (this is about resistor values).  A current part that
 is not a usable stock line (a bare value off the shelf, or a line short of one build)
 may stay where it is, as a line bought outside the stock; it cannot spread to other
@@ -20,7 +28,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Iterable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -45,6 +53,14 @@ from .board_model import StageSetup
 from .board_options import stage_options
 from .candidates import SINGLE, RoleCandidates, _concat, _sorted, _table, build_shelf
 from .deadline import Deadline
+from .keep_purpose import (
+    HeldPurpose,
+    defaults_text,
+    effective_keep,
+    figures_of,
+    hold_purpose,
+    screen_options,
+)
 
 __all__ = ["CONSOLIDATE_OBJECTIVES", "ConsolidateResult", "consolidate", "parse_keep"]
 
@@ -67,6 +83,8 @@ class ConsolidateResult:
     kept: list[str] = field(default_factory=list)
     assumptions: list[str] = field(default_factory=list)
     stats: dict[str, object] = field(default_factory=dict)
+    purpose: list[HeldPurpose] = field(default_factory=list)
+    purpose_rule: str = ""
 
     @property
     def found(self) -> bool:
@@ -91,6 +109,8 @@ class ConsolidateResult:
             "bom_after": None if self.after is None else self.after.bom,
             "kept": self.kept, "explanation": self.explanation,
             "assumptions": self.assumptions, "stats": self.stats,
+            "purpose_rule": self.purpose_rule,
+            "purpose": [p.to_dict() for p in self.purpose],
         }
 
 
@@ -157,6 +177,14 @@ def _current(job: Job, inventory: Inventory
     return out
 
 
+def _purpose_rule(job: Job, override: dict[str, float | None] | None, on: bool) -> str:
+    """The tolerances in words: one phrase when every stage holds the same, else per stage."""
+    texts = {st.name: defaults_text(effective_keep(st, override, not on)) for st in job.stages}
+    if len(set(texts.values())) == 1:
+        return next(iter(texts.values()))
+    return "; ".join(f"{name}: {text}" for name, text in texts.items())
+
+
 def _virtual_row(line: int, value_id: int, p: ResolvedResistor, ambient: tuple[float, float],
                  part: Resistor) -> RoleCandidates:
     """A candidate row for a current part that is not a stock line (its exact band)."""
@@ -169,7 +197,8 @@ def _virtual_row(line: int, value_id: int, p: ResolvedResistor, ambient: tuple[f
 
 def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str]] = (),
                 objectives: tuple[str, ...] | None = None, time_limit_s: float | None = None,
-                progress=None) -> ConsolidateResult:
+                progress=None, keep_purpose: dict[str, float | None] | None = None,
+                purpose: bool = True) -> ConsolidateResult:
     """Fewest BOM lines (then changes, then cost) for an existing board (DESIGN §3).
 
     Parameters
@@ -183,6 +212,10 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
         Lexicographic order (default ``bom_lines, changes, cost``).
     time_limit_s : float, optional
         Wall-clock limit, s (default: the job's ``time_limit_s``).
+    keep_purpose : dict, optional
+        Tolerances for every stage (``KeepPurpose`` field → % or None), over the file's.
+    purpose : bool
+        False: no stage's purpose is held (only its worst-case targets).
 
     Returns
     -------
@@ -206,10 +239,16 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
     setups: list[StageSetup] = []
     before_ok: dict[str, bool] = {}
     notes: list[str] = []
+    held_stages, held = [], []
+    for st, (q, parts) in zip(job.stages, current, strict=True):
+        res = analyze_stage(stage_job(job, st), st, parts, q, samples=0, seed=job.search.seed)
+        before_ok[st.name] = res.ok
+        st2, record = hold_purpose(st, res, effective_keep(st, keep_purpose, not purpose))
+        held_stages.append(st2)
+        held.append(record)
+    original, job = job, replace(job, stages=tuple(held_stages))
     for si, (st, (q, parts)) in enumerate(zip(job.stages, current, strict=True)):
         sj = stage_job(job, st)
-        res = analyze_stage(sj, st, parts, q, samples=0, seed=job.search.seed)
-        before_ok[st.name] = res.ok
         net = get_network(st.topology)
         cands: dict[str, RoleCandidates] = {}
         cur: dict[str, int | None] = {}
@@ -261,6 +300,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
             cands[role.name] = table
             cur[role.name] = idx
         opts = stage_options(sj, st, si, st.topology, q, cands, clock.share(0.7))
+        if held[si].limits:
+            opts = screen_options(sj, st, opts)
         setups.append(StageSetup(st.name, [opts], st.topology, cur))
         if progress is not None:
             progress("pre-pass", (si + 1) / len(job.stages))
@@ -274,6 +315,9 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
     designs = build_board(job, inventory, setups, universe, status, ranked, values, bm,
                           verified)
     after = designs[0] if designs else None
+    if after is not None:
+        for record, s in zip(held, after.stages, strict=True):
+            record.after = figures_of(s.check)
     result = ConsolidateResult(
         status=status, solve_seconds=time.monotonic() - t0, objectives=objectives,
         before_bom=before_bom, before=bom_totals(before_bom), before_ok=before_ok, after=after,
@@ -281,7 +325,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
         assumptions=[*notes, "transistors stay as they are; stock is shared across stages "
                      "(uses × build quantity within each line's quantity)"],
         stats={"options_per_stage": {s.name: sum(g.size for g in s.options) for s in setups},
-               **rstats, "resistor_lines": len(shelf.lines), "solver_steps": bm.step_seconds})
+               **rstats, "resistor_lines": len(shelf.lines), "solver_steps": bm.step_seconds},
+        purpose=held, purpose_rule=_purpose_rule(original, keep_purpose, purpose))
     if rstats.get("prepass_cut"):
         result.assumptions.append(str(rstats["prepass_cut"]))
     failing = [n for n, ok in before_ok.items() if not ok]
@@ -292,6 +337,11 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
     if after is None:
         result.explanation = explain_board(job, inventory, setups, universe, objectives,
                                            status, deadline, limit_transistors=False)
+        if any(h.limits for h in held) and status == "infeasible":
+            result.explanation["purpose"] = (
+                "every stage must also keep its purpose (" + result.purpose_rule + "); "
+                "--keep-purpose or [stage.keep_purpose] loosens a figure, "
+                "--no-keep-purpose drops them")
     result.solve_seconds = time.monotonic() - t0
     return result
 

@@ -22,6 +22,13 @@ passes.  Because the screen never rejects a combination the full check would
 pass, the first verified combination of the smallest k is the least rework:
 the answer is proven unless the time limit cut the search short (then it is
 marked ``proven: false``).
+
+The stage keeps its purpose (:mod:`.keep_purpose`): the stage as it stands, with the
+specified transistor, is the reference, and every verdict (drop-in and rework alike)
+holds by default the nominal gain within ±10 %, the worst-case input resistance at or
+above 80 %, the worst-case swing at or above 90 % and the worst-case supply current at
+or below 125 % of today's.  They are limits of the stage (the screen and the check
+both apply them), settable in ``[keep_purpose]`` and by ``keep_purpose=``.
 """
 
 from __future__ import annotations
@@ -30,7 +37,7 @@ import itertools
 import math
 import time
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -46,6 +53,7 @@ from ..parts import Inventory, Resistor, Transistor
 from ..resistor_band import piece_band
 from ..topologies import get_network
 from .candidates import micro
+from .keep_purpose import HeldPurpose, defaults_text, effective_keep, figures_of, hold_purpose
 
 __all__ = ["SubstituteCandidate", "SubstituteResult", "substitute"]
 
@@ -100,6 +108,8 @@ class SubstituteCandidate:
             "added_cost": self.added_cost, "proven": self.proven, "note": self.note,
             "constraints": margins, "drop_in_failures": drop_in_failures,
             "ic_margin": None if self.check is None else _ic_margin(self.check),
+            "purpose_after": None if self.check is None or not self.fixed
+            else figures_of(self.check),
         }
 
 
@@ -113,13 +123,17 @@ class SubstituteResult:
     values: dict[str, ResolvedResistor]
     candidates: list[SubstituteCandidate]
     solve_seconds: float
+    purpose: HeldPurpose | None = None
+    purpose_rule: str = ""
 
     def to_dict(self) -> dict[str, object]:
         return {"stage": self.stage, "topology": self.topology,
                 "current": {"part_id": self.current.part_id},
                 "values": {role: p.to_dict() for role, p in self.values.items()},
                 "solve_seconds": self.solve_seconds,
-                "candidates": [c.to_dict() for c in self.candidates]}
+                "candidates": [c.to_dict() for c in self.candidates],
+                "purpose_rule": self.purpose_rule,
+                "purpose": None if self.purpose is None else self.purpose.to_dict()}
 
 
 def _ids(p: ResolvedResistor) -> object:
@@ -359,7 +373,9 @@ def _least_rework(job: Job, base: dict[str, ResolvedResistor], q: Transistor,
 def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inventory, *,
                max_changes: int | None = None, time_limit_s: float | None = None,
                samples: int = 2000, seed: int = 0,
-               tolerance_pct: float | None = None) -> SubstituteResult:
+               tolerance_pct: float | None = None,
+               keep_purpose: dict[str, float | None] | None = None,
+               purpose: bool = True) -> SubstituteResult:
     """Judge every stock transistor for an existing stage (DESIGN §1, §3).
 
     Parameters
@@ -378,6 +394,10 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
     samples, seed : Monte Carlo boards for the reported checks.
     tolerance_pct : float, optional
         Tolerance for current values that are not stock parts.
+    keep_purpose : dict, optional
+        Tolerances (``KeepPurpose`` field → % or None) over the job's ``[keep_purpose]``.
+    purpose : bool
+        False: the stage's purpose is not held (only the job's limits).
     """
     t0 = time.monotonic()
     if job.is_board:
@@ -396,6 +416,11 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
     ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
     base = {role: resolve_resistor(role, text, inventory, tol, ambient=ambient)
             for role, text in values.items()}
+    keep = effective_keep(stage, keep_purpose, not purpose)
+    ref = analyze_stage(job, stage, base, cur, samples=0, seed=seed)
+    stage, held = hold_purpose(stage, ref, keep)
+    held.after = None
+    job = replace(job, stages=(stage,))
     limit = job.search.time_limit_s if time_limit_s is None else time_limit_s
     deadline = t0 + limit       # one limit for the whole command, shared by every transistor
     out: list[SubstituteCandidate] = []
@@ -417,4 +442,5 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
                                        note=note))
     out.sort(key=lambda c: c.sort_key())
     return SubstituteResult(stage=stage.name, topology=network.name, current=cur, values=base,
-                            candidates=out, solve_seconds=time.monotonic() - t0)
+                            candidates=out, solve_seconds=time.monotonic() - t0,
+                            purpose=held, purpose_rule=defaults_text(keep))
