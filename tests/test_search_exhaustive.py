@@ -6,7 +6,10 @@ that bind.  The reference enumerates EVERY assignment of stock lines to roles ×
 transistor, evaluates each at every vertex of the tolerance box with the analysis
 engine (no search code), applies the stock rule (uses × build quantity ≤ qty) and
 the objective order, and confirms the best ones with ``analyze_stage`` (the path
-``check`` uses).  Source of the expected values: this exhaustive enumeration.
+``check`` uses).  The top K are K distinct bias networks (the transistor and every role
+but RC in the divider, dual supply and fixed base; every role in collector feedback):
+the reference takes, in key order, the first design of each network that passes the full
+check.  Source of the expected values: this exhaustive enumeration, grouped by network.
 """
 
 from __future__ import annotations
@@ -51,6 +54,15 @@ top = 3
 """
 
 NARROW = ("collector_feedback", "fixed_base")
+
+#: the role whose values are variants of one network (it does not set IC)
+FREE_ROLE = {"divider": "RC", "dual_supply": "RC", "fixed_base": "RC",
+             "collector_feedback": None}
+
+
+def _network(net_name: str, q: Transistor, assign) -> tuple:
+    """A design's bias network: topology, transistor and the parts of the IC-setting roles."""
+    return (net_name, q.part_id, tuple((r, x) for r, x in assign if r != FREE_ROLE[net_name]))
 
 OBJECTIVE_SETS = [
     ["cost", "part_count", "distinct_values", "ic_margin"],
@@ -167,11 +179,14 @@ def _exhaustive(job: Job, inv: Inventory, top: int):
                 found.append((key, net_name, q, [(role.name, combos[i][k])
                                                  for k, role in enumerate(net.roles)]))
     found.sort(key=lambda x: x[0])
-    best = []
+    best, nets = [], set()
     for key, net_name, q, assign in found:
+        if _network(net_name, q, assign) in nets:
+            continue
         parts = {role: _resolved(role, lines[i]) for role, i in assign if i is not None}
         if analyze_stage(job, st, parts, q, samples=0, topology=net_name).ok:
             best.append(key)
+            nets.add(_network(net_name, q, assign))
             if len(best) == top:
                 break
     return best
@@ -180,6 +195,15 @@ def _exhaustive(job: Job, inv: Inventory, top: int):
 def _resolved(role: str, r: Resistor) -> ResolvedResistor:
     return ResolvedResistor(role=role, value=r.value_ohm, tol=r.tolerance_pct / 100,
                             tempco_ppm=r.tempco_ppm or 0.0, rating=r.power_w, parts=(r,))
+
+
+def _result_networks(result) -> list[tuple]:
+    """Each ranked design's network, from its parts (ids and arrangement of every role that
+    sets IC)."""
+    return [(d.topology, d.transistor.part_id,
+             tuple(sorted((r, tuple(p.part_ids), p.arrangement)
+                          for r, p in d.check.parts.items() if r != FREE_ROLE[d.topology])))
+            for d in result.designs]
 
 
 def _search_keys(job: Job, result) -> list[tuple]:
@@ -200,8 +224,10 @@ def test_optimum_matches_exhaustive(case):
     expected = _exhaustive(job, inv, 3)
     result = design(job, inv, top=3)
     got = _search_keys(job, result)
-    # source: the exhaustive enumeration above (exact integer keys)
+    # source: the exhaustive enumeration above, grouped by network (exact integer keys)
     assert got == expected, (result.status, result.stats)
+    nets = _result_networks(result)
+    assert len(set(nets)) == len(nets), "the ranked designs are distinct networks"
     if expected:
         assert result.status == "optimal"
         assert all(d.check.ok for d in result.designs)
@@ -352,6 +378,8 @@ def _exhaustive_pairs(job: Job, inv: Inventory, top: int):
     amb = (env.ambient_min_c, env.ambient_max_c)
     best, seen = [], set()
     for key, q, assign in found:
+        if _network(st.topology, q, assign) in seen:
+            continue
         parts = {}
         for role, x in assign:
             if x is None:
@@ -361,8 +389,7 @@ def _exhaustive_pairs(job: Job, inv: Inventory, top: int):
                            else pair_of(role, pieces[0], pieces[1], arr, ambient=amb))
         if analyze_stage(job, st, parts, q, samples=0).ok:
             best.append(key)
-            seen.add(tuple(sorted((r, tuple(p.part_ids), p.arrangement)
-                                  for r, p in parts.items())))
+            seen.add(_network(st.topology, q, assign))
             if len(best) == top:
                 break
     return best
@@ -376,8 +403,10 @@ def test_optimum_with_pairs_matches_exhaustive(case):
     job = replace(job, build=replace(job.build, allow_pairs=True))
     expected = _exhaustive_pairs(job, inv, 3)
     result = design(job, inv, top=3)
-    # source: the exhaustive enumeration above (exact integer keys)
+    # source: the exhaustive enumeration above, grouped by network (exact integer keys)
     assert _search_keys(job, result) == expected, (result.status, result.stats)
+    nets = _result_networks(result)
+    assert len(set(nets)) == len(nets), "the ranked designs are distinct networks"
     assert expected, "each pair case is built to be feasible"
     assert result.status == "optimal"
     assert any(p.arrangement != "single" and len({x.part_id for x in p.parts}) == 2

@@ -32,6 +32,9 @@ def design(
     report: Annotated[Path | None, typer.Option(
         "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
     force: ForceOpt = False,
+    variants: Annotated[bool, typer.Option(
+        "--variants", help="List every RC value that works with each network, each "
+        "re-verified in full (--top counts networks either way).")] = False,
 ) -> None:
     """Search the stock for the best designs that meet every worst-case limit."""
     from ..render.plots import DESIGN_PLOTS
@@ -49,7 +52,8 @@ def design(
         assert inv is not None
         job, assumed = with_design_defaults(job)
         with search_progress(json_out, "searching the shelf") as progress:
-            result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress)
+            result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress,
+                                verify_variants=variants)
         result.assumptions[:0] = assumed
         payload = result.to_dict()
         payload["job"] = str(job_file)
@@ -73,7 +77,7 @@ def design(
     else:
         from ..render.design_table import render_design
 
-        render_design(make_console(), job, result)
+        render_design(make_console(), job, result, show_variants=variants)
     note = make_console(stderr=json_out)
     if job.is_board and plot is not None:
         note.print("--plot draws single-stage results; for a board, check each stage with "

@@ -27,8 +27,25 @@ def _parts_text(part: dict) -> str:
     return f"{format_quantity(part['value_ohm'], 'ohm')} {ids}"
 
 
-def render_design(console: Console, job: Job, result) -> None:
-    """Print a :class:`stockbias.search.design.DesignResult`."""
+def _range_text(d: dict) -> str:
+    """The free role's variants as a range: '100 Ω … 680 Ω, 5 values in stock'."""
+    rng = d.get("variant_range")
+    if not rng:
+        return ""
+    n = rng["count"]
+    if n == 1:
+        return "the only value in stock"
+    return (f"{format_quantity(rng['min_ohm'], 'ohm')} … "
+            f"{format_quantity(rng['max_ohm'], 'ohm')}, {n} values in stock")
+
+
+def render_design(console: Console, job: Job, result, show_variants: bool = False) -> None:
+    """Print a :class:`stockbias.search.design.DesignResult`.
+
+    Each row is one bias network; its free role (RC) shows the representative part and
+    the range of stock values that work with the network.  ``show_variants`` adds a row
+    per variant under each network.
+    """
     st = job.stage
     t = st.target
     console.print(f"[bold]Design[/bold] for stage '{st.name}': {st.topology}, IC "
@@ -44,7 +61,8 @@ def render_design(console: Console, job: Job, result) -> None:
         roles: list[str] = []
         for d in data:
             roles += [r for r in d["parts"] if r not in roles]
-        table = Table(title="Ranked designs", title_justify="left")
+        table = Table(title="Ranked designs: each row a distinct bias network (the "
+                      "transistor and the resistors that set IC)", title_justify="left")
         for col in ("#", "topology", "transistor", *roles, "cost/board", "parts", "values",
                     "IC worst case", "VCE min", "margin"):
             table.add_column(col)
@@ -55,13 +73,37 @@ def render_design(console: Console, job: Job, result) -> None:
             cells = [str(d["rank"]), d["topology"], f"{d['transistor']['part_id']} "
                      f"({d['polarity']})"]
             for r in roles:
-                cells.append(_parts_text(d["parts"][r]) if r in d["parts"] else "absent")
+                text = _parts_text(d["parts"][r]) if r in d["parts"] else "absent"
+                if r == d.get("free_role") and _range_text(d):
+                    text += f"\n({_range_text(d)})"
+                cells.append(text)
             cells += [f"{d['cost']:.4g}", str(d["part_count"]), str(d["distinct_values"]),
                       f"{format_quantity(ic.get('min', 0), 'A')}–"
                       f"{format_quantity(ic.get('max', 0), 'A')}",
                       format_quantity(vce.get("min", 0), "V"), f"{100 * d['ic_margin']:.2f} %"]
             table.add_row(*cells)
+            if show_variants and d.get("free_role"):
+                for v in d["variants"]:
+                    if v["representative"]:
+                        continue
+                    sub = ["", "", f"  {d['free_role']} variant"]
+                    for r in roles:
+                        sub.append(_parts_text(v) if r == d["free_role"] else "")
+                    sub += [f"{v['cost']:.4g}", "", "", "",
+                            format_quantity(v["vce_min"], "V"),
+                            f"{100 * v['ic_margin']:.2f} %"]
+                    table.add_row(*sub)
         console.print(table)
+        free = sorted({d["free_role"] for d in data if d.get("free_role")})
+        if free:
+            check = ("each re-verified with the same analysis as `stockbias check`"
+                     if show_variants else
+                     "each passes every limit at every vertex of the tolerance box; the "
+                     "part shown is re-verified in full (--variants lists and re-verifies "
+                     "every one)")
+            console.print(f"{', '.join(free)}: the range counts the stock values that work "
+                          f"with the network (the role does not set IC); {check}. --top "
+                          "counts networks.")
         console.print(f"IC window {format_quantity(t.ic_min, 'A')}–"
                       f"{format_quantity(t.ic_max, 'A')}, target {format_quantity(t.ic, 'A')}; "
                       f"margin: {IC_MARGIN_DEFINITION}. Every design was re-verified with the "

@@ -37,6 +37,14 @@ What is proven
     componentwise lower bounds of the objective vector (so lexicographic lower bounds);
     κ comes from re-verified, stock-feasible designs only; hence ``optimal`` means no
     design the search did not return ranks above the returned ones.
+
+Alternatives, not variants
+    The top K are K distinct bias networks (:mod:`.alternatives`): κ is the key at which
+    the K-th distinct network is first met, CP-SAT ranks one design per network (the
+    network's best variant that passes the full check), and each ranked network lists
+    every value of its free role (RC) that works with it.  ``optimal`` then means: no
+    network the search did not return has a variant that ranks above the best variant
+    of a returned one.
 """
 
 from __future__ import annotations
@@ -51,6 +59,7 @@ import numpy as np
 from ..analysis.check import CheckResult, analyze_stage
 from ..job import Job
 from ..parts import Inventory
+from .alternatives import design_variants, network_key, rank_networks
 from .candidates import (
     Shelf,
     build_shelf,
@@ -81,7 +90,6 @@ from .ranking import sparse_table as _sparse
 from .row_scan import GROUP_FACTOR, RowScan
 from .row_scan import Block as _Block
 from .scan_coverage import Coverage
-from .solve import solve_ranked
 
 __all__ = ["Design", "DesignResult", "design", "objective_key"]
 
@@ -446,8 +454,14 @@ class _Search(RowScan):
             self.verified[ck] = res if res.ok else None
         return self.verified[ck]
 
+    def network(self, k: int) -> tuple:
+        """The bias network of pool design ``k`` (:func:`.alternatives.network_key`)."""
+        b = self.blocks[self.pool.block[k]]
+        return network_key(b.network, b.q_index, b.cands, self.pool.roles[k])
+
     def kappa(self) -> np.ndarray:
-        """Key of the K-th best re-verified, stock-feasible design of the pool (∞ if fewer).
+        """Key at which the K-th distinct network is first met among the re-verified,
+        stock-feasible designs of the pool, in key order (∞ if fewer networks).
 
         Designs are checked lazily in key order: at every vertex first (which can only
         raise a key, the margin being exact afterwards), then by ``analyze_stage``.
@@ -471,12 +485,15 @@ class _Search(RowScan):
                 if self.deadline.expired():
                     return inf
                 continue
-            good = 0
+            nets: set[tuple] = set()
             for k in head:
-                if not self.stock_ok(k) or self.verify(k) is None:
+                # the bound counts networks: a variant of a network already counted is
+                # not verified here (it cannot add a network)
+                net = self.network(k)
+                if net in nets or not self.stock_ok(k) or self.verify(k) is None:
                     continue
-                good += 1
-                if good >= self.top:
+                nets.add(net)
+                if len(nets) >= self.top:
                     return keys[k]
                 if self.deadline.expired():
                     return inf
@@ -487,7 +504,7 @@ class _Search(RowScan):
 def design(job: Job, inventory: Inventory, *, top: int | None = None,
            time_limit_s: float | None = None, progress: Progress | None = None,
            _explain: bool = True, deadline: Deadline | None = None,
-           row_budget: int = ROW_BUDGET) -> DesignResult:
+           row_budget: int = ROW_BUDGET, verify_variants: bool = False) -> DesignResult:
     """Ranked designs for a one-stage job from the stock (DESIGN §2, §3).
 
     Parameters
@@ -509,6 +526,9 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     row_budget : int, optional
         Most rows of the enumerated roles built at once, and held at once; any value
         gives the same designs (memory and speed change).
+    verify_variants : bool, optional
+        Re-verify every variant of each ranked network with the full check (by default
+        only the network's representative is; the others pass at every vertex).
 
     Returns
     -------
@@ -572,10 +592,12 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
         return s.verify(int(keep[i])) is not None
 
     # CP-SAT gets what is left of the limit (half a second at least, to rank what was found)
-    ranked, status, _rej = solve_ranked(mdesigns, s.objectives, line_qty, job.build.quantity,
-                                        top, job.search.seed,
-                                        max(deadline.monotonic_at(), time.monotonic() + 0.5),
-                                        accept)
+    # one design per network: accepting a design forbids its network's other variants
+    groups = [s.network(int(k)) for k in keep]
+    ranked, status, _rej = rank_networks(mdesigns, groups, s.objectives, line_qty,
+                                         job.build.quantity, top, job.search.seed,
+                                         max(deadline.monotonic_at(), time.monotonic() + 0.5),
+                                         accept)
     if done != "complete" and status == "optimal":
         status = "feasible"
     if done != "complete" and status == "infeasible":
@@ -592,6 +614,7 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
         cost = b.transistor.unit_cost + sum(p.unit_cost for p in parts.values())
         designs.append(Design(
             rank=rank, topology=b.network, transistor=b.transistor, check=res,
+            **design_variants(s, k, verify_variants),
             cost=cost, cost_micro=micro(b.transistor.unit_cost)
             + sum(micro(part.unit_cost) for p in parts.values() for part in p.parts),
             part_count=1 + sum(len(p.parts) for p in parts.values()),

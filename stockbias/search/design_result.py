@@ -5,10 +5,38 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from ..analysis.check import CheckResult
+from ..assign import ResolvedResistor
 from ..parts import Transistor
 from ..topologies import get_network
 
-__all__ = ["Design", "DesignResult"]
+__all__ = ["Design", "DesignResult", "DesignVariant"]
+
+
+@dataclass(frozen=True)
+class DesignVariant:
+    """One value of a network's free role (RC) that works with it.
+
+    ``verified``: True when the full check (``analyze_stage``) passed it, None when it was
+    checked at every vertex only; ``cost_micro``: the whole design's cost per board with
+    this part, integer micro-units; ``vce_min``: worst-case VCE over the vertices, V;
+    ``ic_margin``: fraction of the target current.
+    """
+
+    part: ResolvedResistor
+    representative: bool
+    verified: bool | None
+    cost_micro: int
+    vce_min: float
+    ic_margin: float
+
+    def to_dict(self) -> dict[str, object]:
+        p = self.part
+        ids: object = p.part_ids[0] if len(p.parts) == 1 else list(p.part_ids)
+        return {"part_id": ids, "value_ohm": p.value, "tolerance_pct": 100 * p.tol,
+                "arrangement": p.arrangement, "representative": self.representative,
+                "check": "full" if self.verified else "vertices",
+                "cost": self.cost_micro / 1e6, "cost_micro": self.cost_micro,
+                "vce_min": self.vce_min, "ic_margin": self.ic_margin}
 
 
 @dataclass(frozen=True)
@@ -25,6 +53,18 @@ class Design:
     distinct_values: int
     bom_lines: int
     ic_margin: float
+    #: the role whose values are interchangeable under this network (None: collector
+    #: feedback, where every role sets IC) and every such value, the representative included
+    free_role: str | None = None
+    variants: tuple[DesignVariant, ...] = ()
+
+    def variant_range(self) -> dict[str, object] | None:
+        """min/max value (ohm) and count of the free role's variants, None without one."""
+        if self.free_role is None or not self.variants:
+            return None
+        vals = [v.part.value for v in self.variants]
+        return {"role": self.free_role, "min_ohm": min(vals), "max_ohm": max(vals),
+                "count": len(vals)}
 
     def to_dict(self) -> dict[str, object]:
         c = self.check.to_dict()
@@ -46,6 +86,9 @@ class Design:
             "ok": self.check.ok, "worst_case": c["worst_case"],
             "constraints": c["constraints"], "nominal": c["nominal"],
             "warnings": self.check.warnings, "cautions": self.check.cautions,
+            "free_role": self.free_role,
+            "variants": [v.to_dict() for v in self.variants],
+            "variant_range": self.variant_range(),
         }
 
 

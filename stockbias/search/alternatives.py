@@ -1,0 +1,230 @@
+"""Alternatives, not variants: the ranked designs are distinct bias networks.
+
+A *network* is the transistor and the resistors that set the collector current: every
+role except the free one of :data:`.prepass.PLANS` (divider: R1, R2, RE; dual_supply and
+fixed_base: RB, RE; collector_feedback has no free role, since RC carries IE there and
+sets IC, so every role belongs to its network).  The values the free role (RC) can take
+under one network are its *variants*: the network's row lists them as a range, the best
+variant (by the job's objectives) stands for the network.
+
+What is proven
+    The top K are the K networks whose best variant ranks highest by the lexicographic
+    objective; a network's rank is that of its best variant that passes the full check
+    (``analyze_stage``) and fits the stock.  The search bound κ is the key of the design
+    at which the K-th distinct network is first met in key order, so a row whose lower
+    bound exceeds κ can hold no network ranked in the top K (its every variant is worse
+    than K networks already verified).  The variants listed for a network are *every*
+    free-role candidate on the shelf that, with that network, passes every limit at every
+    vertex of the tolerance box and fits the stock; with ``verify`` each is also re-checked
+    by ``analyze_stage`` (which adds the interior maxima of the dissipations).
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..analysis.check import analyze_stage as _analyze
+from .candidates import micro
+from .design_result import DesignVariant
+from .model import ModelDesign
+from .prepass import PLANS, free_role_bounds, free_role_keep, free_role_range, vertex_check
+from .ranking import count_distinct, margin_ppm, objective_key
+from .solve import RankedSolve, solve_one
+
+__all__ = ["Variant", "design_variants", "network_key", "network_roles", "rank_networks",
+           "variants_of"]
+
+
+def network_roles(network: str, roles: tuple[str, ...] | list[str]) -> tuple[str, ...]:
+    """The roles of ``roles`` that belong to the network (all but the free role)."""
+    free = PLANS[network].free
+    return tuple(r for r in roles if r != free)
+
+
+def network_key(network: str, q_index: int, cands, roles: dict[str, int]) -> tuple:
+    """Identity of a design's network: its topology, transistor and the stock line(s) of
+    every role that sets IC (an absent optional role counts as a choice)."""
+    ident = []
+    for r in sorted(network_roles(network, list(roles))):
+        c, i = cands[r], roles[r]
+        ident.append((r, int(c.arrangement[i]), int(c.line_a[i]), int(c.line_b[i])))
+    return (network, int(q_index), tuple(ident))
+
+
+def rank_networks(designs: list[ModelDesign], groups: list[tuple], objectives: tuple[str, ...],
+                  line_qty: list[int], build_qty: int, top: int, seed: int, deadline: float,
+                  accept) -> tuple[list[RankedSolve], str, int]:
+    """Up to ``top`` designs of distinct networks, in lexicographic order.
+
+    CP-SAT picks the best design not forbidden; ``accept(index)`` re-verifies it.  A
+    rejected design is forbidden alone (another variant of its network may still pass); an
+    accepted one forbids its whole network, so the next solve picks the best variant of
+    another network.  Returns (ranked, status, rejected count) like
+    :func:`.solve.solve_ranked`.
+    """
+    members: dict[tuple, list[int]] = {}
+    for i, g in enumerate(groups):
+        members.setdefault(g, []).append(i)
+    ranked: list[RankedSolve] = []
+    forbidden: set[int] = set()
+    rejected = 0
+    proven = True
+    if not designs:
+        return [], "infeasible", 0
+    while len(ranked) < top and len(forbidden) < len(designs):
+        got = solve_one(designs, objectives, line_qty, build_qty, forbidden, seed, deadline)
+        if got == "infeasible":
+            break
+        if got == "unknown":
+            proven = False
+            break
+        assert isinstance(got, RankedSolve)
+        if accept is not None and not accept(got.design):
+            forbidden.add(got.design)
+            rejected += 1
+            continue
+        forbidden.update(members[groups[got.design]])
+        ranked.append(got)
+        proven &= got.proven
+        if time.monotonic() > deadline:
+            proven = proven and len(ranked) >= top
+            break
+    if not ranked:
+        return [], ("infeasible" if proven else "unknown"), rejected
+    return ranked, ("optimal" if proven else "feasible"), rejected
+
+
+@dataclass(frozen=True)
+class Variant:
+    """One value of the free role that works with a network.
+
+    ``index``: candidate index in the free role's table; ``key``: the design's objective
+    key; ``vce_min``: worst-case VCE over the vertices, V; ``ic_margin``: fraction of the
+    target; ``cost_micro``: the whole design's cost per board, integer micro-units.
+    """
+
+    index: int
+    key: tuple[int, ...]
+    vce_min: float
+    ic_margin: float
+    cost_micro: int
+
+
+def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[str, int],
+                objectives: tuple[str, ...]) -> tuple[str | None, list[Variant]]:
+    """(free role, every variant of the network with core roles ``core``), best key first.
+
+    Every candidate of the free role is screened with the same exact-at-a-vertex bounds the
+    search uses (:func:`.prepass.free_role_bounds`, constant VBE only) and then checked at
+    every vertex with :func:`.prepass.vertex_check`; those that pass and fit the stock
+    (each line's uses × build quantity ≤ its quantity) are the variants.
+    """
+    free = PLANS[network].free
+    if free is None or free not in cands:
+        return None, []
+    fc = cands[free]
+    idx1 = {r: np.array([i], dtype=np.int64) for r, i in core.items()}
+    if job.search.model == "constant_vbe":
+        h, low_need, ic_top = free_role_bounds(job, stage, network, transistor, cands, idx1)
+        j0, j1 = free_role_range(fc, h, low_need)
+        fj = np.arange(int(j0[0]), int(max(j1[0], j0[0])), dtype=np.int64)
+        fj = fj[free_role_keep(job, stage, fc, np.zeros(fj.size, dtype=np.int64), fj, h,
+                               low_need, ic_top)]
+    else:
+        fj = np.flatnonzero(fc.present).astype(np.int64)
+    if fj.size == 0:
+        return free, []
+    arr = {r: (cands[r], np.full(fj.size, i, dtype=np.int64)) for r, i in core.items()}
+    arr[free] = (fc, fj)
+    chk = vertex_check(job, stage, network, transistor, arr)
+    ok = np.asarray(chk["ok"], dtype=bool)
+    fj = fj[ok]
+    vce = np.asarray(chk["vce_min"])[ok]
+    ic_lo, ic_hi = np.asarray(chk["ic_min"])[ok], np.asarray(chk["ic_max"])[ok]
+    if fj.size == 0:
+        return free, []
+    # stock: every line's uses over the design's roles × the build quantity
+    need = job.build.quantity
+    count: dict[int, int] = {}
+    for r, i in core.items():
+        for line in (int(cands[r].line_a[i]), int(cands[r].line_b[i])):
+            if line >= 0:
+                count[line] = count.get(line, 0) + 1
+    fits = np.ones(fj.size, dtype=bool)
+    for k, j in enumerate(fj):
+        c = dict(count)
+        for line in (int(fc.line_a[j]), int(fc.line_b[j])):
+            if line >= 0:
+                c[line] = c.get(line, 0) + 1
+        fits[k] = all(shelf.lines[line].qty >= n * need for line, n in c.items())
+    fj, vce, ic_lo, ic_hi = fj[fits], vce[fits], ic_lo[fits], ic_hi[fits]
+    n = fj.size
+    cost = np.full(n, micro(transistor.unit_cost), dtype=np.int64) + fc.cost[fj]
+    parts = np.ones(n, dtype=np.int64) + fc.parts[fj]
+    vals = [fc.value_a[fj], fc.value_b[fj]]
+    lines = [fc.line_a[fj], fc.line_b[fj]]
+    for r, i in core.items():
+        c = cands[r]
+        cost += c.cost[i]
+        parts += c.parts[i]
+        vals += [np.full(n, c.value_a[i]), np.full(n, c.value_b[i])]
+        lines += [np.full(n, c.line_a[i]), np.full(n, c.line_b[i])]
+    t = stage.target
+    mppm = margin_ppm(ic_lo, ic_hi, t.ic_min, t.ic_max, t.ic)
+    key = objective_key(objectives, cost, parts, count_distinct(vals),
+                        count_distinct(lines) + 1, mppm)
+    order = np.lexsort((fc.value[fj], *key.T[::-1])) if n else np.zeros(0, dtype=np.int64)
+    return free, [Variant(int(fj[k]), tuple(int(x) for x in key[k]), float(vce[k]),
+                          float(mppm[k]) / 1e6, int(cost[k])) for k in order]
+
+
+def design_variants(s, k: int, verify: bool) -> dict[str, object]:
+    """The free role's variants of the network of the search ``s``'s pool design ``k``,
+    as :class:`.design_result.Design` fields; with ``verify`` each is re-checked by
+    ``analyze_stage`` and one that fails is left out."""
+    b = s.blocks[s.pool.block[k]]
+    roles = s.pool.roles[k]
+    core = {r: i for r, i in roles.items() if r != PLANS[b.network].free}
+    free, found = variants_of(s.job, s.stage, s.shelf, b.network, b.transistor, b.cands, core,
+                              s.objectives)
+    if free is None:
+        return {"free_role": None, "variants": ()}
+    rep = roles.get(free)
+    out = []
+    for v in found:
+        part = s.shelf.resolved(free, b.cands[free], v.index)
+        if part is None:
+            continue
+        verified: bool | None = None
+        if v.index == rep:
+            verified = True
+        elif verify:
+            trial = {r: p for r, p in s.resolved(k)[1].items() if r != free}
+            trial[free] = part
+            res = _analyze(s.job, s.stage, trial, b.transistor, samples=0,
+                           seed=s.job.search.seed, topology=b.network)
+            verified = bool(res.ok)
+            if not verified:
+                continue
+        out.append(DesignVariant(part=part, representative=v.index == rep, verified=verified,
+                                 cost_micro=v.cost_micro, vce_min=v.vce_min,
+                                 ic_margin=v.ic_margin))
+    if not any(v.representative for v in out) and rep is not None:
+        # the verified representative always heads its own list (a screen above that is
+        # stricter than the full check in some corner case must not hide it)
+        res = s.verify(k)
+        part = s.shelf.resolved(free, b.cands[free], rep)
+        if res is not None and part is not None:
+            bound = res.worst.bounds.get("vce")
+            vce = bound.min if bound is not None else 0.0
+            cost = micro(b.transistor.unit_cost) + sum(
+                micro(x.unit_cost) for p in res.parts.values() for x in p.parts)
+            out.append(DesignVariant(part=part, representative=True, verified=True,
+                                     cost_micro=cost, vce_min=float(vce),
+                                     ic_margin=s.pool.margin[k]))
+    # the representative first (it is a best variant; those tied with it follow in order)
+    out.sort(key=lambda v: not v.representative)
+    return {"free_role": free, "variants": tuple(out)}
