@@ -66,3 +66,29 @@ def generated_shelf(seed: int, n_lines: int, n_q: int, build: int,
             unit_cost=float(rng.choice([0.03, 0.05])), line=100 + j))
     return Inventory(path=f"<shelf {seed}>", resistors=tuple(resistors),
                      transistors=tuple(transistors))
+
+
+def held_stage(job: Job, stage, parts, q: Transistor, gain_pct: float | None = 10.0,
+               rin_pct: float | None = 80.0, swing_pct: float | None = 90.0,
+               current_pct: float | None = 125.0):
+    """The stage with the purpose limits an existing design sets, written out here.
+
+    Today's figures are those ``check`` reports for the design as it stands (its Stage
+    block): nominal gain, worst-case input resistance, swing and supply current.  Limits:
+    |gain| at the nominal point within ±gain_pct; the worst-case figures at least rin_pct /
+    swing_pct and at most current_pct of today's (the job itself sets none of these here).
+    """
+    res = analyze_stage(replace(job, stages=(stage,)), stage, parts, q, samples=0)
+    p = res.purpose
+    target, limits = stage.target, stage.limits
+    if gain_pct is not None:
+        g = abs(p["gain"].nominal)
+        target = replace(target, gain_nominal_min=g * (1 - gain_pct / 100),
+                         gain_nominal_max=g * (1 + gain_pct / 100))
+    if rin_pct is not None:
+        target = replace(target, rin_min=p["rin"].worst * rin_pct / 100)
+    if swing_pct is not None:
+        target = replace(target, swing_pk=p["swing_pk"].worst * swing_pct / 100)
+    if current_pct is not None:
+        limits = replace(limits, supply_current_max=p["supply_current"].worst * current_pct / 100)
+    return replace(stage, target=target, limits=limits)

@@ -311,3 +311,44 @@ def test_infeasible_only_because_stock_is_shared():
     assert result.designs == []
     assert result.explanation is not None
     assert "stock" in str(result.explanation["reason"])
+
+
+def _nominal_gains(job: Job, inv: Inventory, combo) -> list[float]:
+    """|gain| at the nominal point of each stage design of ``combo``, as check reports it."""
+    lines = inv.resistors
+    out = []
+    for st, (q, idx) in zip(job.stages, combo, strict=True):
+        parts = {role: _resolved(role, lines[i]) for role, i in zip(ROLES, idx, strict=True)}
+        res = analyze_stage(replace(job, stages=(st,)), st, parts, q, samples=0)
+        out.append(abs(res.purpose["gain"].nominal))
+    return out
+
+
+@pytest.mark.parametrize("seed, n_lines, n_q, obj, stages", [
+    (7, 9, 2, 1, SAME),      # the band moves the optimum
+    (1, 8, 2, 0, TWO),       # no design of this shelf reaches the band
+], ids=["seed7-moved", "seed1-infeasible"])
+def test_nominal_gain_band_matches_exhaustive(seed, n_lines, n_q, obj, stages):
+    """A stage held to a band of |gain| at the nominal point (the limit an existing stage
+    sets for consolidation) is honoured exactly by the board search: the band here is
+    1.3–2 × the unheld optimum's gain of each stage, so that optimum is out (source: the
+    exhaustive enumeration above with the same band in each stage's target)."""
+    build = 5
+    inv = _shelf(seed, n_lines, n_q, build)
+    job = _board(OBJECTIVE_SETS[obj], build, stages)
+    _free, combo, _ = _exhaustive(job, inv)
+    gains = _nominal_gains(job, inv, combo)
+    held = replace(job, stages=tuple(
+        replace(st, target=replace(st.target, gain_nominal_min=1.3 * g, gain_nominal_max=2 * g))
+        for st, g in zip(job.stages, gains, strict=True)))
+    expected, _combo, _ = _exhaustive(held, inv)
+    result = design_board(held, inv, top=1)
+    if expected is None:
+        assert result.status == "infeasible" and not result.designs
+        return
+    assert result.status == "optimal"
+    d = result.designs[0]
+    assert _key(job.search.objectives, build, _board_of(d)) == expected
+    for s, g in zip(d.stages, gains, strict=True):
+        assert 1.3 * g * (1 - 1e-9) <= abs(s.check.purpose["gain"].nominal) <= 2 * g * (1 + 1e-9)
+    _recheck(held, d)

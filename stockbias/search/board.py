@@ -37,6 +37,7 @@ from .board_model import BoardModel, Choice, LineInfo, StageSetup
 from .board_options import StageOptions, stage_options
 from .candidates import Shelf, build_shelf, micro, stage_networks, usable_transistors
 from .deadline import Deadline
+from .keep_purpose import held_from_reference, screen_options
 from .prepass import PLANS, vertex_check
 
 __all__ = [
@@ -85,7 +86,8 @@ class BoardStage:
                 "ok": self.check.ok, "ic_margin": self.ic_margin,
                 "changed": self.changed,
                 "worst_case": c["worst_case"], "constraints": c["constraints"],
-                "nominal": c["nominal"], "warnings": self.check.warnings,
+                "nominal": c["nominal"], "purpose": c.get("purpose"),
+                "warnings": self.check.warnings,
                 "cautions": self.check.cautions}
 
 
@@ -457,7 +459,10 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
                 if prepass.expired():
                     skipped[stage.name] = skipped.get(stage.name, 0) + 1
                     continue
-                groups.append(stage_options(sj, stage, si, net_name, q, cands, prepass))
+                opts = stage_options(sj, stage, si, net_name, q, cands, prepass)
+                if held_from_reference(stage):
+                    opts = screen_options(sj, stage, opts)
+                groups.append(opts)
         n_opts[stage.name] = sum(g.size for g in groups)
         setups.append(StageSetup(stage.name, groups))
         if progress is not None:

@@ -20,7 +20,9 @@ A limit the job itself sets on the same figure stays when it is the stricter one
 never relaxed.  Where today's design does not meet one of the job's own purpose limits
 (its worst-case swing below ``swing_pk``, say), the record says so and the job's limit
 stands.  A figure today's design does not define (a nominal point that is not active, no
-swing left at some corner) is not held, and the record says why.
+swing left at some corner) is not held, and the record says why; a design saturated or
+cut off at some corner is no reference for the worst-case figures (input resistance,
+swing, supply current), which are then not held either.
 """
 
 from __future__ import annotations
@@ -46,6 +48,7 @@ __all__ = [
     "defaults_text",
     "effective_keep",
     "figures_of",
+    "held_from_reference",
     "hold_purpose",
     "parse_keep_purpose",
     "screen_options",
@@ -189,6 +192,12 @@ def hold_purpose(stage: Stage, ref: CheckResult, keep: KeepPurpose | None
                              before["supply_current"])
     tr: dict[str, Any] = {}
     lr: dict[str, Any] = {}
+    # a stage saturated or cut off at some corner is no reference for the figures taken over
+    # the corners (its current, input resistance and swing there are not a working stage's)
+    working = all(c.ok for c in ref.constraints if c.name == "active_region")
+    if not working:
+        held.notes.append("today's design is saturated or cut off at some corner: its "
+                          "worst-case input resistance, swing and supply current are not held")
     if keep.gain_pct is not None:
         if gain is None or gain == 0:
             held.notes.append("today's nominal point does not amplify (not active): its gain "
@@ -196,19 +205,19 @@ def hold_purpose(stage: Stage, ref: CheckResult, keep: KeepPurpose | None
         else:
             g, f = abs(gain), keep.gain_pct / 100
             tr["gain_nominal_min"], tr["gain_nominal_max"] = g * (1 - f), g * (1 + f)
-    if keep.rin_pct is not None:
+    if keep.rin_pct is not None and working:
         if rin is None or rin <= 0:
             held.notes.append("today's input resistance is not defined at every corner: not "
                               "held")
         else:
             tr["rin_min"] = _stricter_min(t.rin_min, rin * keep.rin_pct / 100)
-    if keep.swing_pct is not None:
+    if keep.swing_pct is not None and working:
         if swing is None or swing <= 0:
             held.notes.append("today's design has no swing left at some corner (saturated or "
                               "cut off there): its swing is not held")
         else:
             tr["swing_pk"] = _stricter_min(t.swing_pk, swing * keep.swing_pct / 100)
-    if keep.supply_current_pct is not None and cur is not None and cur > 0:
+    if keep.supply_current_pct is not None and working and cur is not None and cur > 0:
         new = cur * keep.supply_current_pct / 100
         lr["supply_current_max"] = new if lim.supply_current_max is None else min(
             new, lim.supply_current_max)
@@ -229,6 +238,13 @@ def _fmt(x: float, unit: str) -> str:
 def held_job(job: Job, stages: list[Stage]) -> Job:
     """The job with its stages replaced by the held ones."""
     return replace(job, stages=tuple(stages))
+
+
+def held_from_reference(stage: Stage) -> bool:
+    """True when ``stage`` carries a nominal-gain band (a limit only a reference sets): its
+    options are then screened at every vertex (:func:`screen_options`), since the stage's
+    own screens leave the gain to re-verification."""
+    return stage.target.gain_nominal_min is not None or stage.target.gain_nominal_max is not None
 
 
 def screen_options(job: Job, stage: Stage, g: StageOptions) -> StageOptions:
