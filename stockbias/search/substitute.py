@@ -435,8 +435,10 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
             continue
         changes, fixed, cost, proven = _least_rework(
             job, base, q, inventory, deadline, max_changes or len(base), samples, seed)
-        note = "" if changes else ("no rework from stock meets every limit" if proven else
-                                   "time limit reached before a rework was found")
+        kept = (" with the stage's purpose kept (--keep-purpose loosens it)"
+                if held.limits else "")
+        note = "" if changes else (f"no rework from stock meets every limit{kept}" if proven
+                                   else "time limit reached before a rework was found")
         out.append(SubstituteCandidate(q, False, None, changes=changes, check=fixed or res,
                                        drop_in_check=res, added_cost=cost, proven=proven,
                                        note=note))
