@@ -18,7 +18,7 @@ ROOT = Path(__file__).resolve().parent.parent
 SAMPLES = ROOT / "inventory_samples"
 SCHEMA = json.loads((ROOT / "stockbias" / "schemas" / "check.schema.json").read_text())
 SHELF = SAMPLES / "workshop_drawers.csv"
-JOB = SAMPLES / "line_driver_job.toml"
+JOB = ROOT / "tests" / "data" / "line_driver_dc.toml"   # DC window and limits only
 FAILING = "R1=CF-47K,R2=CF-10K,RC=CF-3K3,RE=CF-1K0"   # ±20 % window missed at both ends
 PASSING = "R1=MF-23K7,R2=MF-4K99,RC=CF-2K2,RE=MF-1K00"  # passes a ±30 % window with QN-LB1
 

@@ -18,9 +18,14 @@ BASE = '[supply]\nvolts = 12\ntolerance_pct = 5\n[target]\nic = "1.5 mA"\nic_win
 def test_sample_job_loads() -> None:
     job = load_job(SAMPLES / "line_driver_job.toml")
     stage = job.stage
-    assert stage.target.ic_min == pytest.approx(1.2e-3)   # 1.5 mA − 20 %
-    assert stage.target.ic_max == pytest.approx(1.8e-3)   # 1.5 mA + 20 %
+    assert stage.target.ic_min == pytest.approx(1.05e-3)  # 1.5 mA − 30 %
+    assert stage.target.ic_max == pytest.approx(1.95e-3)  # 1.5 mA + 30 %
     assert stage.target.vce_min == 3.0
+    # its purpose (source: the job file)
+    assert (stage.target.swing_pk, stage.target.gain_min, stage.target.gain_max) == (2.0, 1.5,
+                                                                                    4.0)
+    assert stage.target.rin_min == pytest.approx(5e3)
+    assert job.small_signal.re_bypassed is False
     assert stage.limits.supply_power_max == pytest.approx(0.06)
     assert job.supply.max_ce_voltage == pytest.approx(12.6)
     assert job.small_signal.load == 10e3

@@ -15,7 +15,7 @@ from stockbias.cli.app import app
 ROOT = Path(__file__).resolve().parent.parent
 SAMPLES = ROOT / "inventory_samples"
 SCHEMAS = ROOT / "stockbias" / "schemas"
-JOB = str(SAMPLES / "line_driver_job.toml")
+JOB = str(ROOT / "tests" / "data" / "line_driver_dc.toml")   # DC window and limits only
 VALUES = "R1=MF-2K49,R2=CF-4K7,RE=CF-4K7,RC=CF-680R"
 runner = CliRunner()
 

@@ -26,7 +26,7 @@ def shelf() -> Inventory:
 
 @pytest.fixture(scope="module")
 def job():
-    return load_job(SAMPLES / "line_driver_job.toml")
+    return load_job(ROOT / "tests" / "data" / "line_driver_dc.toml")  # DC limits only
 
 
 def test_every_design_passes_check_and_dense_monte_carlo(job, shelf):

@@ -57,22 +57,25 @@ def with_design_defaults(job: Job) -> tuple[Job, list[str]]:
     for stage in job.stages:
         t, lim = stage.target, stage.limits
         who = f"stage '{stage.name}': " if job.is_board else ""
-        sec = "[stage.target]" if job.is_board else "[target]"
+        # the key as the job's error messages name it (no brackets: the terminal markup
+        # would take them for a style)
+        sec = "stage.target" if job.is_board else "target"
         if t.divider_ratio_min is None and stage.topology in ("divider", "any"):
             t = replace(t, divider_ratio_min=DIVIDER_RATIO_DEFAULT)
             notes.append(f"{who}divider current ≥ {DIVIDER_RATIO_DEFAULT:g} × IB at every "
-                         f"corner (I(R2)/IB, rule of thumb, common practice); set {sec} "
-                         "divider_ratio_min = 0 to drop it")
+                         f"corner (I(R2)/IB, rule of thumb, common practice); "
+                         f"{sec}.divider_ratio_min = 0 in the job drops it")
         if lim.supply_current_max is None and lim.supply_power_max is None:
             cap = SUPPLY_CURRENT_FACTOR * t.ic_max
             lim = replace(lim, supply_current_max=cap)
             notes.append(f"{who}supply current ≤ {SUPPLY_CURRENT_FACTOR:g} × IC max = "
                          f"{format_quantity(cap, 'A')} at the worst corner (the bias network "
-                         "draws at most half the collector's largest current); set "
-                         f"{sec.replace('target', 'limits')} supply_current_max to change it")
+                         "draws at most half the collector's largest current); "
+                         f"{sec.replace('target', 'limits')}.supply_current_max in the job "
+                         "changes it")
         if t.swing_pk is None and t.gain_min is None:
-            notes.append(f"{who}the job states no swing_pk or gain_min in {sec}: the designs "
-                         "are ranked by their objectives alone and may leave little output "
-                         "swing or gain; state what the stage must do")
+            notes.append(f"{who}the job states no {sec}.swing_pk or {sec}.gain_min: the "
+                         "designs are ranked by their objectives alone and may leave little "
+                         "output swing or gain; state what the stage must do")
         stages.append(replace(stage, target=t, limits=lim))
     return replace(job, stages=tuple(stages)), notes
