@@ -120,8 +120,12 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
                                   for r, p in ex.closest.get("parts", {}).items())
                 console.print(f"Closest design: {ex.closest.get('topology')}, "
                               f"{ex.closest.get('transistor')}" + (f", {parts}" if parts else ""))
-            if ex.relaxation:
-                console.print(f"[bold]What would help:[/bold] {ex.relaxation['text']}")
+            levers = getattr(ex, "levers", None) or ([ex.relaxation] if ex.relaxation else [])
+            if levers:
+                console.print("[bold]What would help[/bold] (each lever computed: the search "
+                              "re-run with it finds the design named):")
+                for lever in levers:
+                    console.print(f"  • {lever['text']}")
     if result.excluded_transistors:
         console.print("Transistors left out: " + "; ".join(
             f"{x['part_id']} ({x['reason']})" for x in result.excluded_transistors))

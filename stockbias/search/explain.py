@@ -1,21 +1,21 @@
-"""Why nothing on the shelf meets the job, how close it gets, and one change that helps.
+"""Why nothing on the shelf meets the job, how close it gets, and the levers that help.
 
-Everything here is computed: the search is run again on a job with one requirement
-relaxed, the best design it finds is analysed against the *original* job with the
-path ``check`` uses (the binding constraint, its worst value, the corner), and the
-relaxation is tightened by bisection to the smallest change that still admits a
-design.  Relaxations tried, in order: a wider IC window, a lower VCE headroom, a
-higher supply-power limit, more stock (build quantity one), and, when no transistor
-qualifies, the ratings a transistor to buy must have.
+Everything here is computed: the search is run again on a changed job or shelf, the
+best design it finds is analysed against the *original* job with the path ``check``
+uses (every limit it misses, its worst value, the corner), and each lever of
+:mod:`.levers` (a value to buy, an hFE bin, 1 % parts, another network, a build the
+stock covers, a lower headroom down to the stage's floor, a wider window, more supply
+power) comes with its numbers and the design that proves it.  Advice never lowers the
+gain, the swing or the input resistance the job asks for, and never puts the VCE
+headroom within 0.5 V of VCE(sat) or below 1 V.  When no transistor qualifies, the
+ratings a transistor to buy must have.
 """
 
 from __future__ import annotations
 
-import math
 import time
 from dataclasses import dataclass, field, replace
 
-from ..errors import StockbiasError
 from ..job import Job
 from ..parts import Inventory
 from ..units import format_quantity
@@ -32,29 +32,13 @@ class Explanation:
     closest: dict[str, object] | None = None
     misses: list[dict[str, object]] = field(default_factory=list)
     relaxation: dict[str, object] | None = None
+    #: every lever found to work, each with its numbers and the design that proves it
+    levers: list[dict[str, object]] = field(default_factory=list)
 
     def to_dict(self) -> dict[str, object]:
         return {"binding": self.binding, "message": self.message, "closest": self.closest,
-                "misses": self.misses, "relaxation": self.relaxation}
-
-
-def _with_stage(job: Job, **target_or_limits) -> Job:
-    st = job.stage
-    t = {k: v for k, v in target_or_limits.items() if k in st.target.__dataclass_fields__}
-    lim = {k: v for k, v in target_or_limits.items() if k in st.limits.__dataclass_fields__}
-    stage = replace(st, target=replace(st.target, **t), limits=replace(st.limits, **lim))
-    return replace(job, stages=(stage,))
-
-
-def _try(job: Job, inventory: Inventory, seconds: float):
-    from .design import design
-
-    job = replace(job, search=replace(job.search, top=1))
-    try:
-        r = design(job, inventory, top=1, time_limit_s=max(seconds, 0.5), _explain=False)
-    except StockbiasError:  # a relaxed job that cannot be searched helps nobody
-        return None
-    return r.designs[0] if r.designs else None
+                "misses": self.misses, "relaxation": self.relaxation,
+                "levers": self.levers}
 
 
 def _closest(job: Job, found) -> tuple[dict[str, object], list[dict[str, object]]]:
@@ -71,7 +55,17 @@ def _closest(job: Job, found) -> tuple[dict[str, object], list[dict[str, object]
 
 
 def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float = 20.0):
-    """An :class:`Explanation` for a job the search found no design for."""
+    """An :class:`Explanation` for a job the search found no design for.
+
+    The closest design (from a relaxed IC window, or else a higher supply-power limit or
+    the VCE headroom floor) is analysed against the original job and every limit it
+    misses is named.  Then each lever of :mod:`.levers` is computed in turn within the
+    budget; the first that works is ``relaxation``, all that work are ``levers``.  No
+    lever lowers the gain, the swing or the input resistance the job asks for, or puts
+    the VCE headroom below :func:`.levers.headroom_floor`.
+    """
+    from . import levers as lv
+
     t0 = time.monotonic()
     if status == "unknown":
         return Explanation("time_limit", "the time limit ran out before any design was found "
@@ -94,81 +88,82 @@ def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float
                            relaxation={"kind": "more_stock", "text": "restock resistors or "
                                        "lower [build] quantity"})
 
-    def left() -> float:
-        return max(budget_s - (time.monotonic() - t0), 0.5)
+    def left(share: float) -> float:
+        return max((budget_s - (time.monotonic() - t0)) * share, 0.5)
+
+    found_levers: list[dict[str, object]] = []
+    # the closest design: what a relaxed window (or power limit) admits, judged by the job
+    window, closest_design = lv.wider_window(job, inventory, left(0.25))
+    power, power_design = (None, None)
+    if closest_design is None or _ok_under(job, closest_design):
+        power, power_design = lv.supply_power(job, inventory, left(0.15))
+        closest_design = closest_design or power_design
+    if closest_design is None:
+        # diagnosis only (never advice): without the headroom, swing and gain limits, the
+        # design the shelf comes closest with, so every limit it misses can be named
+        loose = replace(st, target=replace(st.target, vce_min=0.0, swing_pk=None,
+                                           gain_min=None, gain_max=None))
+        closest_design = lv.probe(replace(job, stages=(loose,)), inventory, left(0.15))
+    closest, misses = (_closest(job, closest_design) if closest_design is not None
+                       else (None, []))
+    vce_sat = min((q.vce_sat for q in search.transistors), default=0.2)
+    steps = [
+        lambda: lv.buy_value(job, inventory, left(0.3)),
+        lambda: lv.hfe_bin(job, inventory, search.transistors, left(0.3)),
+        lambda: lv.one_percent(job, inventory, left(0.3)),
+        lambda: lv.other_network(job, inventory, left(0.3)),
+        lambda: lv.build_quantity(job, inventory, left(0.4)),
+        lambda: lv.headroom(job, inventory, vce_sat, left(0.5)),
+    ]
+    for step in steps:
+        if time.monotonic() - t0 > budget_s:
+            break
+        got = step()
+        if got is not None:
+            found_levers.append(got)
+    if window is not None:
+        found_levers.append(window)
+    if power is not None:
+        found_levers.append(power)
+    cause = _cause(job, search, found_levers)
+    binding = misses[0]["name"] if misses else ("stock" if any(
+        x["kind"] == "build_quantity" for x in found_levers) else "all")
+    message = _miss_text(misses) if misses else "no relaxed search found a closest design"
+    if cause:
+        message = f"{cause}; {message}"
+    if not found_levers:
+        message += ("; no lever tried within the time budget (a value to buy, an hFE bin, 1 % "
+                    "parts, another network, a smaller build, a lower headroom down to the "
+                    "stage's floor, a wider window) makes the stage work")
+    return Explanation(binding, message, closest, misses,
+                       found_levers[0] if found_levers else None, found_levers)
+
+
+def _cause(job: Job, search, found_levers: list[dict[str, object]]) -> str:
+    """The physical cause where one can be computed: collector feedback's RB need."""
+    st = job.stage
+    nets = getattr(search, "networks", [st.topology])
+    if "collector_feedback" not in nets or not search.transistors:
+        return ""
+    from .prepass import corners
 
     t = st.target
-    # 1. the IC window: the smallest symmetric widening that admits a design
-    wide = _with_stage(job, ic_min=t.ic_min / 4, ic_max=t.ic_max * 4)
-    found = _try(wide, inventory, left() / 4)
-    if found is not None and not _ok_under(job, found):
-        lo, hi = 0.0, math.log(4.0)
-        best = found
-        for _ in range(7):
-            mid = 0.5 * (lo + hi)
-            f = math.exp(mid)
-            got = _try(_with_stage(job, ic_min=t.ic_min / f, ic_max=t.ic_max * f), inventory,
-                       left() / 10)
-            if got is not None:
-                hi, best = mid, got
-            else:
-                lo = mid
-        f = math.exp(hi)
-        closest, misses = _closest(job, best)
-        binding = misses[0]["name"] if misses else "ic_window"
-        return Explanation(
-            binding, _miss_text(misses), closest, misses,
-            {"kind": "wider_window", "ic_min_a": t.ic_min / f, "ic_max_a": t.ic_max * f,
-             "text": f"widen the IC window to {t.ic_min / f * 1e3:.4g}–{t.ic_max * f * 1e3:.4g} "
-                     "mA"})
-    # 2. headroom, 3. supply power, 4. stock
-    relaxations = []
-    if t.vce_min > 0 or t.swing_pk:
-        relaxations.append(("lower_headroom", {"vce_min": 0.0, "swing_pk": None}))
-    if st.limits.supply_power_max is not None:
-        relaxations.append(("higher_supply_power", {"supply_power_max": None}))
-    if t.gain_min is not None or t.gain_max is not None:
-        relaxations.append(("gain_window", {"gain_min": None, "gain_max": None}))
-    for kind, change in relaxations:
-        found = _try(_with_stage(job, **change), inventory, left() / 3)
-        if found is None:
-            continue
-        closest, misses = _closest(job, found)
-        worst = {c["name"]: c for c in misses}
-        if kind == "lower_headroom":
-            v = worst.get("vce_min", worst.get("swing_saturation", {})).get("worst")
-            text = (f"lower the VCE headroom to {math.floor(v * 100) / 100:.3g} V"
-                    if isinstance(v, float) and v > 0 else "lower the VCE headroom")
-            rel = {"kind": kind, "vce_min_v": v, "text": text}
-        elif kind == "higher_supply_power":
-            v = worst.get("supply_power", {}).get("worst")
-            rel = {"kind": kind, "supply_power_max_w": v,
-                   "text": f"allow {v * 1e3:.3g} mW from the supplies"
-                   if isinstance(v, float) else "raise the supply-power limit"}
-        else:
-            rel = {"kind": kind, "text": "widen the gain window"}
-        return Explanation(misses[0]["name"] if misses else kind, _miss_text(misses), closest,
-                           misses, rel)
-    if job.build.quantity > 1:
-        found = _try(replace(job, build=replace(job.build, quantity=1)), inventory, left() / 3)
-        if found is not None:
-            need = {}
-            for p in found.check.parts.values():
-                for part in p.parts:
-                    need[part.part_id] = need.get(part.part_id, 0) + job.build.quantity
-            short = {pid: n - inventory.find_resistor(pid).qty for pid, n in need.items()
-                     if n > inventory.find_resistor(pid).qty}
-            text = ", ".join(f"{n} more {pid}" for pid, n in short.items()) or \
-                "restock the lines short of the build"
-            return Explanation("stock", "a design exists, but the shelf does not hold enough "
-                               f"pieces for {job.build.quantity} boards",
-                               {"topology": found.topology,
-                                "transistor": found.transistor.part_id},
-                               [], {"kind": "more_stock", "text": f"buy {text}",
-                                    "short": short})
-    return Explanation("all", "no combination on the shelf meets the job even with one "
-                       "requirement relaxed; widen the IC window, lower the headroom, or stock "
-                       "more values")
+    need_v = max(t.vce_min, max(q.vce_sat for q in search.transistors) + (t.swing_pk or 0.0))
+    # VCE = VBE + IB·RB in collector feedback: at the largest hFE (hot) and the window's top
+    # current, IB = IC/β is smallest, so RB ≥ (VCE need − VBE)·β / IC max
+    rb = []
+    for q in search.transistors:
+        cn = corners(job, q, "collector_feedback")
+        rb.append(((need_v - cn.vbe_hi) * cn.beta_hi / t.ic_max, q, cn.beta_hi))
+    rb_need, q, beta = min(rb, key=lambda x: x[0])
+    largest = max((r.value_ohm for r in search.shelf.lines), default=0.0)
+    if rb_need <= largest:
+        return ""
+    return (f"RB would need about {format_quantity(rb_need, 'ohm')} (VCE = VBE + IB·RB ≥ "
+            f"{need_v:.3g} V with {q.part_id}'s hFE up to {q.hfe_max:.0f}, {beta:.0f} at "
+            f"{job.environment.ambient_max_c:g} °C, at IC "
+            f"{format_quantity(t.ic_max, 'A')}); the shelf's largest value is "
+            f"{format_quantity(largest, 'ohm')}")
 
 
 def _ok_under(job: Job, found) -> bool:
@@ -180,7 +175,7 @@ def _miss_text(misses: list[dict[str, object]]) -> str:
     if not misses:
         return "the closest design passes the original limits"
     out = []
-    for c in misses[:3]:
+    for c in misses:
         corner = c.get("corner") or {}
         where = ", ".join(f"{k} {v['setting']}" for k, v in corner.items()
                           if isinstance(v, dict) and v.get("setting") != "interior") \
