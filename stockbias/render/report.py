@@ -150,6 +150,22 @@ def _stock_section(inv: Inventory) -> str:
                if inv.extra_columns else "") + "</p>")
 
 
+def _purpose_cells(purpose: object) -> list[str]:
+    """A design's gain (nominal), input resistance, swing and supply current (worst), as
+    escaped cells; empty where the design carries no figures."""
+    if not isinstance(purpose, Mapping):
+        return [""] * 4
+    out = []
+    for key, unit, side in (("gain", "", "nominal"), ("rin", "ohm", "worst"),
+                            ("swing_pk", "V", "worst"), ("supply_current", "A", "worst")):
+        fig = purpose.get(key)
+        value = fig.get(side) if isinstance(fig, Mapping) else None
+        text = "n/a" if not isinstance(value, (int, float)) else (
+            f"{value:.3g} V/V" if key == "gain" else _q(value, unit))
+        out.append(_e(text))
+    return out
+
+
 def _designs_section(designs: Sequence[Mapping[str, Any]]) -> str:
     rows = []
     for d in designs:
@@ -173,10 +189,11 @@ def _designs_section(designs: Sequence[Mapping[str, Any]]) -> str:
                      _e(f"{cost:.4g}" if isinstance(cost, (int, float)) else ""),
                      _e(d.get("part_count", "")),
                      _e(f"{100 * margin:.2f} %" if isinstance(margin, (int, float)) else ""),
-                     mark])
+                     *_purpose_cells(d.get("purpose")), mark])
     html_out = "<h2>Ranked designs</h2>" + _table(
         ["rank", "topology", "transistor", "parts", "cost per board", "parts per board",
-         "IC margin", "check"], rows, numeric=(0, 4, 5, 6)) + \
+         "IC margin", "gain (nominal)", "input resistance (worst)", "swing (worst)",
+         "supply current (worst)", "check"], rows, numeric=(0, 4, 5, 6, 7, 8, 9, 10)) + \
         f"<p class=\"small\">{_e(IC_MARGIN_DEFINITION)}.</p>"
     try:
         from .plots import design_margin_figure, figure_bytes

@@ -84,7 +84,7 @@ class Design:
             "parts": parts, "absent": [r for r in get_network(self.topology).optional_roles
                                        if r not in parts],
             "ok": self.check.ok, "worst_case": c["worst_case"],
-            "constraints": c["constraints"], "nominal": c["nominal"],
+            "constraints": c["constraints"], "nominal": c["nominal"], "purpose": c["purpose"],
             "warnings": self.check.warnings, "cautions": self.check.cautions,
             "free_role": self.free_role,
             "variants": [v.to_dict() for v in self.variants],
