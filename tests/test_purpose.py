@@ -302,3 +302,13 @@ def test_bundled_job_first_design_is_one_an_engineer_builds():
     assert t.gain_min <= p["gain"].low <= p["gain"].high <= t.gain_max
     assert p["rin"].worst >= t.rin_min
     assert best.check.ok
+
+
+def test_demo_states_what_rank_1_does_and_the_defaults():
+    out = runner.invoke(app, ["demo"])
+    assert out.exit_code == 0, out.output
+    assert "What rank 1 does (RE not bypassed, load 10 kΩ): voltage gain" in out.stdout
+    assert "divider current ≥ 10 × IB at every corner" in out.stdout
+    # the bundled job states supply_power_max: the job's power budget stands, no current
+    # default (source: the job file and the defaults' rule)
+    assert "supply current ≤ 1.5 × IC max" not in out.stdout

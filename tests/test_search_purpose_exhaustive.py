@@ -261,3 +261,32 @@ def test_board_purpose_limits_match_exhaustive(seed, n_lines, n_q, obj, limit, f
     assert {"rin_min": "rin_min", "swing_pk": "swing_saturation",
             "supply_current_max": "supply_current_max"}[limit] in names
     recheck(held, d)
+
+
+@pytest.mark.parametrize("case", [CASES[0], CASES[4], CASES[6]],
+                         ids=["divider-rin", "collector_feedback-gain", "dual_supply-rin"])
+def test_vertex_screen_is_never_stricter_than_check(case):
+    """Every design the search's vertex screen (prepass.vertex_check) rejects fails the
+    full check as well, the purpose limits included: a sample of 40 rejected designs per
+    transistor, each re-run through analyze_stage (source: analyze_stage itself)."""
+    from stockbias.search.candidates import build_shelf
+    from stockbias.search.prepass import vertex_check
+
+    seed, topology, n_lines, n_q = case[:4]
+    inv = _shelf(seed, n_lines, n_q, topology in ("collector_feedback", "fixed_base"))
+    job = _job(case)
+    st = job.stage
+    shelf = build_shelf(job, inv)
+    table = shelf.candidates(optional=False, pairs=False)
+    required = [r.name for r in get_network(topology).roles if not r.optional]
+    combos = np.array(list(itertools.product(range(len(table)), repeat=len(required))))
+    rng = np.random.default_rng(seed)
+    for q in inv.transistors:
+        roles = {role: (table, combos[:, k]) for k, role in enumerate(required)}
+        chk = vertex_check(job, st, topology, q, roles)
+        rejected = np.flatnonzero(~chk["ok"])
+        assert rejected.size
+        for i in rng.choice(rejected, size=min(40, rejected.size), replace=False):
+            parts = {role: shelf.resolved(role, table, int(combos[i, k]))
+                     for k, role in enumerate(required)}
+            assert not analyze_stage(job, st, parts, q, samples=0).ok

@@ -28,7 +28,16 @@ def demo() -> None:
     result.assumptions[:0] = assumed
     render_design(console, job, result)
     if result.designs:
+        from ..render.check_table import purpose_rows
         from ..selection import from_design
+
+        first = result.designs[0].check
+        if first.purpose is not None:
+            said = "; ".join(f"{r['figure']} {r['nominal']}"
+                             f"{' V/V' if r['unit'] == 'V/V' else ''} nominal, "
+                             f"{r['worst']}{' V/V' if r['unit'] == 'V/V' else ''} worst case"
+                             for r in purpose_rows(first))
+            console.print(f"What rank 1 does ({first.purpose.conditions}): {said}")
 
         best = from_design(result.designs[0].to_dict(), "demo rank 1")
         console.print("Next: the full worst-case report of the best design: "
