@@ -477,29 +477,89 @@ class _Search(RowScan):
             live = np.flatnonzero(status != 2)
             order = live[np.lexsort(keys[live].T[::-1])]
             head = [int(k) for k in order[:limit]]
-            if np.any(status[order[:limit]] == 0):
-                # check the next unchecked designs in key order, in growing batches
-                batch = order[status[order] == 0][:batch_size]
-                self.vertex_verify([int(k) for k in batch], keys)
+            # check the next unchecked designs in key order, in growing batches; a design
+            # behind a vertex-checked one of its own network (not yet failed) waits: it
+            # cannot add a network
+            todo: list[int] = []
+            ahead: set[tuple] = set()
+            for k in head:
+                net = self.network(k)
+                if net in ahead:
+                    continue
+                if status[k] == 0:
+                    todo.append(k)
+                elif not self.failed(k):
+                    ahead.add(net)
+            if todo:
+                self.vertex_verify(todo[:batch_size], keys)
                 batch_size = min(batch_size * 2, 65536)
                 if self.deadline.expired():
                     return inf
                 continue
             nets: set[tuple] = set()
+            restart = False
             for k in head:
                 # the bound counts networks: a variant of a network already counted is
                 # not verified here (it cannot add a network)
                 net = self.network(k)
-                if net in nets or not self.stock_ok(k) or self.verify(k) is None:
+                if net in nets:
+                    continue
+                if status[k] == 0:
+                    restart = True      # the design ahead of it in its network just failed
+                    break
+                if not self.stock_ok(k) or self.verify(k) is None:
                     continue
                 nets.add(net)
                 if len(nets) >= self.top:
                     return keys[k]
                 if self.deadline.expired():
                     return inf
+            if restart:
+                continue
             if limit >= order.size:
                 return inf
             limit *= 4
+
+    def failed(self, k: int) -> bool:
+        """Pool design ``k`` is known not to rank: it fails a vertex, the stock or the
+        full check (a design not yet verified is not known to fail)."""
+        if self.pool.status[k] == 2:
+            return True
+        ck = (self.pool.block[k], tuple(sorted(self.pool.roles[k].items())))
+        return (ck in self.verified and self.verified[ck] is None) or not self.stock_ok(k)
+
+    def representatives(self, ids: np.ndarray, kappa: np.ndarray) -> np.ndarray:
+        """Of the pool designs ``ids``, per network the best (in key order, key ≤ κ) that
+        passes every vertex, fits the stock and passes the full check: the only design of
+        its network that can rank (a single stage's stock holds for each design alone)."""
+        ids_l = [int(k) for k in ids]
+        while True:
+            keys = np.stack(self.pool.keys)
+            ids_l = [k for k in ids_l if self.pool.status[k] != 2
+                     and bool(_lex_le(keys[k][None, :], kappa)[0])]
+            ids_l.sort(key=lambda k: (tuple(keys[k].tolist()), k))
+            todo: list[int] = []
+            out: list[int] = []
+            settled: set[tuple] = set()
+            pending: dict[tuple, int] = {}
+            for k in ids_l:
+                net = self.network(k)
+                if net in settled:
+                    continue
+                if self.pool.status[k] == 0:
+                    if pending.get(net, 0) < 4:
+                        todo.append(k)
+                        pending[net] = pending.get(net, 0) + 1
+                    continue
+                if net in pending:
+                    continue            # an unchecked design ahead of it is checked first
+                if self.stock_ok(k) and self.verify(k) is not None:
+                    out.append(k)
+                    settled.add(net)
+            if not todo or self.deadline.expired():
+                return np.asarray(out, dtype=np.int64)
+            self.vertex_verify(todo)
+
 
 def design(job: Job, inventory: Inventory, *, top: int | None = None,
            time_limit_s: float | None = None, progress: Progress | None = None,
@@ -552,19 +612,15 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     if len(pool_keys):
         # designs strictly better than κ must all be offered; of those tied with κ, the
         # re-verified ones already make up the top K (ties rank in any fixed order)
-        below = _lex_le(pool_keys, kappa) & ~np.all(pool_keys == kappa, axis=1)
-        s.vertex_verify([int(k) for k in np.flatnonzero(below)])
-        pool_keys = np.stack(s.pool.keys)
+        # (per network only its best design that passes the full check can rank: the
+        # others are variants, listed with it)
         below = _lex_le(pool_keys, kappa) & ~np.all(pool_keys == kappa, axis=1)
         tied = np.all(pool_keys == kappa, axis=1) & np.array(
             [s.verified.get((s.pool.block[k], tuple(sorted(s.pool.roles[k].items()))))
              is not None for k in range(len(s.pool.keys))])
         if not np.all(kappa < _BIG):
             tied = _lex_le(pool_keys, kappa)
-            s.vertex_verify([int(k) for k in np.flatnonzero(tied)])
-            pool_keys = np.stack(s.pool.keys)
-            tied = _lex_le(pool_keys, kappa)
-        keep = np.flatnonzero((below | tied) & (np.asarray(s.pool.status) == 1))
+        keep = s.representatives(np.flatnonzero(below | tied), kappa)
     else:
         keep = np.zeros(0, dtype=np.int64)
     mdesigns: list[ModelDesign] = []
