@@ -137,6 +137,11 @@ re_bypassed = false
 quantity = 4
 allow_pairs = false
 default_tolerance_pct = 5
+[keep_purpose]
+gain_pct = 10
+rin_pct = 80
+swing_pct = 90
+supply_current_pct = 125
 [search]
 topology = "divider"
 model = "constant_vbe"
