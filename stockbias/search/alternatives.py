@@ -181,17 +181,17 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
                           float(mppm[k]) / 1e6, int(cost[k])) for k in order]
 
 
-def design_variants(s, k: int, verify: bool) -> dict[str, object]:
+def design_variants(s, k: int, verify: bool) -> tuple[str | None, tuple[DesignVariant, ...]]:
     """The free role's variants of the network of the search ``s``'s pool design ``k``,
-    as :class:`.design_result.Design` fields; with ``verify`` each is re-checked by
-    ``analyze_stage`` and one that fails is left out."""
+    (free role, variants) for :class:`.design_result.Design`; with ``verify`` each is
+    re-checked by ``analyze_stage`` and one that fails is left out."""
     b = s.blocks[s.pool.block[k]]
     roles = s.pool.roles[k]
     core = {r: i for r, i in roles.items() if r != PLANS[b.network].free}
     free, found = variants_of(s.job, s.stage, s.shelf, b.network, b.transistor, b.cands, core,
                               s.objectives)
     if free is None:
-        return {"free_role": None, "variants": ()}
+        return None, ()
     rep = roles.get(free)
     out = []
     for v in found:
@@ -227,4 +227,4 @@ def design_variants(s, k: int, verify: bool) -> dict[str, object]:
                                      ic_margin=s.pool.margin[k]))
     # the representative first (it is a best variant; those tied with it follow in order)
     out.sort(key=lambda v: not v.representative)
-    return {"free_role": free, "variants": tuple(out)}
+    return free, tuple(out)

@@ -126,7 +126,7 @@ def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float
     if power is not None:
         found_levers.append(power)
     cause = _cause(job, search, found_levers)
-    binding = misses[0]["name"] if misses else ("stock" if any(
+    binding = str(misses[0]["name"]) if misses else ("stock" if any(
         x["kind"] == "build_quantity" for x in found_levers) else "all")
     message = _miss_text(misses) if misses else "no relaxed search found a closest design"
     if cause:

@@ -117,15 +117,15 @@ def buy_value(job: Job, inv: Inventory, seconds: float) -> dict[str, object] | N
              for pid, (n, roles) in bought.items()]
     shelf = [r.value_ohm for r in inv.bias_resistors]
     words = []
-    for it in items:
-        v = float(it["value_ohm"])  # type: ignore[arg-type]
+    for pid, (n, roles) in bought.items():
+        v = values[pid].value_ohm
         where = ""
         if shelf and v > max(shelf):
             where = f"; the shelf's largest is {_q(max(shelf), 'ohm')}"
         elif shelf and v < min(shelf):
             where = f"; the shelf's smallest is {_q(min(shelf), 'ohm')}"
-        words.append(f"{it['pieces']} pieces of {_q(v, 'ohm')} ±{tol:g} % for "
-                     f"{' and '.join(it['roles'])}{where}")  # type: ignore[arg-type]
+        words.append(f"{n * need} pieces of {_q(v, 'ohm')} ±{tol:g} % for "
+                     f"{' and '.join(roles)}{where}")
     head = "buy one value: " if len(items) == 1 else f"buy {len(items)} values: "
     return {"kind": "buy_value", "text": head + "; ".join(words) + f" (design: "
             f"{_design_text(found)})", "buy": items, "design": _design_text(found)}
@@ -190,8 +190,8 @@ def one_percent(job: Job, inv: Inventory, seconds: float) -> dict[str, object] |
     items = [{"part_id": pid[3:], "value_ohm": by_id[pid].value_ohm, "tolerance_pct": 1.0,
               "tempco_ppm": by_id[pid].tempco_ppm, "roles": roles, "pieces": n * need}
              for pid, (n, roles) in used.items()]
-    words = "; ".join(f"{' and '.join(it['roles'])}: {it['part_id']}'s value at 1 %, "
-                      f"{it['pieces']} pieces" for it in items)  # type: ignore[arg-type]
+    words = "; ".join(f"{' and '.join(roles)}: {pid[3:]}'s value at 1 %, {n * need} pieces"
+                      for pid, (n, roles) in used.items())
     return {"kind": "one_percent", "text": f"1 % parts on the role that binds — {words} "
             f"(design: {_design_text(found)})", "parts": items, "design": _design_text(found)}
 
@@ -280,13 +280,22 @@ def wider_window(job: Job, inv: Inventory, seconds: float) -> tuple[dict | None,
         stage = replace(st, target=replace(st.target, ic_min=t.ic_min / f,
                                            ic_max=t.ic_max * f))
         left = max(seconds - (time.monotonic() - t0), 0.5)
-        return probe(replace(job, stages=(stage,)), inv, left / 4)
+        return probe(replace(job, stages=(stage,)), inv, left / 2)
 
-    best = at(4.0)
-    if best is None:
+    # the smallest widening first (a wide window makes a large search): the first factor
+    # that admits a design bounds the answer, bisection narrows it
+    lo, hi, best = 0.0, None, None
+    for f in (1.25, 1.6, 2.5, 4.0):
+        if time.monotonic() - t0 > seconds:
+            break
+        best = at(f)
+        if best is not None:
+            hi = math.log(f)
+            break
+        lo = math.log(f)
+    if best is None or hi is None:
         return None, None
-    lo, hi = 0.0, math.log(4.0)
-    for _ in range(7):
+    for _ in range(5):
         if time.monotonic() - t0 > seconds:
             break
         mid = 0.5 * (lo + hi)
