@@ -264,6 +264,10 @@ def test_design_defaults_are_filled_stated_and_overridable():
     assert own.stage.target.divider_ratio_min == 0.0
     assert own.stage.limits.supply_current_max is None
     assert notes == []
+    # a gain limit without [small_signal]: the conditions it is judged under are stated
+    _, notes = with_design_defaults(parse_job(_job(target="gain_min = 20")))
+    assert "gain and input resistance with RE taken as bypassed, no load (small_signal not " \
+           "given in the job)" in notes
 
 
 def test_check_applies_no_design_default(shelf):
