@@ -224,3 +224,54 @@ def test_headroom_lever_stays_above_the_floor():
     assert headroom_floor(0.2) <= v < 8.0
     j2, inv2 = _apply(levers["lower_headroom"], job, inv)
     assert design(j2, inv2, top=1).designs
+
+
+DIVIDER = """
+[supply]
+volts = 12
+tolerance_pct = 5
+[target]
+ic = "1 mA"
+ic_window_pct = {window}
+vce_min = "2 V"
+[environment]
+ambient_min_c = 20
+ambient_max_c = 30
+[build]
+quantity = {build}
+[search]
+topology = "divider"
+"""
+
+
+def test_one_percent_lever_names_the_roles_that_bind():
+    """Every drawer line is ±5 %: with a ±15 % window a 1 % part on the binding role is the
+    lever; applied (that value bought at 1 %), the job is feasible."""
+    inv = _drawer(2, largest=100e3, hfe=(150.0, 300.0))
+    job = parse_job(DIVIDER.format(window=15, build=10), "<one percent>")
+    result = design(job, inv)
+    assert result.status == "infeasible"
+    levers = {x["kind"]: x for x in result.explanation.levers}
+    assert "one_percent" in levers, result.explanation.to_dict()
+    lever = levers["one_percent"]
+    assert all(p["pieces"] == 10 * len(p["roles"]) for p in lever["parts"])
+    assert "at 1 % instead of" in lever["text"]
+    j2, inv2 = _apply(lever, job, inv)
+    assert design(j2, inv2, top=1).designs
+
+
+def test_build_quantity_lever_is_the_largest_the_stock_covers():
+    """Every line holds 60 pieces: 70 boards cannot be built; the lever names the largest
+    build that can, and one board more cannot (both checked by searching here)."""
+    inv = _drawer(2, largest=100e3, hfe=(150.0, 300.0))
+    job = parse_job(DIVIDER.format(window=30, build=70), "<build>")
+    result = design(job, inv)
+    assert result.status == "infeasible"
+    levers = {x["kind"]: x for x in result.explanation.levers}
+    assert "build_quantity" in levers, result.explanation.to_dict()
+    n = levers["build_quantity"]["quantity"]
+    assert 1 <= n < 70
+    j2, inv2 = _apply(levers["build_quantity"], job, inv)
+    assert design(j2, inv2, top=1).designs
+    more = replace(job, build=replace(job.build, quantity=n + 1))
+    assert not design(more, inv, top=1).designs

@@ -83,10 +83,12 @@ def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float
                                 f"and at least {job.build.quantity} pieces",
                         "vceo_min_v": need, "ic_max_min_a": st.target.ic_max})
     if not search.shelf.lines:
+        fewer = lv.build_quantity(job, inventory, max(budget_s, 0.5))
         return Explanation("stock", f"no resistor line holds {job.build.quantity} pieces (one "
                            "build's worth)",
-                           relaxation={"kind": "more_stock", "text": "restock resistors or "
-                                       "lower [build] quantity"})
+                           relaxation=fewer or {"kind": "more_stock", "text": "restock "
+                                                "resistors or lower [build] quantity"},
+                           levers=[fewer] if fewer else [])
 
     def left(share: float) -> float:
         return max((budget_s - (time.monotonic() - t0)) * share, 0.5)

@@ -187,11 +187,14 @@ def one_percent(job: Job, inv: Inventory, seconds: float) -> dict[str, object] |
     if not used:
         return None
     by_id = {c.part_id: c for c in copies}
+    was = {f"1% {r.part_id}": r.tolerance_pct for r in inv.bias_resistors}
     items = [{"part_id": pid[3:], "value_ohm": by_id[pid].value_ohm, "tolerance_pct": 1.0,
               "tempco_ppm": by_id[pid].tempco_ppm, "roles": roles, "pieces": n * need}
              for pid, (n, roles) in used.items()]
-    words = "; ".join(f"{' and '.join(roles)}: {pid[3:]}'s value at 1 %, {n * need} pieces"
-                      for pid, (n, roles) in used.items())
+    words = "; ".join(
+        f"{' and '.join(roles)}: {_q(by_id[pid].value_ohm, 'ohm')} at 1 % instead of "
+        f"{pid[3:]} (±{was[pid]:g} %), {n * need} pieces"
+        for pid, (n, roles) in used.items())
     return {"kind": "one_percent", "text": f"1 % parts on the role that binds — {words} "
             f"(design: {_design_text(found)})", "parts": items, "design": _design_text(found)}
 
