@@ -217,7 +217,8 @@ def test_substitute_with_a_kept_pair_equals_an_exhaustive_one_change_search(tmp_
     # RE is 10 k (1 %, +100 ppm/°C) ‖ 8.2 k (10 %, −350 ppm/°C): unequal values, tolerances
     # and tempco signs
     values = {"R1": "R-47K", "R2": "R-47K", "RC": "R-2K7", "RE": "R-10K|R-8K2"}
-    result = substitute(job, values, "Q-A", inv, samples=0)
+    # the worst-case limits alone (the stage's purpose: tests/test_keep_purpose.py)
+    result = substitute(job, values, "Q-A", inv, samples=0, purpose=False)
     amb = (0.0, 50.0)
     base = {r: resolve_resistor(r, t, inv, 5.0, ambient=amb) for r, t in values.items()}
     assert (base["RE"].arrangement, base["RE"].part_ids) == ("parallel", ["R-10K", "R-8K2"])
