@@ -3,13 +3,13 @@
 from __future__ import annotations
 
 from rich.console import Console
-from rich.table import Table
 
 from ..analysis.constraints import IC_MARGIN_DEFINITION
+from ..inert_text import console_text
 from ..job import Job
 from ..units import format_quantity
 
-__all__ = ["render_design"]
+__all__ = ["design_block", "render_design"]
 
 _STATUS = {
     "optimal": "[bold green]optimal[/bold green] (proven: no design on the shelf ranks higher)",
@@ -39,6 +39,64 @@ def _range_text(d: dict) -> str:
             f"{format_quantity(rng['max_ohm'], 'ohm')}, {n} values in stock")
 
 
+def _fill(items: list[str], width: int, indent: str) -> list[str]:
+    """Items joined three spaces apart into lines of at most ``width`` characters; an item
+    is never split (a value with its unit and part id stays whole)."""
+    lines: list[str] = []
+    line = ""
+    for item in items:
+        if line and len(line) + 3 + len(item) > width:
+            lines.append(line)
+            line = ""
+        line = f"{line}   {item}" if line else f"{indent}{item}"
+    if line:
+        lines.append(line)
+    return lines
+
+
+def design_block(d: dict, width: int) -> list[str]:
+    """One ranked design as lines of at most ``width`` characters (console-safe text).
+
+    Header (rank, network, transistor, cost and counts), the parts (the free role with
+    the range of stock values that work with the network), the worst-case DC point, and
+    what the stage does (gain, input resistance, swing, supply current at the worst
+    corner) when the result carries it.
+    """
+    width = max(width, 40)
+    head = [f"{d['rank']:>2}. {d['topology']}, {d['transistor']['part_id']} ({d['polarity']})",
+            f"cost {d['cost']:.4g}/board, {d['part_count']} parts, "
+            f"{d['distinct_values']} values"]
+    parts = []
+    for role, part in d["parts"].items():
+        text = f"{role} {_parts_text(part)}"
+        if role == d.get("free_role") and _range_text(d):
+            text += f" ({_range_text(d)})"
+        parts.append(text)
+    parts += [f"{role} absent" for role in d.get("absent", [])]
+    wc = d["worst_case"]
+    ic, vce = wc.get("ic", {}), wc.get("vce", {})
+    dc = [f"IC {format_quantity(ic.get('min', 0), 'A')}–{format_quantity(ic.get('max', 0), 'A')}",
+          f"VCE ≥ {format_quantity(vce.get('min', 0), 'V')}",
+          f"IC margin {100 * d['ic_margin']:.2f} %"]
+    lines = _fill(head, width, "") + _fill(parts, width, "    ") + _fill(dc, width, "    ")
+    pur = d.get("purpose") or {}
+    does = []
+    gain = pur.get("gain") or {}
+    if gain.get("nominal") is not None:
+        does.append(f"gain {gain['nominal']:.3g} V/V (|gain| ≥ {gain['worst']:.3g})"
+                    if gain.get("worst") is not None else f"gain {gain['nominal']:.3g} V/V")
+    for key, label, unit, side in (("rin", "input", "ohm", "≥"),
+                                   ("swing_pk", "swing", "V", "≥"),
+                                   ("supply_current", "supply", "A", "≤")):
+        fig = pur.get(key) or {}
+        if fig.get("worst") is not None:
+            does.append(f"{label} {side} {format_quantity(fig['worst'], unit)}"
+                        + (" pk" if key == "swing_pk" else ""))
+    if does:
+        lines += _fill(["does:", *does], width, "    ")
+    return [console_text(line) for line in lines]
+
+
 def render_design(console: Console, job: Job, result, show_variants: bool = False) -> None:
     """Print a :class:`stockbias.search.design.DesignResult`.
 
@@ -58,42 +116,20 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
     console.print(line)
     if result.designs:
         data = [d.to_dict() for d in result.designs]
-        roles: list[str] = []
+        console.print("[bold]Ranked designs[/bold]: each a distinct bias network (the "
+                      "transistor and the resistors that set IC)")
         for d in data:
-            roles += [r for r in d["parts"] if r not in roles]
-        table = Table(title="Ranked designs: each row a distinct bias network (the "
-                      "transistor and the resistors that set IC)", title_justify="left")
-        for col in ("#", "topology", "transistor", *roles, "cost/board", "parts", "values",
-                    "IC worst case", "VCE min", "margin"):
-            table.add_column(col)
-        for d in data:
-            wc = d["worst_case"]
-            ic = wc.get("ic", {})
-            vce = wc.get("vce", {})
-            cells = [str(d["rank"]), d["topology"], f"{d['transistor']['part_id']} "
-                     f"({d['polarity']})"]
-            for r in roles:
-                text = _parts_text(d["parts"][r]) if r in d["parts"] else "absent"
-                if r == d.get("free_role") and _range_text(d):
-                    text += f"\n({_range_text(d)})"
-                cells.append(text)
-            cells += [f"{d['cost']:.4g}", str(d["part_count"]), str(d["distinct_values"]),
-                      f"{format_quantity(ic.get('min', 0), 'A')}–"
-                      f"{format_quantity(ic.get('max', 0), 'A')}",
-                      format_quantity(vce.get("min", 0), "V"), f"{100 * d['ic_margin']:.2f} %"]
-            table.add_row(*cells)
+            for line in design_block(d, console.width):
+                console.print(line, soft_wrap=True, highlight=False)
             if show_variants and d.get("free_role"):
                 for v in d["variants"]:
                     if v["representative"]:
                         continue
-                    sub = ["", "", f"  {d['free_role']} variant"]
-                    for r in roles:
-                        sub.append(_parts_text(v) if r == d["free_role"] else "")
-                    sub += [f"{v['cost']:.4g}", "", "", "",
-                            format_quantity(v["vce_min"], "V"),
-                            f"{100 * v['ic_margin']:.2f} %"]
-                    table.add_row(*sub)
-        console.print(table)
+                    console.print(console_text(
+                        f"      {d['free_role']} variant {_parts_text(v)}: cost "
+                        f"{v['cost']:.4g}/board, VCE ≥ {format_quantity(v['vce_min'], 'V')}, "
+                        f"IC margin {100 * v['ic_margin']:.2f} %"), soft_wrap=True,
+                        highlight=False)
         free = sorted({d["free_role"] for d in data if d.get("free_role")})
         if free:
             check = ("each re-verified with the same analysis as `stockbias check`"
