@@ -275,3 +275,25 @@ def test_build_quantity_lever_is_the_largest_the_stock_covers():
     assert design(j2, inv2, top=1).designs
     more = replace(job, build=replace(job.build, quantity=n + 1))
     assert not design(more, inv, top=1).designs
+
+
+@pytest.mark.parametrize(("ic", "power_mw"), [("12 mA", 60), ("40 mA", 60), ("3 mA", 20)])
+def test_a_supply_power_no_design_can_meet_is_said_with_its_numbers(
+        tmp_path: Path, ic: str, power_mw: float) -> None:
+    """Hand calculation: every design holds IC ≥ IC min at the highest supply, so the supply
+    power is at least VCC·(1 + tol)·IC min; a limit below that is named with the numbers."""
+    root = Path(__file__).resolve().parent.parent / "inventory_samples"
+    text = (root / "line_driver_job.toml").read_text()
+    text = text.replace('ic = "1.5 mA"', f'ic = "{ic}"').replace(
+        'supply_power_max = "60 mW"', f'supply_power_max = "{power_mw} mW"')
+    job_path = tmp_path / "job.toml"
+    job_path.write_text(text)
+    res = CliRunner(env={"COLUMNS": "200"}).invoke(
+        app, ["design", str(job_path), "-i", str(root / "workshop_drawers.csv"), "--json"])
+    assert res.exit_code == 1, res.output
+    ex = json.loads(res.stdout)["explanation"]
+    ic_a = float(ic.split()[0]) * 1e-3
+    need_w = 12 * 1.05 * ic_a * (1 - 0.30)              # 12 V +5 %, window ±30 %
+    assert ex["binding"] == "supply_power_max"
+    assert ex["levers"][0]["supply_power_max_min_w"] == pytest.approx(need_w, rel=1e-12)
+    assert f"{need_w * 1e3:.4g} mW" in ex["message"]

@@ -158,10 +158,11 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
                               f"{ex.closest.get('transistor')}" + (f", {parts}" if parts else ""))
             levers = getattr(ex, "levers", None) or ([ex.relaxation] if ex.relaxation else [])
             if levers:
-                console.print("[bold]What would help[/bold] (each lever computed: the search "
-                              "re-run with it finds the design named):")
+                note = (" (each lever computed: the search re-run with it finds the design "
+                        "named)" if any(lv.get("design") for lv in levers) else "")
+                console.print(f"[bold]What would help[/bold]{note}:")
                 for lever in levers:
-                    console.print(f"  • {lever['text']}")
+                    console.print(f"  • {console_text(lever['text'])}")
     if result.excluded_transistors:
         console.print("Transistors left out: " + "; ".join(
             f"{x['part_id']} ({x['reason']})" for x in result.excluded_transistors))

@@ -90,6 +90,11 @@ def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float
                                                 "resistors or lower [build] quantity"},
                            levers=[fewer] if fewer else [])
 
+    budget = _budget_cause(job)
+    if budget is not None:
+        name, text, lever = budget
+        return Explanation(name, text, relaxation=lever, levers=[lever])
+
     def left(share: float) -> float:
         return max((budget_s - (time.monotonic() - t0)) * share, 0.5)
 
@@ -166,6 +171,38 @@ def _cause(job: Job, search, found_levers: list[dict[str, object]]) -> str:
             f"{job.environment.ambient_max_c:g} °C, at IC "
             f"{format_quantity(t.ic_max, 'A')}); the shelf's largest value is "
             f"{format_quantity(largest, 'ohm')}")
+
+
+def _budget_cause(job: Job) -> tuple[str, str, dict[str, object]] | None:
+    """A supply budget no design can meet, from the window alone (a necessary condition).
+
+    Every design must hold IC ≥ IC min at every corner, and the collector current is drawn
+    from the supply: at the highest positive rail the supply current is at least IC min and
+    the supply power at least VCC max · IC min (for either polarity: the current through the
+    collector and emitter flows between the rails).  A limit below that cannot be met by
+    any shelf; say so with the numbers rather than search for a closest design.
+    """
+    st = job.stage
+    t, lim = st.target, st.limits
+    vcc_max = job.supply.volts * (1 + job.supply.tolerance_pct / 100)
+    if lim.supply_current_max is not None and lim.supply_current_max < t.ic_min:
+        text = (f"supply_current_max {_q(lim.supply_current_max, 'A')} is below the IC window's "
+                f"minimum {_q(t.ic_min, 'A')}: the collector current alone exceeds it in every "
+                "design")
+        return "supply_current_max", text, {
+            "kind": "supply_current", "text": f"raise supply_current_max above "
+            f"{_q(t.ic_min, 'A')} (the IC window's minimum; the divider and base currents come "
+            "on top), or lower the IC window", "supply_current_max_min_a": t.ic_min}
+    need = vcc_max * t.ic_min
+    if lim.supply_power_max is not None and lim.supply_power_max < need:
+        text = (f"supply_power_max {_q(lim.supply_power_max, 'W')} cannot be met: the collector "
+                f"current alone, at the window's minimum {_q(t.ic_min, 'A')} from the highest "
+                f"supply {vcc_max:.4g} V, draws {_q(need, 'W')}")
+        return "supply_power_max", text, {
+            "kind": "supply_power", "text": f"raise supply_power_max above {_q(need, 'W')} "
+            "(the divider and base currents come on top), or lower the IC window below "
+            f"{_q(lim.supply_power_max / vcc_max, 'A')}", "supply_power_max_min_w": need}
+    return None
 
 
 def _ok_under(job: Job, found) -> bool:
