@@ -62,8 +62,8 @@ def rank_networks(designs: list[ModelDesign], groups: list[tuple], objectives: t
     CP-SAT picks the best design not forbidden; ``accept(index)`` re-verifies it.  A
     rejected design is forbidden alone (another variant of its network may still pass); an
     accepted one forbids its whole network, so the next solve picks the best variant of
-    another network.  Returns (ranked, status, rejected count) like
-    :func:`.solve.solve_ranked`.
+    another network.  Returns (ranked, status, rejected count); status is ``optimal``,
+    ``feasible``, ``infeasible`` or ``unknown``.
     """
     members: dict[tuple, list[int]] = {}
     for i, g in enumerate(groups):

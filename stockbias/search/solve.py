@@ -16,7 +16,7 @@ from ortools.sat.python import cp_model
 
 from .model import ModelDesign, build_model
 
-__all__ = ["RankedSolve", "solve_ranked"]
+__all__ = ["RankedSolve", "solve_one"]
 
 
 @dataclass(frozen=True)
@@ -66,40 +66,3 @@ def solve_one(designs: list[ModelDesign], objectives: tuple[str, ...], line_qty:
             proven = False
             bound[name] = float(solver.BestObjectiveBound())
     return RankedSolve(design, fixed, proven, bound)
-
-
-def solve_ranked(designs: list[ModelDesign], objectives: tuple[str, ...], line_qty: list[int],
-                 build_qty: int, top: int, seed: int, deadline: float,
-                 accept=None) -> tuple[list[RankedSolve], str, int]:
-    """Up to ``top`` designs in lexicographic order.
-
-    ``accept(index) -> bool`` re-verifies a picked design; a rejected one is forbidden and
-    the rank solved again.  Returns (ranked, status, rejected count); status is
-    ``optimal``, ``feasible``, ``infeasible`` or ``unknown``.
-    """
-    ranked: list[RankedSolve] = []
-    forbidden: set[int] = set()
-    rejected = 0
-    proven = True
-    if not designs:
-        return [], "infeasible", 0
-    while len(ranked) < top and len(forbidden) < len(designs):
-        got = solve_one(designs, objectives, line_qty, build_qty, forbidden, seed, deadline)
-        if got == "infeasible":
-            break
-        if got == "unknown":
-            proven = False
-            break
-        assert isinstance(got, RankedSolve)
-        forbidden.add(got.design)
-        if accept is not None and not accept(got.design):
-            rejected += 1
-            continue
-        ranked.append(got)
-        proven &= got.proven
-        if time.monotonic() > deadline:
-            proven = proven and len(ranked) >= top
-            break
-    if not ranked:
-        return [], ("infeasible" if proven else "unknown"), rejected
-    return ranked, ("optimal" if proven else "feasible"), rejected
