@@ -47,7 +47,7 @@ class StockbiasError(Exception):
     line : int, optional
         Physical line number in that file (1-based).
     column : str, optional
-        Column, key or field name.
+        Column, key or field name, or the command-line option (``"--netlist"``).
     text : str, optional
         The offending text exactly as found.
     """
@@ -89,7 +89,11 @@ class StockbiasError(Exception):
         )
 
     def one_line(self) -> str:
-        """The error as one line: ``file:line: column 'col': message (text 'x')``."""
+        """The error as one line: ``file:line: column 'col': message (text 'x')``.
+
+        A ``column`` that starts with ``-`` is a command-line option and reads
+        ``option --netlist: message``.
+        """
         place = ""
         if self.file is not None:
             place = self.file
@@ -98,7 +102,11 @@ class StockbiasError(Exception):
             place += ": "
         elif self.line is not None:
             place = f"line {self.line}: "
-        col = f"{self.field_label} '{self.column}': " if self.column is not None else ""
+        col = ""
+        if self.column is not None and self.column.startswith("-"):
+            col = f"option {self.column}: "  # a command-line option, not a place in a file
+        elif self.column is not None:
+            col = f"{self.field_label} '{self.column}': "
         txt = f" (text '{self.text}')" if self.text is not None else ""
         return printable(f"{place}{col}{self.message}{txt}")
 

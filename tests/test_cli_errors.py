@@ -292,7 +292,7 @@ def test_job_not_utf8_directory_and_missing(tmp_path: Path) -> None:
     for path in (tmp_path, tmp_path / "none.toml"):
         result = _check(path)
         assert result.exit_code == 2
-        assert "job_file" in _one_line(result.output)
+        assert "JOB_FILE" in _one_line(result.output)  # the usage line's name for it
 
 
 def test_permission_denied_reading_the_job_or_the_stock(

@@ -54,7 +54,48 @@ def _interrupted() -> None:
     sys.exit(EXIT_INTERRUPTED)
 
 
-class _OneLineErrors(TyperGroup):
+class _Command(typer.core.TyperCommand):
+    """A command whose usage line names its arguments as ``JOB_FILE``, ``[FILE]``...
+
+    typer draws a required argument as ``{job_file}``; the braces read as
+    shell syntax, so each argument is its metavar (or upper-case name), in
+    square brackets only when it may be left out.
+    """
+
+    def collect_usage_pieces(self, ctx: Any) -> list[str]:
+        pieces = [self.options_metavar] if self.options_metavar else []
+        for param in self.get_params(ctx):
+            if param.param_type_name != "argument":
+                pieces.extend(param.get_usage_pieces(ctx))
+                continue
+            name = param.metavar or param.name.upper()
+            if param.nargs != 1:
+                name += "..."
+            pieces.append(name if param.required else f"[{name}]")
+        return pieces
+
+
+class _Group(TyperGroup):
+    """A command group whose command list shows each command's whole summary.
+
+    click cuts the summary to the width left beside the names (``drawers...``
+    at 80 columns); here it wraps instead.
+    """
+
+    def format_commands(self, ctx: Any, formatter: Any) -> None:
+        rows = []
+        for name in self.list_commands(ctx):
+            cmd = self.get_command(ctx, name)
+            if cmd is None or cmd.hidden:
+                continue
+            text = cmd.short_help or (cmd.help or "").split("\n\n")[0]
+            rows.append((name, " ".join(text.split())))
+        if rows:
+            with formatter.section("Commands"):
+                formatter.write_dl(rows)
+
+
+class _OneLineErrors(_Group):
     """A command group whose errors are always one line and an exit code."""
 
     def invoke(self, ctx: Any) -> Any:
@@ -72,7 +113,8 @@ class _OneLineErrors(TyperGroup):
             rv = super().main(args=args, prog_name=prog_name, complete_var=complete_var,
                               standalone_mode=False, windows_expand_args=windows_expand_args,
                               **extra)
-        except NoArgsIsHelpError:  # the help is already shown; no command is a usage error
+        except NoArgsIsHelpError as exc:  # the help, on stdout; no command is a usage error
+            typer.echo(exc.format_message())
             sys.exit(EXIT_BAD_INPUT)
         except UsageError as exc:
             where = f" ({exc.ctx.command_path})" if exc.ctx is not None else ""
@@ -84,7 +126,7 @@ class _OneLineErrors(TyperGroup):
                 typer.echo(line, err=True)
             sys.exit(exc.exit_code)
         except StockbiasError as exc:
-            typer.echo(exc.one_line(), err=True)
+            typer.echo(_with_command(exc, self, argv), err=True)
             sys.exit(exc.exit_code)
         except ClickException as exc:  # a file typer could not open, say: bad input
             typer.echo(f"stockbias: {_flatten(exc.format_message())}", err=True)
@@ -108,6 +150,22 @@ class _OneLineErrors(TyperGroup):
         return code
 
 
+def _with_command(exc: StockbiasError, group: Any, argv: list[str]) -> str:
+    """``exc`` as one line; an error about an option also names the command it was
+    given to (``stockbias export: option --netlist: ...``)."""
+    line = exc.one_line()
+    if not (exc.column or "").startswith("-"):
+        return line
+    words = ["stockbias"]
+    for word in argv:  # the command words lead the arguments: "stock", "reserve"
+        sub = group.commands.get(word) if hasattr(group, "commands") else None
+        if sub is None:
+            break
+        words.append(word)
+        group = sub
+    return f"{' '.join(words)}: {line}"
+
+
 def _internal_error(exc: BaseException, argv: list[str]) -> None:
     """One line for an exception nobody anticipated, the traceback in a report; exit 3."""
     path = write_crash_report(exc, ["stockbias", *argv])
@@ -126,6 +184,9 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
+    # plain help: rich markup would eat bracketed text such as "[stage.values]", and
+    # flags would show a "<bool>" value they do not take
+    rich_markup_mode=None,
     context_settings={"help_option_names": ["-h", "--help"]},
 )
 
@@ -156,13 +217,16 @@ def _register() -> None:
         substitute_cmd,
     )
 
-    app.command("demo")(demo_cmd.demo)
-    app.command("check")(check_cmd.check)
-    app.command("design")(design_cmd.design)
-    app.command("substitute")(substitute_cmd.substitute)
-    app.command("consolidate")(consolidate_cmd.consolidate)
-    app.command("export")(export_cmd.export)
-    app.add_typer(stock_cmd.app, name="stock")
+    app.command("demo", cls=_Command)(demo_cmd.demo)
+    app.command("check", cls=_Command)(check_cmd.check)
+    app.command("design", cls=_Command)(design_cmd.design)
+    app.command("substitute", cls=_Command)(substitute_cmd.substitute)
+    app.command("consolidate", cls=_Command)(consolidate_cmd.consolidate)
+    app.command("export", cls=_Command)(export_cmd.export)
+    app.add_typer(stock_cmd.app, name="stock", cls=_Group)
+    for info in stock_cmd.app.registered_commands:  # the usage line of `stock check`...
+        if info.cls in (None, typer.core.TyperCommand):
+            info.cls = _Command
 
 
 try:

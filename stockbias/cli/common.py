@@ -16,7 +16,10 @@ from ..render.console import make_console
 from ..stock_io import read_inventory
 
 JobArg = Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True,
-                                        help="The job (TOML) file.")]
+                                        metavar="JOB_FILE", help="The job (TOML) file.")]
+BoardArg = Annotated[Path, typer.Argument(
+    exists=True, dir_okay=False, readable=True, metavar="BOARD_FILE",
+    help="The board (TOML) file: its [[stage]] tables with the parts fitted today.")]
 InventoryOpt = Annotated[Path, typer.Option("--inventory", "-i", exists=True, dir_okay=False,
                                             readable=True, help="The stock CSV file.")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print only a JSON object on stdout.")]

@@ -12,11 +12,11 @@ from ..errors import InputError
 from ..outputs import OutputSet
 from ..render.console import make_console
 from ..render.json_out import dumps
-from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, load, search_progress
+from .common import BoardArg, ForceOpt, InventoryOpt, JsonOpt, load, search_progress
 
 
 def consolidate(
-    board_file: JobArg,
+    board_file: BoardArg,
     inventory: InventoryOpt,
     keep: Annotated[list[str] | None, typer.Option(
         "--keep", "-k", help="ROLE@STAGE[,...]: parts that must stay as they are. "

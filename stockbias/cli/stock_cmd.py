@@ -20,7 +20,7 @@ app = typer.Typer(help="Check and look after a stock file.", no_args_is_help=Tru
 @app.command("check")
 def check(
     file: Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True,
-                                         help="The stock CSV file.")],
+                                         metavar="STOCK_FILE", help="The stock CSV file.")],
     json_out: Annotated[bool, typer.Option("--json",
                                            help="Print only a JSON object on stdout.")] = False,
     rows: Annotated[bool, typer.Option(
@@ -57,7 +57,8 @@ def check(
 @app.command("reserve")
 def reserve(
     file: Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True,
-                                         writable=True, help="The stock CSV file to change.")],
+                                         writable=True, metavar="STOCK_FILE",
+                                         help="The stock CSV file to change.")],
     job_file: Annotated[Path, typer.Option("--job", "-j", exists=True, dir_okay=False,
                                            readable=True, help="The job (TOML) file.")],
     rank: RankOpt = None,
