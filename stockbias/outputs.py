@@ -43,7 +43,7 @@ from types import TracebackType
 
 from .errors import InputError
 
-__all__ = ["OutputError", "OutputSet", "file_identity"]
+__all__ = ["OutputError", "OutputSet", "file_identity", "fsync_path"]
 
 
 class OutputError(InputError):
@@ -298,7 +298,7 @@ class OutputSet:
             files = self._staged_files()
             for tmp, final, option in files:  # the declared checks again, just before placing
                 self._check_file(option, final)
-                _fsync_file(tmp)
+                fsync_path(tmp)
             for o in self._outputs.values():
                 if o.folder and any(opt == o.option for _t, _f, opt in files) and \
                         not os.path.lexists(o.path):
@@ -307,7 +307,7 @@ class OutputSet:
             for tmp, final, option in files:
                 placed.append(self._place(tmp, final, option))
             for folder in {os.path.realpath(p.final.parent) for p in placed}:
-                _fsync_dir(folder)
+                fsync_path(folder)
         except BaseException:
             for p in reversed(placed):
                 with contextlib.suppress(OSError):
@@ -402,16 +402,9 @@ def _umask() -> int:
     return mask
 
 
-def _fsync_file(path: Path) -> None:
+def fsync_path(path: str | Path) -> None:
+    """Flush a file's or a folder's contents to disk (a folder: its entries, after a rename)."""
     fd = os.open(path, os.O_RDONLY)
-    try:
-        os.fsync(fd)
-    finally:
-        os.close(fd)
-
-
-def _fsync_dir(folder: str) -> None:
-    fd = os.open(folder, os.O_RDONLY)
     try:
         os.fsync(fd)
     finally:

@@ -51,6 +51,7 @@ from datetime import datetime
 from pathlib import Path
 
 from .errors import InputError
+from .outputs import fsync_path
 from .parts import Inventory, Resistor, Transistor
 from .stock_io import read_inventory
 
@@ -282,14 +283,6 @@ def _fingerprint(path: Path) -> tuple[str, int, int, int]:
     return hashlib.sha256(data).hexdigest(), st.st_size, st.st_mtime_ns, st.st_ino
 
 
-def _fsync_dir(folder: Path) -> None:
-    fd = os.open(folder, os.O_RDONLY)
-    try:
-        os.fsync(fd)
-    finally:
-        os.close(fd)
-
-
 def _write_backup(path: Path, data: bytes, now: datetime) -> Path:
     stamp = now.strftime("%Y%m%d-%H%M%S")
     for n in range(1, 1000):
@@ -455,7 +448,7 @@ def _replace(path: Path, data: bytes, new_data: bytes, inventory: Inventory,
                                     "run it again", file=shown)
         os.replace(tmp, path)
         tmp = None  # type: ignore[assignment]
-        _fsync_dir(folder)
+        fsync_path(folder)
         step("replaced")
         return backup
     except BaseException:
