@@ -17,7 +17,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import constants
 
 __all__ = [
     "CELSIUS_TO_KELVIN",
@@ -35,12 +34,16 @@ __all__ = [
     "vbe_at",
 ]
 
-CELSIUS_TO_KELVIN = constants.zero_Celsius  # 273.15 K
+# Exact by the definition of the SI units (2019 revision, the values CODATA 2018 and
+# scipy.constants carry); written out so that importing the device laws needs no scipy.
+BOLTZMANN = 1.380649e-23  # J/K
+ELEMENTARY_CHARGE = 1.602176634e-19  # C
+CELSIUS_TO_KELVIN = 273.15  # K at 0 °C
 TNOM_DEFAULT_C = 27.0  # SPICE nominal temperature of model-card parameters
 STOCK_REFERENCE_C = 25.0  # stock data (hFE, VBE, ICBO) are specified here
 VBE_TEMPCO_DEFAULT = -2.0e-3  # V/°C at constant IC, common practice
 XTB_DEFAULT = 1.5  # typical of device model cards (recalled); ngspice's own default is 0
-_K_OVER_Q = constants.k / constants.e  # V/K
+_K_OVER_Q = BOLTZMANN / ELEMENTARY_CHARGE  # V/K
 
 
 def thermal_voltage(temp_k):

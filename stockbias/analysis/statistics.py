@@ -17,7 +17,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy import special, stats
 
 from stockbias.errors import InputError
 
@@ -70,6 +69,8 @@ def clopper_pearson(
                          text=f"{successes}/{trials}")
     if not 0.0 < confidence < 1.0:
         raise InputError("confidence must lie strictly between 0 and 1", text=str(confidence))
+    from scipy import stats  # loaded on first use: the command line starts without scipy
+
     alpha = 1.0 - confidence
     low = 0.0 if k == 0 else float(stats.beta.ppf(alpha / 2.0, k, n - k + 1))
     high = 1.0 if k == n else float(stats.beta.ppf(1.0 - alpha / 2.0, k + 1, n - k))
@@ -115,6 +116,8 @@ def draw_resistor_factors(
         fits = False
     if not fits:
         raise InputError(f"tolerances of shape {tol.shape} do not broadcast to size {shape}")
+    from scipy import special  # loaded on first use: the command line starts without scipy
+
     edge = special.ndtr(-TRUNCATION_SIGMAS)
     u = rng.random(shape)
     # Inverse CDF of the standard normal truncated at ±TRUNCATION_SIGMAS.

@@ -5,19 +5,25 @@ from __future__ import annotations
 import shlex
 import sys
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
-from ..analysis.check import CheckResult, analyze
-from ..assign import parse_assignments
 from ..errors import InputError
-from ..job import Job
-from ..outputs import OutputSet
-from ..parts import Inventory
-from ..render.console import make_console
-from ..render.json_out import dumps
 from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, SeedOpt, load, plot_files
+
+if TYPE_CHECKING:  # loaded by the command when it runs (the analysis brings in scipy)
+    from ..analysis.check import CheckResult
+    from ..job import Job
+    from ..outputs import OutputSet
+    from ..parts import Inventory
+
+
+def analyze(*args: Any, **kwargs: Any) -> CheckResult:
+    """:func:`stockbias.analysis.check.analyze`, loaded on the first call (it brings scipy)."""
+    from ..analysis.check import analyze as run
+
+    return run(*args, **kwargs)
 
 
 def check(
@@ -49,6 +55,10 @@ def check(
     force: ForceOpt = False,
 ) -> None:
     """Analyse a stage with given parts at every worst-case corner; exit 1 if a limit fails."""
+    from ..assign import parse_assignments
+    from ..outputs import OutputSet
+    from ..render.console import make_console
+    from ..render.json_out import dumps
     from ..render.plots import CHECK_PLOTS
 
     outs = OutputSet({"the job file": job_file, "the stock file (--inventory)": inventory},
@@ -126,6 +136,8 @@ def _needs(job: Job, result: CheckResult):
 def _written_notes(job: Job, result: CheckResult, written: dict[str, list[Path]],
                    json_out: bool) -> None:
     """Name the files written (on stderr with --json)."""
+    from ..render.console import make_console
+
     console = make_console(stderr=json_out)
     if "--plot" in written:
         console.print("Plots written: " + ", ".join(str(p) for p in written["--plot"]))

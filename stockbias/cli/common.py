@@ -6,14 +6,13 @@ import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
-from ..job import Job, load_job
-from ..parts import Inventory
-from ..render.console import make_console
-from ..stock_io import read_inventory
+if TYPE_CHECKING:  # the commands load them when they run: --help stays light
+    from ..job import Job
+    from ..parts import Inventory
 
 JobArg = Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True,
                                         metavar="JOB_FILE", help="The job (TOML) file.")]
@@ -42,6 +41,9 @@ def plot_files(stems: tuple[str, ...]) -> list[str]:
 
 def load(job_path: Path, inventory_path: Path | None) -> tuple[Job, Inventory | None]:
     """Load the job and the stock file (errors become one-line messages in cli.app)."""
+    from ..job import load_job
+    from ..stock_io import read_inventory
+
     job = load_job(job_path)
     inv = read_inventory(inventory_path) if inventory_path is not None else None
     return job, inv
@@ -51,6 +53,8 @@ def load(job_path: Path, inventory_path: Path | None) -> tuple[Job, Inventory | 
 def search_progress(json_out: bool, label: str) -> Iterator[Callable[[str, float], None] | None]:
     """A rich progress bar on stderr for searches that run longer than a second (none with
     --json or when stderr is not a terminal); yields the callback the search takes."""
+    from ..render.console import make_console
+
     console = make_console(stderr=True)
     if json_out or not console.is_terminal:
         yield None

@@ -4,15 +4,15 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
 from ..errors import InputError
-from ..outputs import OutputSet
-from ..render.console import make_console
-from ..render.json_out import dumps
 from .common import BoardArg, ForceOpt, InventoryOpt, JsonOpt, load, search_progress
+
+if TYPE_CHECKING:  # loaded by the command when it runs
+    from ..outputs import OutputSet
 
 
 def consolidate(
@@ -44,6 +44,9 @@ def consolidate(
     """Merge a board's resistor values onto fewer stock lines, every stage still meeting its
     worst-case targets and keeping its purpose (gain, input resistance, swing, supply
     current) within the stated tolerances of today's."""
+    from ..outputs import OutputSet
+    from ..render.console import make_console
+    from ..render.json_out import dumps
     from ..search.consolidate import consolidate as run
     from ..search.consolidate import parse_keep
     from ..search.keep_purpose import parse_keep_purpose

@@ -2,17 +2,16 @@
 
 from __future__ import annotations
 
-from ..job import load_job
-from ..render.console import make_console
-from ..samples import sample_path
-from ..stock_io import read_inventory
-
 
 def demo() -> None:
     """Design a line-driver stage from the bundled workshop drawers and show the ranking."""
+    from ..job import load_job
+    from ..render.console import make_console
     from ..render.design_table import render_design
+    from ..samples import sample_path
     from ..search.defaults import with_design_defaults
     from ..search.design import design
+    from ..stock_io import read_inventory
 
     console = make_console()
     shelf = sample_path("workshop_drawers.csv")

@@ -3,14 +3,14 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
-from ..outputs import OutputSet
-from ..render.console import make_console
-from ..render.json_out import dumps
 from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, load, plot_files, search_progress
+
+if TYPE_CHECKING:  # loaded by the command when it runs
+    from ..outputs import OutputSet
 
 
 def design(
@@ -37,6 +37,9 @@ def design(
         "re-verified in full (--top counts networks either way).")] = False,
 ) -> None:
     """Search the stock for the best designs that meet every worst-case limit."""
+    from ..outputs import OutputSet
+    from ..render.console import make_console
+    from ..render.json_out import dumps
     from ..render.plots import DESIGN_PLOTS
     from ..search.defaults import with_design_defaults
     from ..search.design import design as run_design

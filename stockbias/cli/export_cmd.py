@@ -3,18 +3,22 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
 from ..errors import InputError, UnmetError
-from ..job import Job
-from ..outputs import OutputSet
-from ..parts import Inventory
-from ..render.console import make_console
-from ..selection import ACCEPT_CHANGED_OPTION, Selection, choose
 from ..units import format_quantity
 from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, load
+
+if TYPE_CHECKING:  # loaded by the commands when they run (selection brings in numpy)
+    from ..job import Job
+    from ..parts import Inventory
+    from ..selection import Selection
+
+# selection.ACCEPT_CHANGED_OPTION, the name its messages give; written out here so that the
+# option can be declared without loading the analysis (a test checks the two agree)
+ACCEPT_CHANGED_OPTION = "--accept-changed-inputs"
 
 __all__ = ["AcceptChangedOpt", "FromOpt", "RankOpt", "TransistorOpt", "ValuesOpt", "export",
            "select"]
@@ -37,6 +41,8 @@ AcceptChangedOpt = Annotated[bool, typer.Option(
 def select(job: Job, inventory: Inventory, rank: int | None, from_file: Path | None,
            values: list[str] | None, transistor: str | None) -> Selection:
     """The design the command acts on (exactly one of --rank, --from, --values)."""
+    from ..selection import choose
+
     return choose(job, inventory, rank=rank, from_file=from_file, values=values,
                   transistor=transistor)
 
@@ -58,6 +64,8 @@ def export(
     force: ForceOpt = False,
 ) -> None:
     """Export the chosen stage: a SPICE netlist to verify it, a pick list to build it."""
+    from ..outputs import OutputSet
+    from ..render.console import make_console
     from ..render.json_out import dumps
     from ..render.netlist import export_netlist
     from ..render.pick_list import render_pick_list, write_pick_list

@@ -8,10 +8,6 @@ from typing import Annotated
 import typer
 
 from ..errors import InputError, StockFileError, UnmetError
-from ..render.console import make_console
-from ..render.json_out import dumps
-from ..stock_io import read_inventory
-from ..stock_summary import summarise
 from .export_cmd import AcceptChangedOpt, FromOpt, RankOpt, TransistorOpt, ValuesOpt
 
 app = typer.Typer(help="Check and look after a stock file.", no_args_is_help=True)
@@ -28,7 +24,11 @@ def check(
         "summary is drawn by default).")] = False,
 ) -> None:
     """Validate a stock file and summarise what is on the shelf."""
+    from ..render.console import make_console
+    from ..render.json_out import dumps
     from ..render.stock_table import ReadingProgress, render_stock_summary, stock_check_json
+    from ..stock_io import read_inventory
+    from ..stock_summary import summarise
 
     err = make_console(stderr=True)
     show_progress = not json_out and err.is_terminal
@@ -79,6 +79,8 @@ def reserve(
 ) -> None:
     """Take the pieces for a build off the stock file (atomic, with a timestamped backup)."""
     from ..job import load_job
+    from ..render.console import make_console
+    from ..render.json_out import dumps
     from ..render.pick_list import render_reservation
     from ..selection import (
         bench_needs,
@@ -87,6 +89,7 @@ def reserve(
         resolve_selection,
         verify_selection,
     )
+    from ..stock_io import read_inventory
     from ..stock_write import reserve_stock
     from .export_cmd import select
 

@@ -8,10 +8,6 @@ from typing import Annotated
 
 import typer
 
-from ..assign import parse_assignments
-from ..outputs import OutputSet
-from ..render.console import make_console
-from ..render.json_out import dumps
 from .common import (
     ForceOpt,
     InventoryOpt,
@@ -50,7 +46,11 @@ def substitute(
     force: ForceOpt = False,
 ) -> None:
     """Judge every stock transistor for an existing stage: drop-in, least rework, or ruled out."""
+    from ..assign import parse_assignments
     from ..errors import InputError
+    from ..outputs import OutputSet
+    from ..render.console import make_console
+    from ..render.json_out import dumps
     from ..search.keep_purpose import parse_keep_purpose
     from ..search.substitute import substitute as run
 
