@@ -56,6 +56,12 @@ from ..job import Job, Stage
 from ..parts import Transistor
 from ..topologies import get_network
 from .candidates import RoleCandidates
+from .purpose_bounds import (
+    dead_rows,
+    gain_max_conductance,
+    gain_min_conductance,
+    rc_from_conductance,
+)
 
 __all__ = [
     "PLANS",
@@ -308,7 +314,12 @@ def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
                              * (1 - _REL), "left")
         i1 = np.searchsorted(xc.value, np.where(np.isfinite(b_thr), b_thr / f_hi, b_thr)
                              * (1 + _REL), "right")
-    return Rows(grid, a_thr, b_thr, i0, np.maximum(i1, i0), hi_terms, lo_terms, alpha_hi,
+    # rows a purpose limit rules out at some vertex (rin, divider ratio, supply): empty cut
+    dead = dead_rows(job, stage, network, q,
+                     {r: cands[r].low[grid[r]] for r in plan.enumerated},
+                     {r: cands[r].high[grid[r]] for r in plan.enumerated})
+    i1 = np.where(dead, i0, np.maximum(i1, i0))
+    return Rows(grid, a_thr, b_thr, i0, i1, hi_terms, lo_terms, alpha_hi,
                 alpha_lo, cn.icbo_hi, cn.icbo_lo)
 
 
@@ -366,13 +377,18 @@ def free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor,
 
     H: at every checked vertex (IC-max device corner, both VCC ends, both ends of the
     interval role and of ambiguous roles) VCE = VRAIL_C − VE − IC·RC must stay at or above
-    max(VCE(sat), vce_min, VCE(sat) + swing); L: IC·(RC‖RL) ≥ swing at the IC-min vertex.
+    max(VCE(sat), vce_min, VCE(sat) + swing), and |gain| ≤ gain_max there; L: IC·(RC‖RL)
+    ≥ swing and |gain| ≥ gain_min at the IC-min vertex (the gain bounds are the closed
+    forms of :mod:`.purpose_bounds`).
     Also returns IC at the IC-max vertex with the interval role at its low end (A), for the
     RC dissipation check.
     """
     plan = PLANS[network]
     cn = corners(job, q, network)
     t = stage.target
+    hot, cold = job.environment.ambient_max_c, job.environment.ambient_min_c
+    load = job.small_signal.load
+    unbypassed = 0.0 if job.small_signal.re_bypassed else 1.0
     need = max(cn.vce_sat, t.vce_min, cn.vce_sat + (t.swing_pk or 0.0))
     n = idx[plan.interval].size
     h = np.full(n, np.inf)
@@ -397,8 +413,13 @@ def free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor,
                     hh = np.where(ic > 0, (vcc - ve - need) / ic, -np.inf)
                 h = np.minimum(h, hh)
                 ic_top = np.maximum(ic_top, ic)
+                if t.gain_max is not None:       # |gain| ≤ gain_max at this vertex
+                    g = gain_max_conductance(ic, hot, cn.beta_hi, x * unbypassed, q.vaf_v,
+                                             t.gain_max)
+                    h = np.minimum(h, rc_from_conductance(g, load))
     low_need = np.zeros(n)
-    if t.swing_pk:
+    gain_low = t.gain_min is not None and t.gain_min >= 1.0
+    if t.swing_pk or gain_low:
         ic_min = np.full(n, np.inf)
         lo_s = [{}]
         for role in plan.enumerated:
@@ -409,11 +430,17 @@ def free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor,
                     for v in ((lo, hi) if d == 0 else ((lo,) if d > 0 else (hi,)))]
         for s in lo_s:
             n_, d0 = ie_terms(network, s, cn.vcc_lo, cn.vee_lo, cn.beta_lo, cn.vbe_lo, 0.0)
-            ic_min = np.minimum(ic_min, cn.beta_lo / (cn.beta_lo + 1) * n_
-                                / (d0 + xc.high[idx[plan.interval]]))
-        g = ic_min / t.swing_pk - 1.0 / job.small_signal.load
-        with np.errstate(divide="ignore"):
-            low_need = np.where(g > 0, 1.0 / g, np.inf)
+            x_hi = xc.high[idx[plan.interval]]
+            ic_v = cn.beta_lo / (cn.beta_lo + 1) * n_ / (d0 + x_hi)
+            ic_min = np.minimum(ic_min, ic_v)
+            if gain_low:                         # |gain| ≥ gain_min at this vertex
+                g_max = gain_min_conductance(ic_v, cold, cn.beta_lo, x_hi * unbypassed,
+                                             t.gain_min)
+                low_need = np.maximum(low_need, rc_from_conductance(g_max, load))
+        if t.swing_pk:
+            g = ic_min / t.swing_pk - 1.0 / job.small_signal.load
+            with np.errstate(divide="ignore"):
+                low_need = np.maximum(low_need, np.where(g > 0, 1.0 / g, np.inf))
     return h, low_need, ic_top
 
 
