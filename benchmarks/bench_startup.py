@@ -4,7 +4,8 @@ Run: .venv/bin/python benchmarks/bench_startup.py [runs]  (prints a markdown tab
 
 Each command runs in ``runs`` fresh processes (default 7), output to a pipe, and the
 median wall time is set against the median of ``python -c "import numpy"`` measured the
-same way, interleaved with the commands so a change of machine load hits both alike.
+same way, interleaved with the commands so a change of machine load hits both alike
+(the ratio of CPU times, user + system, is the steadier of the two on a loaded machine).
 Timed:
 
 1. ``stockbias --help``;
@@ -60,18 +61,19 @@ def _run_once(code: str, expect: int) -> tuple[float, float]:
 
 
 def measure(runs: int) -> list[tuple[str, float, float, float, float]]:
-    """Rows (label, median wall s, median CPU s, baseline wall s, ratio of walls)."""
+    """Rows (label, median wall s, median CPU s, baseline wall s, baseline CPU s)."""
     rows = []
     for label, code, expect in COMMANDS:
-        walls, cpus, base_walls = [], [], []
+        walls, cpus, base_walls, base_cpus = [], [], [], []
         for _ in range(runs):
-            base_walls.append(_run_once(BASELINE, 0)[0])
+            base_wall, base_cpu = _run_once(BASELINE, 0)
+            base_walls.append(base_wall)
+            base_cpus.append(base_cpu)
             wall, cpu = _run_once(code, expect)
             walls.append(wall)
             cpus.append(cpu)
-        base = statistics.median(base_walls)
-        wall = statistics.median(walls)
-        rows.append((label, wall, statistics.median(cpus), base, wall / base))
+        rows.append((label, statistics.median(walls), statistics.median(cpus),
+                     statistics.median(base_walls), statistics.median(base_cpus)))
     return rows
 
 
@@ -79,10 +81,11 @@ def main() -> None:
     runs = int(sys.argv[1]) if len(sys.argv) > 1 else 7
     _run_once(BASELINE, 0)  # warm the file cache once
     print(f"median of {runs} fresh processes; load average {os.getloadavg()[0]:.1f}\n")
-    print("| command | wall | CPU | `import numpy` wall | ratio |")
-    print("| --- | --- | --- | --- | --- |")
-    for label, wall, cpu, base, ratio in measure(runs):
-        print(f"| {label} | {wall:.3f} s | {cpu:.3f} s | {base:.3f} s | {ratio:.2f} |")
+    print("| command | wall | CPU | `import numpy` wall | CPU | ratio of walls | of CPU |")
+    print("| --- | --- | --- | --- | --- | --- | --- |")
+    for label, wall, cpu, base_wall, base_cpu in measure(runs):
+        print(f"| {label} | {wall:.3f} s | {cpu:.3f} s | {base_wall:.3f} s | {base_cpu:.3f} s "
+              f"| {wall / base_wall:.2f} | {cpu / base_cpu:.2f} |")
 
 
 if __name__ == "__main__":
