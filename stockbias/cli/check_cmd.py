@@ -140,12 +140,13 @@ def _written_notes(job: Job, result: CheckResult, written: dict[str, list[Path]]
 
     console = make_console(stderr=json_out)
     if "--plot" in written:
-        console.print("Plots written: " + ", ".join(str(p) for p in written["--plot"]))
+        console.print("Plots written: " + ", ".join(str(p) for p in written["--plot"]),
+                      markup=False)
     if "--report" in written:
-        console.print(f"Report written: {written['--report'][0]}")
+        console.print(f"Report written: {written['--report'][0]}", markup=False)
     if "--pick-list" in written:
         if not json_out:
             from ..render.pick_list import render_pick_list
 
             render_pick_list(console, _needs(job, result), job.build.quantity)
-        console.print(f"Pick list written: {written['--pick-list'][0]}")
+        console.print(f"Pick list written: {written['--pick-list'][0]}", markup=False)

@@ -85,7 +85,8 @@ def consolidate(
 
         render_consolidate(make_console(), job, result)
     if "--report" in written:
-        make_console(stderr=json_out).print(f"Report written: {written['--report'][0]}")
+        make_console(stderr=json_out).print(f"Report written: {written['--report'][0]}",
+                                            markup=False)
     if result.after is None:
         raise typer.Exit(1)
 

@@ -86,11 +86,11 @@ def design(
         note.print("--plot draws single-stage results; for a board, check each stage with "
                    "`stockbias check BOARD --stage NAME --plot DIR`")
     if "--save" in written:
-        note.print(f"Result saved: {written['--save'][0]}")
+        note.print(f"Result saved: {written['--save'][0]}", markup=False)
     if "--plot" in written:
-        note.print("Plots written: " + ", ".join(str(p) for p in written["--plot"]))
+        note.print("Plots written: " + ", ".join(str(p) for p in written["--plot"]), markup=False)
     if "--report" in written:
-        note.print(f"Report written: {written['--report'][0]}")
+        note.print(f"Report written: {written['--report'][0]}", markup=False)
     if not result.designs:
         raise typer.Exit(1)
 

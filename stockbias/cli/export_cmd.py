@@ -117,7 +117,8 @@ def export(
     if changed and not json_out:
         make_console(stderr=True).print(f"Note: {', '.join(changed)} changed since the "
                                         f"result was saved; {sel.source} re-verified "
-                                        "against the current files: it meets the job.")
+                                        "against the current files: it meets the job.",
+                                        markup=False)
     if exported is not None:
         if str(netlist) == "-":
             typer.echo(exported.text, nl=False)
@@ -133,12 +134,12 @@ def export(
                           f"{t.part_id}, .op at {exported.temperature_c:g} °C{sweep}; "
                           f"expected IC {format_quantity(exported.expected['ic'], 'A')}, "
                           f"VCE {format_quantity(exported.expected['vce'], 'V')} "
-                          "(exponential model)")
+                          "(exponential model)", markup=False)
     if pick_list is not None:
         payload["pick_list"] = {"file": str(pick_list), "build_quantity": job.build.quantity,
                                 "lines": [n.to_dict() for n in needs]}
         if not json_out:
             render_pick_list(console, needs, job.build.quantity)
-            console.print(f"Pick list written to {pick_list}")
+            console.print(f"Pick list written to {pick_list}", markup=False)
     if json_out:
         typer.echo(dumps(payload))

@@ -117,11 +117,12 @@ def reserve(
         if not force:
             raise UnmetError(f"{why}; nothing reserved (--force reserves it anyway)",
                              file=str(job_file))
-        make_console(stderr=True).print(f"Warning: {why}; reserved anyway (--force)")
+        make_console(stderr=True).print(f"Warning: {why}; reserved anyway (--force)", markup=False)
     elif changed:
         make_console(stderr=True).print(f"Note: {', '.join(changed)} changed since the "
                                         f"result was saved; {selection.source} re-verified "
-                                        "against the current files: it meets the job.")
+                                        "against the current files: it meets the job.",
+                                        markup=False)
 
     res = reserve_stock(file, takes, dry_run=dry_run, build_label=f" for {boards} board(s)")
     if json_out:

@@ -87,6 +87,7 @@ def substitute(
 
         render_substitute(make_console(), job, result)
     if "--report" in written:
-        make_console(stderr=json_out).print(f"Report written: {written['--report'][0]}")
+        make_console(stderr=json_out).print(f"Report written: {written['--report'][0]}",
+                                            markup=False)
     if not any(c.fixed for c in result.candidates):
         raise typer.Exit(1)

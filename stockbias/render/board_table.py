@@ -6,6 +6,7 @@ from rich.console import Console
 from rich.table import Table
 
 from ..analysis.constraints import IC_MARGIN_DEFINITION
+from ..inert_text import console_text
 from ..job import Job
 from ..units import format_quantity
 
@@ -30,42 +31,61 @@ def _status(console: Console, status: str, seconds: float, bound: dict[str, floa
 
 
 def _part(p: dict) -> str:
+    """A part as plain text: its value and stock part id(s)."""
     ids = p.get("part_id")
     ids = "+".join(ids) if isinstance(ids, list) else (ids or "outside stock")
     return f"{format_quantity(p['value_ohm'], 'ohm')} {ids}"
 
 
-def _stages_table(title: str, stages: list[dict], show_changes: bool) -> Table:
-    roles: list[str] = []
+def _fill(items: list[tuple[str, str]], width: int, indent: str) -> list[str]:
+    """Items (plain text, the same with markup) three spaces apart in lines of at most
+    ``width`` characters; an item is never split, so a value and its part id stay whole."""
+    lines: list[str] = []
+    line, used = "", 0
+    for plain, shown in items:
+        if line and used + 3 + len(plain) > width:
+            lines.append(line)
+            line, used = "", 0
+        if line:
+            line, used = f"{line}   {shown}", used + 3 + len(plain)
+        else:
+            line, used = f"{indent}{shown}", len(indent) + len(plain)
+    if line:
+        lines.append(line)
+    return lines
+
+
+def _item(text: str, bold: bool = False) -> tuple[str, str]:
+    shown = console_text(text)
+    return text, (f"[bold]{shown}[/bold]" if bold else shown)
+
+
+def _stage_blocks(console: Console, title: str, stages: list[dict],
+                  show_changes: bool) -> None:
+    """One block per stage: name, network and transistor; its parts; its worst-case DC
+    point.  Lines fit the console width and never cut a value or a part id."""
+    width = max(console.width, 40)
+    console.print(console_text(title), soft_wrap=True)
     for s in stages:
-        roles += [r for r in s["parts"] if r not in roles]
-    table = Table(title=title, title_justify="left")
-    for col in ("stage", "topology", "transistor", *roles, "IC worst case", "VCE min",
-                "IC margin", *(("changed",) if show_changes else ())):
-        table.add_column(col)
-    for s in stages:
+        changed = set(s.get("changed", [])) if show_changes else set()
+        head = [_item(f"{s['name']}: {s['topology']}, {s['transistor']['part_id']}")]
+        parts = [_item(f"{role} {_part(p)}", bold=role in changed)
+                 for role, p in s["parts"].items()]
         wc = s["worst_case"]
         ic, vce = wc.get("ic", {}), wc.get("vce", {})
-        cells = [s["name"], s["topology"], s["transistor"]["part_id"]]
-        for r in roles:
-            text = _part(s["parts"][r]) if r in s["parts"] else "absent"
-            if show_changes and r in s["changed"]:
-                text = f"[bold]{text}[/bold]"
-            cells.append(text)
-        cells += [f"{format_quantity(ic.get('min', 0), 'A')}–"
-                  f"{format_quantity(ic.get('max', 0), 'A')}",
-                  format_quantity(vce.get("min", 0), "V"), f"{100 * s['ic_margin']:.2f} %"]
+        dc = [_item(f"IC {format_quantity(ic.get('min', 0), 'A')}–"
+                    f"{format_quantity(ic.get('max', 0), 'A')}"),
+              _item(f"VCE ≥ {format_quantity(vce.get('min', 0), 'V')}"),
+              _item(f"IC margin {100 * s['ic_margin']:.2f} %")]
         if show_changes:
-            cells.append(", ".join(s["changed"]) or "—")
-        table.add_row(*cells)
-    return table
+            dc.append(_item("changed " + (", ".join(s["changed"]) or "none")))
+        for line in (_fill(head, width, "  ") + _fill(parts, width, "    ")
+                     + _fill(dc, width, "    ")):
+            console.print(line, soft_wrap=True, highlight=False)
 
 
 def _bom_table(title: str, bom: list[dict], build: int) -> Table:
-    table = Table(title=title, title_justify="left")
-    for col in ("line", "value", "tol", "per board", f"for {build}", "in stock", "cost each",
-                "where used"):
-        table.add_column(col)
+    rows, widths = [], []
     for r in bom:
         value = ("transistor" if r["kind"] == "transistor"
                  else format_quantity(r["value_ohm"], "ohm"))
@@ -73,8 +93,18 @@ def _bom_table(title: str, bom: list[dict], build: int) -> Table:
         stock = "—" if r["in_stock"] is None else str(r["in_stock"])
         if r["short"]:
             stock = f"[red]{stock} (short)[/red]"
-        table.add_row(r["part_id"] or "(buy)", value, tol, str(r["placements"]),
-                      str(r["needed"]), stock, f"{r['unit_cost']:g}", ", ".join(r["uses"]))
+        widths.append([r["part_id"] or "(buy)", value])
+        rows.append([console_text(r["part_id"]) if r["part_id"] else "(buy)", value, tol,
+                     str(r["placements"]), str(r["needed"]), stock, f"{r['unit_cost']:g}",
+                     console_text(", ".join(r["uses"]))])
+    table = Table(title=title, title_justify="left")
+    for i, col in enumerate(("line", "value", "tol", "per board", f"for {build}", "in stock",
+                             "cost each", "where used")):
+        # the part id and the value keep their whole width; other text wraps, never cut
+        widest = max((len(plain[i]) for plain in widths), default=0) if i < 2 else None
+        table.add_column(col, overflow="fold", min_width=widest)
+    for row in rows:
+        table.add_row(*row)
     return table
 
 
@@ -87,21 +117,21 @@ def _totals(t: dict) -> str:
 def _cautions(console: Console, stage_checks) -> None:
     cautions = {c for chk in stage_checks for c in chk.cautions}
     for c in sorted(cautions):
-        console.print(f"[yellow]Caution:[/yellow] {c}")
+        console.print(f"[yellow]Caution:[/yellow] {console_text(c)}")
 
 
 def _explanation(console: Console, ex: dict | None) -> None:
     if not ex:
         return
-    console.print(f"[bold red]No board.[/bold red] {ex.get('reason', '')}")
+    console.print(f"[bold red]No board.[/bold red] {console_text(ex.get('reason', ''))}")
     inner = ex.get("stage_explanation") or {}
     if inner.get("message"):
-        console.print(f"Stage '{ex.get('stage')}': binding {inner.get('binding')}. "
-                      f"{inner['message']}")
+        console.print(console_text(f"Stage '{ex.get('stage')}': binding "
+                                   f"{inner.get('binding')}. {inner['message']}"))
     relax = inner.get("relaxation") or {}
     hint = relax.get("text") or ex.get("suggestion")
     if hint:
-        console.print(f"[bold]What would help:[/bold] {hint}")
+        console.print(f"[bold]What would help:[/bold] {console_text(hint)}")
 
 
 def purpose_table(title: str, records: list, show_after: bool = True) -> Table:
@@ -109,12 +139,12 @@ def purpose_table(title: str, records: list, show_after: bool = True) -> Table:
     from ..search.keep_purpose import FIGURE_LABELS, change_text
 
     table = Table(title=title, title_justify="left")
-    table.add_column("stage")
+    table.add_column("stage", min_width=max((len(h.stage) for h in records), default=0))
     for label, _unit in FIGURE_LABELS.values():
-        table.add_column(label)
-    table.add_column("held")
+        table.add_column(label, overflow="fold")
+    table.add_column("held", overflow="fold")
     for h in records:
-        cells = [h.stage]
+        cells = [console_text(h.stage)]
         for key, (_label, unit) in FIGURE_LABELS.items():
             before = h.before.get(key)
             after = h.after.get(key) if (show_after and h.after) else None
@@ -159,9 +189,10 @@ def render_board(console: Console, job: Job, result) -> None:
     _status(console, result.status, result.solve_seconds, result.bound)
     for d in result.designs:
         data = d.to_dict()
-        console.print(_stages_table(
-            f"Rank {d.rank}: cost {d.cost:g} per board, {d.part_count} parts, "
-            f"{d.distinct_values} values, {d.bom_lines} BOM lines", data["stages"], False))
+        _stage_blocks(console,
+                      f"Rank {d.rank}: cost {d.cost:g} per board, {d.part_count} parts, "
+                      f"{d.distinct_values} values, {d.bom_lines} BOM lines", data["stages"],
+                      False)
     if result.designs:
         best = result.designs[0]
         console.print(_bom_table("BOM of rank 1", best.bom, job.build.quantity))
@@ -170,16 +201,16 @@ def render_board(console: Console, job: Job, result) -> None:
         _cautions(console, [s.check for s in best.stages])
     _explanation(console, result.explanation)
     if result.assumptions:
-        console.print("[dim]Assumptions: " + "; ".join(result.assumptions) + "[/dim]")
+        console.print("Assumptions: " + "; ".join(result.assumptions), style="dim", markup=False)
 
 
 def render_consolidate(console: Console, job: Job, result) -> None:
     """Print a :class:`stockbias.search.consolidate.ConsolidateResult`."""
     console.print(f"[bold]Consolidation[/bold] of {len(job.stages)} stages, build of "
                   f"{job.build.quantity}; objectives {', '.join(result.objectives)}"
-                  + (f"; kept {', '.join(result.kept)}" if result.kept else ""))
+                  + (f"; kept {console_text(', '.join(result.kept))}" if result.kept else ""))
     _status(console, result.status, result.solve_seconds, result.bound)
-    failing = [n for n, ok in result.before_ok.items() if not ok]
+    failing = [console_text(n) for n, ok in result.before_ok.items() if not ok]
     console.print(_bom_table("BOM before", result.before_bom, job.build.quantity))
     console.print("Before: " + _totals(result.before)
                   + (f"; [red]fails its targets in {', '.join(failing)}[/red]" if failing
@@ -189,8 +220,8 @@ def render_consolidate(console: Console, job: Job, result) -> None:
         from ..search.board import bom_totals
 
         data = result.after.to_dict()
-        console.print(_stages_table(f"After: {result.after.changes} part(s) changed (bold)",
-                                    data["stages"], True))
+        _stage_blocks(console, f"After: {result.after.changes} part(s) changed (in bold)",
+                      data["stages"], True)
         console.print(_bom_table("BOM after", result.after.bom, job.build.quantity))
         after = bom_totals(result.after.bom)
         saved = result.before["bom_lines"] - after["bom_lines"]
@@ -206,6 +237,6 @@ def render_consolidate(console: Console, job: Job, result) -> None:
         purpose_notes(console, result.purpose_rule, purpose)
     _explanation(console, result.explanation)
     if result.explanation and result.explanation.get("purpose"):
-        console.print(f"[bold]Purpose:[/bold] {result.explanation['purpose']}")
+        console.print(f"[bold]Purpose:[/bold] {console_text(result.explanation['purpose'])}")
     if result.assumptions:
-        console.print("[dim]Assumptions: " + "; ".join(result.assumptions) + "[/dim]")
+        console.print("Assumptions: " + "; ".join(result.assumptions), style="dim", markup=False)

@@ -8,6 +8,7 @@ from rich.table import Table
 
 from ..analysis.check import CheckResult
 from ..analysis.constraints import IC_MARGIN_DEFINITION, ConstraintResult
+from ..inert_text import console_text
 from ..job import Job
 from ..units import format_quantity
 
@@ -91,8 +92,8 @@ def render_constraints(console: Console, constraints: list[ConstraintResult],
         worst = _q(c.worst, c.unit) if c.worst == c.worst else "n/a"
         margin = _q(c.margin, c.unit) if c.margin not in (float("inf"), float("-inf")) \
             else "fails (undefined where not active)"
-        table.add_row(mark, f"{c.name}: {c.description}", limit, worst, margin,
-                      corner_text(c.corner))
+        table.add_row(mark, console_text(f"{c.name}: {c.description}"), limit, worst, margin,
+                      console_text(corner_text(c.corner)))
     console.print(table)
 
 
@@ -150,8 +151,8 @@ def render_purpose(console: Console, result: CheckResult) -> None:
     for r in purpose_rows(result):
         unit = " V/V" if r["unit"] == "V/V" else ""
         nominal = r["nominal"] + (unit if r["nominal"] != "n/a" else "")
-        limit = r["limit"].replace(" FAIL", " [bold red]FAIL[/bold red]")
-        table.add_row(r["figure"], nominal, r["worst"] + unit, limit, r["corner"])
+        limit = console_text(r["limit"]).replace(" FAIL", " [bold red]FAIL[/bold red]")
+        table.add_row(r["figure"], nominal, r["worst"] + unit, limit, console_text(r["corner"]))
     console.print(table)
     console.print("  swing = min(VCE − VCE(sat), IC·(RC‖RL)), peak, symmetric; supply current "
                   "= current drawn from the supply (the larger rail current on a split supply)",
@@ -170,22 +171,23 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
         supply += f", {_q(s.negative_volts, 'V')} ±{s.vee_tolerance_pct:g} %"
     env = job.environment
     t = result.transistor
-    console.print(f"[bold]Stage '{result.stage}'[/bold]: {result.topology}, "
-                  f"{t.polarity} {t.part_id} (hFE {t.hfe_min:g}–{t.hfe_max:g}), "
+    console.print(f"[bold]Stage '{console_text(result.stage)}'[/bold]: {result.topology}, "
+                  f"{t.polarity} {console_text(t.part_id)} (hFE {t.hfe_min:g}–{t.hfe_max:g}), "
                   f"{_MODEL_NAMES.get(result.model, result.model)} model, {supply}, "
                   f"{env.ambient_min_c:g} to {env.ambient_max_c:g} °C")
     parts = []
     for role, p in result.parts.items():
-        ids = [q.part_id or "[yellow]NOT IN STOCK[/yellow]" for q in (p.pieces or p.parts)]
+        ids = [console_text(q.part_id) if q.part_id else "[yellow]NOT IN STOCK[/yellow]"
+               for q in (p.pieces or p.parts)]
         ids = ids if p.pieces or p.parts else ["[yellow]NOT IN STOCK[/yellow]"]
         where = f" ({('+' if p.arrangement == 'series' else '|').join(ids)})"
         lo, hi = 100 * p.tol_low, 100 * p.tol_high
         band = f"±{hi:.3g} %" if f"{lo:.3g}" == f"{hi:.3g}" else f"−{lo:.3g}/+{hi:.3g} %"
-        parts.append(f"{role} = {_q(p.value, 'ohm')} {band}{where}")
+        parts.append(f"{console_text(role)} = {_q(p.value, 'ohm')} {band}{where}")
     console.print("Parts: " + ", ".join(parts))
     n_fail = len(result.failing)
     n_all = len(result.constraints)
-    unstocked = [role for role, p in result.parts.items() if not p.in_stock]
+    unstocked = [console_text(role) for role, p in result.parts.items() if not p.in_stock]
     flag = (f" [yellow](with values not in stock: {', '.join(unstocked)})[/yellow]"
             if unstocked else "")
     if n_fail:
@@ -214,9 +216,9 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
                       f"{_q(float(nom['rin']), 'ohm')}, gm "  # type: ignore[arg-type]
                       f"{_q(float(nom['gm']), 'A')}/V")  # type: ignore[arg-type]
     else:
-        console.print(f"  [yellow]Not applicable: {nom['not_active_reason']} (β, gain, gm, "
-                      "input resistance, RSS spreads, stability factors); the voltages and "
-                      "currents above are the real ones.[/yellow]")
+        console.print(f"  [yellow]Not applicable: {console_text(nom['not_active_reason'])} "
+                      "(β, gain, gm, input resistance, RSS spreads, stability factors); the "
+                      "voltages and currents above are the real ones.[/yellow]")
 
     wc = result.worst
     table = Table(title=f"Worst case over {wc.n_vertices} corners (extreme values; maxima of "
@@ -233,15 +235,16 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
         rss_txt = f"{_q(rss['min'], unit)} … {_q(rss['max'], unit)}" \
             if isinstance(rss, dict) else ("n/a" if q in ("ic", "vce") else "")
         label = _LABELS.get(q, f"P {q[2:]}")
-        table.add_row(label, _q(b.min, unit), _q(b.max, unit), rss_txt,
-                      corner_text(b.corner_min), corner_text(b.corner_max))
+        table.add_row(console_text(label), _q(b.min, unit), _q(b.max, unit), rss_txt,
+                      console_text(corner_text(b.corner_min)),
+                      console_text(corner_text(b.corner_max)))
     console.print(table)
     console.print(CORNER_LEGEND, style="dim")
     if wc.non_active_corners:
         console.print(f"[yellow]{wc.non_active_corners} of {wc.n_vertices} corners are not in "
                       f"the active region ({', '.join(wc.regions_seen)}); e.g. at "
-                      f"{corner_text(wc.non_active_example)}. Gain and input resistance are "
-                      "bounded over the active corners only.[/yellow]")
+                      f"{console_text(corner_text(wc.non_active_example))}. Gain and input "
+                      "resistance are bounded over the active corners only.[/yellow]")
     mc = result.monte_carlo
     if mc is not None:
         y = mc.yield_
@@ -252,7 +255,8 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
                       f"by constraint: {fails}")
     st = result.stability
     if st.get("reason"):
-        console.print(f"[bold]Stability[/bold] factors: not applicable ({st['reason']})")
+        console.print(f"[bold]Stability[/bold] factors: not applicable "
+                      f"({console_text(st['reason'])})")
     else:
         console.print(f"[bold]Stability[/bold] at the nominal point: S_ICBO = "
                       f"{float(st['s_icbo']):.3g}, S_VBE = "  # type: ignore[arg-type]
@@ -269,8 +273,8 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
                       f"{float(th['runaway_factor']):.2g} (must stay below 1)")  # type: ignore[arg-type]
     if result.warnings:
         for w in result.warnings:
-            console.print(f"[yellow]warning[/yellow]: {w}")
+            console.print(f"[yellow]warning[/yellow]: {console_text(w)}")
     if result.assumptions:
-        console.print("Assumed: " + "; ".join(result.assumptions))
+        console.print("Assumed: " + console_text("; ".join(result.assumptions)))
     for c in result.cautions:
-        console.print(f"[bold yellow]caution[/bold yellow]: {c}")
+        console.print(f"[bold yellow]caution[/bold yellow]: {console_text(c)}")

@@ -106,7 +106,7 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
     """
     st = job.stage
     t = st.target
-    console.print(f"[bold]Design[/bold] for stage '{st.name}': {st.topology}, IC "
+    console.print(f"[bold]Design[/bold] for stage '{console_text(st.name)}': {st.topology}, IC "
                   f"{format_quantity(t.ic_min, 'A')}–{format_quantity(t.ic_max, 'A')}, VCE ≥ "
                   f"{format_quantity(t.vce_min, 'V')}, build of {job.build.quantity}; "
                   f"objectives {', '.join(result.objectives)}")
@@ -146,16 +146,18 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
                       "same analysis as `stockbias check`.")
         cautions = {c for d in result.designs for c in d.check.cautions}
         for c in sorted(cautions):
-            console.print(f"[yellow]Caution:[/yellow] {c}")
+            console.print(f"[yellow]Caution:[/yellow] {console_text(c)}")
     else:
         ex = result.explanation
         if ex is not None:
-            console.print(f"[bold red]No design.[/bold red] Binding: {ex.binding}. {ex.message}")
+            console.print("[bold red]No design.[/bold red] "
+                          + console_text(f"Binding: {ex.binding}. {ex.message}"))
             if ex.closest:
                 parts = ", ".join(f"{r} {format_quantity(p['value_ohm'], 'ohm')}"
                                   for r, p in ex.closest.get("parts", {}).items())
-                console.print(f"Closest design: {ex.closest.get('topology')}, "
-                              f"{ex.closest.get('transistor')}" + (f", {parts}" if parts else ""))
+                console.print(console_text(f"Closest design: {ex.closest.get('topology')}, "
+                                           f"{ex.closest.get('transistor')}"
+                                           + (f", {parts}" if parts else "")))
             levers = getattr(ex, "levers", None) or ([ex.relaxation] if ex.relaxation else [])
             if levers:
                 note = (" (each lever computed: the search re-run with it finds the design "
@@ -164,7 +166,8 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
                 for lever in levers:
                     console.print(f"  • {console_text(lever['text'])}")
     if result.excluded_transistors:
-        console.print("Transistors left out: " + "; ".join(
-            f"{x['part_id']} ({x['reason']})" for x in result.excluded_transistors))
+        console.print("Transistors left out: " + console_text("; ".join(
+            f"{x['part_id']} ({x['reason']})" for x in result.excluded_transistors)))
     if result.assumptions:
-        console.print("[dim]Assumptions: " + "; ".join(result.assumptions) + "[/dim]")
+        console.print("Assumptions: " + "; ".join(result.assumptions), style="dim",
+                      markup=False)

@@ -63,8 +63,11 @@ def _transistor_cells(t: Transistor) -> list[str]:
 def _rich_table(console: Console, title: str, columns: Sequence[str], right: set[str],
                 rows: list[list[str]], zero_qty_col: int | None) -> None:
     table = Table(title=title, title_justify="left")
-    for col in columns:
-        table.add_column(col, justify="right" if col in right else "left")
+    for i, col in enumerate(columns):
+        # a part id keeps its whole width; other text wraps or folds, never cut with "…"
+        widest = max((len(cells[i]) for cells in rows), default=0) if col == "part id" else None
+        table.add_column(col, justify="right" if col in right else "left", overflow="fold",
+                         min_width=widest)
     for cells in rows:
         shown = [_text(c) for c in cells]
         if zero_qty_col is not None and cells[zero_qty_col] == "0":
