@@ -92,7 +92,7 @@ class StockbiasError(Exception):
         """The error as one line: ``file:line: column 'col': message (text 'x')``.
 
         A ``column`` that starts with ``-`` is a command-line option and reads
-        ``option --netlist: message``.
+        ``option '--netlist': message``.
         """
         place = ""
         if self.file is not None:
@@ -104,7 +104,7 @@ class StockbiasError(Exception):
             place = f"line {self.line}: "
         col = ""
         if self.column is not None and self.column.startswith("-"):
-            col = f"option {self.column}: "  # a command-line option, not a place in a file
+            col = f"option '{self.column}': "  # a command-line option, not a place in a file
         elif self.column is not None:
             col = f"{self.field_label} '{self.column}': "
         txt = f" (text '{self.text}')" if self.text is not None else ""

@@ -73,9 +73,12 @@ FOLDER_OPTIONS = [("check", "--plot", "qpoints.png"), ("design", "--plot",
 
 
 def one_line(result) -> str:
+    """The one error line, after the command it names (``stockbias check: ``)."""
     lines = result.stderr.strip().splitlines()
     assert len(lines) == 1, result.output
-    return lines[0]
+    command, _, rest = lines[0].partition(": ")
+    assert command.split()[0] == "stockbias" and len(command.split()) in (2, 3), lines[0]
+    return rest
 
 
 # --- every command x every output option ---------------------------------------------------

@@ -82,7 +82,8 @@ def test_bracketed_help_named_in_the_fault_report(columns: int) -> None:
 @pytest.mark.parametrize(("words", "cmd"), COMMANDS, ids=IDS)
 def test_flags_show_no_value_placeholder(words: list[str], cmd: object, columns: int) -> None:
     result = invoke([*words, "--help"], columns)
-    assert "<bool>" not in result.output
+    for placeholder in ("<bool>", "<str>", "<list[str]>", "<int range>", "<float range>"):
+        assert placeholder not in result.output  # values are named: N, PART_ID, ROLE=VALUE...
     for p in cmd.params:  # type: ignore[attr-defined]
         if getattr(p, "is_flag", False) and p.help and "--help" not in p.opts:
             line = next(ln for ln in result.output.splitlines() if p.opts[-1] in ln.split())
@@ -108,6 +109,18 @@ def test_usage_line_names_the_arguments_without_braces(words: list[str], usage: 
     assert result.exit_code == 0
     assert result.output.splitlines()[0].rstrip() == usage
     assert "{" not in result.output
+
+
+@pytest.mark.parametrize("columns", WIDTHS)
+def test_option_values_are_named(columns: int) -> None:
+    shown = invoke(["check", "--help"], columns).output
+    for text in ("-v, --values ROLE=VALUE", "-t, --transistor PART_ID", "--samples N",
+                 "--stage NAME", "--tolerance PERCENT", "-i, --inventory <file>"):
+        assert text in shown
+    shown = invoke(["consolidate", "--help"], columns).output
+    for text in ("-k, --keep ROLE@STAGE", "--keep-purpose NAME=PERCENT", "--objectives NAMES",
+                 "--time-limit SECONDS"):
+        assert text in shown
 
 
 @pytest.mark.parametrize("columns", WIDTHS)
@@ -144,8 +157,8 @@ def test_missing_argument_named_as_in_the_usage_line(columns: int) -> None:
 def test_an_error_about_an_option_reads_option_not_column() -> None:
     # wording of StockbiasError.one_line
     assert InputError("--rank counts from 1", column="--rank", text="0").one_line() \
-        == "option --rank: --rank counts from 1 (text '0')"
-    assert JobError("bad", column="--stage").one_line() == "option --stage: bad"
+        == "option '--rank': --rank counts from 1 (text '0')"
+    assert JobError("bad", column="--stage").one_line() == "option '--stage': bad"
     assert JobError("bad", file="j.toml", line=3, column="target.ic").one_line() \
         == "j.toml:3: key 'target.ic': bad"
     assert InputError("bad", column="qty").one_line() == "column 'qty': bad"
@@ -159,13 +172,13 @@ def test_option_error_names_the_option_and_the_command(columns: int) -> None:
     assert result.exit_code == 2
     lines = result.output.strip().splitlines()
     assert len(lines) == 1
-    assert lines[0].startswith("stockbias export: option --netlist: ")
+    assert lines[0].startswith("stockbias export: option '--netlist': ")
     assert "column '--netlist'" not in result.output
 
     result = invoke(["stock", "reserve", shelf, "-j", job, "-t", "QN-LB2", "--dry-run"],
                     columns)
     assert result.exit_code == 2
-    assert result.output.startswith("stockbias stock reserve: option --transistor: ")
+    assert result.output.startswith("stockbias stock reserve: option '--transistor': ")
 
 
 # --- file data in tables ----------------------------------------------------------------

@@ -152,7 +152,7 @@ class _OneLineErrors(_Group):
 
 def _with_command(exc: StockbiasError, group: Any, argv: list[str]) -> str:
     """``exc`` as one line; an error about an option also names the command it was
-    given to (``stockbias export: option --netlist: ...``)."""
+    given to (``stockbias export: option '--netlist': ...``)."""
     line = exc.one_line()
     if not (exc.column or "").startswith("-"):
         return line

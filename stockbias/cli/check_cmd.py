@@ -30,19 +30,21 @@ def check(
     job_file: JobArg,
     inventory: InventoryOpt,
     values: Annotated[list[str] | None, typer.Option(
-        "--values", "-v", help="ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a parallel "
+        "--values", "-v", metavar="ROLE=VALUE",
+        help="ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a parallel "
         "pair A|B. Repeatable. Default: the stage's [stage.values].")] = None,
     transistor: Annotated[str | None, typer.Option(
-        "--transistor", "-t", help="Stock part id of the transistor. Default: the stage's "
+        "--transistor", "-t", metavar="PART_ID",
+        help="Stock part id of the transistor. Default: the stage's "
         "transistor.")] = None,
     json_out: JsonOpt = False,
-    samples: Annotated[int, typer.Option("--samples", min=0, max=10_000_000,
+    samples: Annotated[int, typer.Option("--samples", metavar="N", min=0, max=10_000_000,
                                          help="Monte Carlo boards (0: none).")] = 20000,
     seed: SeedOpt = 0,
     tolerance: Annotated[float | None, typer.Option(
-        "--tolerance", min=0.01, max=50.0,
+        "--tolerance", metavar="PERCENT", min=0.01, max=50.0,
         help="Tolerance, %, for values that are not stock parts (default: the job's).")] = None,
-    stage: Annotated[str | None, typer.Option("--stage",
+    stage: Annotated[str | None, typer.Option("--stage", metavar="NAME",
                                               help="Stage name in a board file.")] = None,
     plot: Annotated[Path | None, typer.Option(
         "--plot", file_okay=False, help="Write the plots (PNG and SVG) into this folder.")]

@@ -23,11 +23,12 @@ InventoryOpt = Annotated[Path, typer.Option("--inventory", "-i", exists=True, di
                                             readable=True, help="The stock CSV file.")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print only a JSON object on stdout.")]
 ValuesOpt = Annotated[list[str], typer.Option(
-    "--values", "-v", help="ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a parallel pair "
+    "--values", "-v", metavar="ROLE=VALUE",
+    help="ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a parallel pair "
     "A|B. Repeatable.")]
-TransistorOpt = Annotated[str, typer.Option("--transistor", "-t",
+TransistorOpt = Annotated[str, typer.Option("--transistor", "-t", metavar="PART_ID",
                                             help="Stock part id of the transistor.")]
-SeedOpt = Annotated[int, typer.Option("--seed", min=0, max=2**31 - 1,
+SeedOpt = Annotated[int, typer.Option("--seed", metavar="N", min=0, max=2**31 - 1,
                                       help="Monte Carlo seed, 0 to 2147483647.")]
 ForceOpt = Annotated[bool, typer.Option(
     "--force", help="Replace output files that exist (a symbolic link is replaced itself, "

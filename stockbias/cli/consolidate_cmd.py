@@ -19,16 +19,18 @@ def consolidate(
     board_file: BoardArg,
     inventory: InventoryOpt,
     keep: Annotated[list[str] | None, typer.Option(
-        "--keep", "-k", help="ROLE@STAGE[,...]: parts that must stay as they are. "
+        "--keep", "-k", metavar="ROLE@STAGE",
+        help="ROLE@STAGE[,...]: parts that must stay as they are. "
         "Repeatable.")] = None,
     objectives: Annotated[str | None, typer.Option(
-        "--objectives", help="Lexicographic order, comma-separated (default "
+        "--objectives", metavar="NAMES", help="Lexicographic order, comma-separated (default "
         "bom_lines,changes,cost; distinct_values and part_count may be named).")] = None,
     time_limit: Annotated[float | None, typer.Option(
-        "--time-limit", min=0.1, max=86400.0,
+        "--time-limit", metavar="SECONDS", min=0.1, max=86400.0,
         help="Seconds for the whole search (default: the board's time_limit_s).")] = None,
     keep_purpose: Annotated[str | None, typer.Option(
-        "--keep-purpose", help="NAME=PERCENT[,...] for every stage, NAME one of gain (± % of "
+        "--keep-purpose", metavar="NAME=PERCENT",
+        help="NAME=PERCENT[,...] for every stage, NAME one of gain (± % of "
         "today's nominal gain), rin (≥ % of today's input resistance), swing (≥ % of today's "
         "worst-case swing), current (≤ % of today's supply current); NAME=off drops one. "
         "Default gain=10,rin=80,swing=90,current=125, or the board's [stage.keep_purpose].")

@@ -16,11 +16,11 @@ if TYPE_CHECKING:  # loaded by the command when it runs
 def design(
     job_file: JobArg,
     inventory: InventoryOpt,
-    top: Annotated[int | None, typer.Option("--top", min=1, max=1000,
+    top: Annotated[int | None, typer.Option("--top", metavar="N", min=1, max=1000,
                                             help="How many designs (default: the job's).")
                    ] = None,
     time_limit: Annotated[float | None, typer.Option(
-        "--time-limit", min=0.1, max=86400.0,
+        "--time-limit", metavar="SECONDS", min=0.1, max=86400.0,
         help="Seconds for the whole search (default: the job's).")] = None,
     json_out: JsonOpt = False,
     save: Annotated[Path | None, typer.Option("--save", dir_okay=False,

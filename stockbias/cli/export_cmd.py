@@ -24,15 +24,18 @@ __all__ = ["AcceptChangedOpt", "FromOpt", "RankOpt", "TransistorOpt", "ValuesOpt
            "select"]
 
 RankOpt = Annotated[int | None, typer.Option(
-    "--rank", min=1, help="Design N of the search (or of the --from file; default 1).")]
+    "--rank", metavar="N",
+    min=1, help="Design N of the search (or of the --from file; default 1).")]
 FromOpt = Annotated[Path | None, typer.Option(
     "--from", exists=True, dir_okay=False, readable=True,
     help="A result saved by design --save (JSON).")]
 ValuesOpt = Annotated[list[str] | None, typer.Option(
-    "--values", "-v", help="ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a parallel pair "
+    "--values", "-v", metavar="ROLE=VALUE",
+    help="ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a parallel pair "
     "A|B. Repeatable. Goes with --transistor.")]
 TransistorOpt = Annotated[str | None, typer.Option(
-    "--transistor", "-t", help="Stock part id of the transistor (with --values).")]
+    "--transistor", "-t", metavar="PART_ID",
+    help="Stock part id of the transistor (with --values).")]
 AcceptChangedOpt = Annotated[bool, typer.Option(
     ACCEPT_CHANGED_OPTION, help="Use a --from result although the job or stock file changed "
     "since it was saved, after re-verifying the design against the current files.")]

@@ -66,7 +66,7 @@ def reserve(
     values: ValuesOpt = None,
     transistor: TransistorOpt = None,
     quantity: Annotated[int | None, typer.Option(
-        "--quantity", "-q", min=1, help="Boards to build (default: the job's [build] "
+        "--quantity", "-q", metavar="N", min=1, help="Boards to build (default: the job's [build] "
         "quantity).")] = None,
     dry_run: Annotated[bool, typer.Option("--dry-run", help="Show what would be taken; "
                                           "write nothing.")] = False,

@@ -27,14 +27,17 @@ def substitute(
     transistor: TransistorOpt,
     json_out: JsonOpt = False,
     max_changes: Annotated[int | None, typer.Option(
-        "--max-changes", min=0, max=8, help="Most resistors a rework may change.")] = None,
+        "--max-changes", metavar="N",
+        min=0, max=8, help="Most resistors a rework may change.")] = None,
     time_limit: Annotated[float | None, typer.Option(
-        "--time-limit", min=0.1, max=86400.0, help="Seconds for the rework searches.")] = None,
-    samples: Annotated[int, typer.Option("--samples", min=0, max=1_000_000,
+        "--time-limit", metavar="SECONDS",
+        min=0.1, max=86400.0, help="Seconds for the rework searches.")] = None,
+    samples: Annotated[int, typer.Option("--samples", metavar="N", min=0, max=1_000_000,
                                          help="Monte Carlo boards per reported check.")] = 2000,
     seed: SeedOpt = 0,
     keep_purpose: Annotated[str | None, typer.Option(
-        "--keep-purpose", help="NAME=PERCENT[,...], NAME one of gain (± % of today's nominal "
+        "--keep-purpose", metavar="NAME=PERCENT",
+        help="NAME=PERCENT[,...], NAME one of gain (± % of today's nominal "
         "gain), rin (≥ % of today's input resistance), swing (≥ % of today's worst-case "
         "swing), current (≤ % of today's supply current); NAME=off drops one. Default "
         "gain=10,rin=80,swing=90,current=125, or the job's [keep_purpose].")] = None,
