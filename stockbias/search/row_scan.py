@@ -16,6 +16,7 @@ itself (:class:`stockbias.search.design._Search`) supplies the lower bounds
 
 from __future__ import annotations
 
+from abc import ABC, abstractmethod
 from dataclasses import dataclass
 
 import numpy as np
@@ -79,18 +80,21 @@ class Block:
         return c.idx, c.ic_hi, c.ic_lo
 
 
-class RowScan:
+class RowScan(ABC):
     """The row order of the design search (a base of the search object)."""
 
     # supplied by the search object
+    @abstractmethod
     def row_bounds(self, b: Block) -> tuple[np.ndarray, np.ndarray]:
-        raise NotImplementedError
+        """Lower bounds of the objective key of each row of ``b``."""
 
+    @abstractmethod
     def expand(self, b: Block, sel: np.ndarray, kappa: np.ndarray) -> None:
-        raise NotImplementedError
+        """Expand the rows ``sel`` of ``b`` into designs, pruned by ``kappa``."""
 
+    @abstractmethod
     def kappa(self) -> np.ndarray:
-        raise NotImplementedError
+        """The key of the K-th best verified network so far (the pruning bound)."""
 
     # --- candidate generation -------------------------------------------------------
     def network_cands(self, net_name: str) -> dict[str, RoleCandidates]:
