@@ -88,11 +88,6 @@ class Deadline:
             return self.hit
         return self.clock() - self.start > fraction * self.limit
 
-    def solver_seconds(self, floor: float = 0.05) -> float:
-        """The time CP-SAT may take: what is left, but never zero (a solver given no time
-        at all reports UNKNOWN without looking), s."""
-        return max(self.remaining(), floor)
-
     def monotonic_at(self) -> float:
         """The deadline as a :func:`time.monotonic` value (for code that compares times), s."""
         if self._checks_left is not None or self.clock is not time.monotonic:

@@ -235,11 +235,6 @@ def _fmt(x: float, unit: str) -> str:
     return format_quantity(x, unit)
 
 
-def held_job(job: Job, stages: list[Stage]) -> Job:
-    """The job with its stages replaced by the held ones."""
-    return replace(job, stages=tuple(stages))
-
-
 def held_from_reference(stage: Stage) -> bool:
     """True when ``stage`` carries a nominal-gain band (a limit only a reference sets): its
     options are then screened at every vertex (:func:`screen_options`), since the stage's
