@@ -17,6 +17,7 @@ from pathlib import Path
 __all__ = [
     "InputError",
     "JobError",
+    "ModelCardError",
     "NotationError",
     "Problem",
     "StockFileError",
@@ -120,6 +121,12 @@ class InputError(StockbiasError, ValueError):
 
 class NotationError(InputError):
     """Text that is not a valid quantity in engineering notation."""
+
+
+class ModelCardError(InputError):
+    """A SPICE model library that is unreadable or holds a malformed ``.model`` card."""
+
+    field_label = "parameter"
 
 
 class JobError(InputError):
