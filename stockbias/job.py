@@ -66,7 +66,7 @@ _SECTIONS: dict[str, dict[str, str | None]] = {
     "supply": {"volts": "V", "tolerance_pct": "%", "negative_volts": "V",
                "negative_tolerance_pct": "%", "mains_derived": None},
     "target": {"ic": "A", "ic_window_pct": "%", "ic_min": "A", "ic_max": "A", "vce_min": "V",
-               "swing_pk": "V", "gain_min": "", "gain_max": "", "yield_min": "",
+               "swing_pk": "V", "gain_min": "", "gain_max": "", "yield_min": "%",
                "rin_min": "ohm", "divider_ratio_min": ""},
     "limits": {"supply_power_max": "W", "resistor_derating": "", "tj_max": "°C",
                "derating_knee_c": "°C", "derating_zero_c": "°C", "supply_current_max": "A"},
@@ -144,6 +144,11 @@ class _Parser:
                 value = parse_quantity(raw, unit or "")
             except NotationError as exc:
                 raise self.error(exc.message, section, key, raw, occurrence) from None
+        if key == "yield_min" and isinstance(raw, (int, float)) and 0 < value <= 1:
+            wanted = 100 * value if value < 1 else 99.9
+            raise self.error(f"yield_min is a percent (at least 50, below 100), not a "
+                             f"fraction: for {wanted:.6g} % write yield_min = {wanted:.6g}",
+                             section, key, raw, occurrence)
         problem = implausible(key, value)
         if problem is not None:
             raise self.error(problem, section, key, raw, occurrence)
@@ -242,11 +247,10 @@ class _Parser:
                 q["gain_min"] >= q["gain_max"]:
             raise self.error(f"gain_min must be below gain_max ({t['gain_max']})", section,
                              "gain_min", t["gain_min"], occurrence)
-        if q["yield_min"] is not None and not 0 < q["yield_min"] <= 1:
-            raise self.error("yield_min is a fraction: more than 0 and at most 1", section,
-                             "yield_min", t["yield_min"], occurrence)
+        # the job states a percent; the Target (and JSON) keep the yield as a fraction
+        yield_min = None if q["yield_min"] is None else round(q["yield_min"] / 100, 12)
         return Target(ic_min, ic_max, vce_min, q["swing_pk"], q["gain_min"], q["gain_max"],
-                      q["yield_min"], ic_set=q["ic"] if not has_bounds else None,
+                      yield_min, ic_set=q["ic"] if not has_bounds else None,
                       rin_min=q["rin_min"], divider_ratio_min=q["divider_ratio_min"])
 
     def limits(self, t: dict[str, Any], section: str, base: Limits | None = None,

@@ -4,7 +4,7 @@ A value outside its range is far more likely a typo or a unit slip (``ic =
 1.5`` for 1.5 mA, ``volts = 1e308``) than a design, and many such values would
 only fail deep inside the analysis.  The job reader refuses them with a
 one-line error naming the key, the range and the reason.  Values are in the
-units the job stores (SI base units, °C, percentage numbers, fractions).
+units the job writes (SI base units, °C, percentage numbers, fractions).
 """
 
 from __future__ import annotations
@@ -93,7 +93,10 @@ PLAUSIBLE: dict[str, Plausible] = {
                           "plausible supply"),
     "gain_min": Plausible(1e-3, 1e6, "", "the magnitude of a stage's voltage gain"),
     "gain_max": Plausible(1e-3, 1e6, "", "the magnitude of a stage's voltage gain"),
-    "yield_min": Plausible(0.0, 1.0, "", "a fraction: 0.95 is 95 %", low_open=True),
+    "yield_min": Plausible(50.0, 100.0, "%", "the share of built boards that pass, in percent; "
+                           "below 50 % is no build target, and 100 % cannot be shown by "
+                           "sampling (ask for 99.9)",
+                           high_open=True),
     "rin_min": Plausible(1.0, 1e9, "ohm", "an input resistance from 1 Ω up to an "
                          "electrometer's 1 GΩ"),
     "divider_ratio_min": Plausible(0.0, 1000.0, "", "the divider current as a multiple of "

@@ -27,6 +27,7 @@ from stockbias.analysis.constraints import ic_margin
 from stockbias.cli.app import app
 from stockbias.job import _SECTIONS, parse_job
 from stockbias.stock_io import read_inventory
+from stockbias.units import format_quantity
 
 ROOT = Path(__file__).resolve().parent.parent
 SCHEMA = json.loads((ROOT / "stockbias" / "schemas" / "check.schema.json").read_text())
@@ -117,7 +118,7 @@ vce_min = "1 V"
 swing_pk = "0.5 V"
 gain_min = 1.5
 gain_max = 3
-yield_min = 0.5
+yield_min = 50
 rin_min = "100"
 divider_ratio_min = 5
 [limits]
@@ -163,7 +164,7 @@ vce_min = "2 V"
 swing_pk = "1 V"
 gain_min = 0.3
 gain_max = 5
-yield_min = 0.9
+yield_min = "90 %"
 [limits]
 supply_power_max = "60 mW"
 [environment]
@@ -212,6 +213,10 @@ def test_every_job_key_through_every_output(tmp_path: Path, shelf: Path, job_tex
     assert expected <= names
     by = {c["name"]: c for c in payload["constraints"]}
     assert by["gain_min"]["unit"] == by["gain_max"]["unit"] == "V/V"
+    # the job writes yield_min in percent; JSON keeps the fraction, the screens the percent
+    pct = 50 if "yield_min = 50" in job_text else 90
+    assert by["yield_min"]["limit"] == pct / 100
+    assert 0 <= by["yield_min"]["worst"] <= 1
 
     plots, report = tmp_path / "plots", tmp_path / "report.html"
     text = runner.invoke(app, [*base, "--plot", str(plots), "--report", str(report)])
@@ -220,11 +225,14 @@ def test_every_job_key_through_every_output(tmp_path: Path, shelf: Path, job_tex
     for name in expected:
         assert name in text.stdout
     assert re.search(r"≥ \d[\d.]* V/V", text.stdout)        # gain limits in their unit
+    assert f"≥ {pct} %" in text.stdout
+    assert f"{format_quantity(100 * by['yield_min']['worst'], '%')}" in text.stdout
     assert "IC margin" in text.stdout
     html = report.read_text()
     for name in expected:
         assert name in html
     assert "V/V" in html
+    assert f"<td>{pct} %</td>" in html                       # the limit cell and the setting
     written = sorted(p.name for p in plots.iterdir())
     assert written == ["ic_histogram.png", "ic_histogram.svg", "qpoints.png", "qpoints.svg"]
     assert all((plots / n).stat().st_size > 10_000 for n in written)

@@ -84,7 +84,12 @@ def test_board_file() -> None:
         ('[supply]\nvolts=12\n[target]\nic_min="2m"\nic_max="1m"\n', 4, "target.ic_min", "2m",
          "below ic_max"),
         (BASE + "gain_min = 50\ngain_max = 20\n", 7, "target.gain_min", "50", "below gain_max"),
-        (BASE + "yield_min = 99\n", 7, "target.yield_min", "99", "fraction"),
+        (BASE + "yield_min = 0.997\n", 7, "target.yield_min", "0.997",
+         "yield_min is a percent (at least 50, below 100), not a fraction: for 99.7 % write "
+         "yield_min = 99.7"),
+        (BASE + "yield_min = 1\n", 7, "target.yield_min", "1", "write yield_min = 99.9"),
+        (BASE + "yield_min = 30\n", 7, "target.yield_min", "30", "at least 50 % and below 100 %"),
+        (BASE + 'yield_min = "100 %"\n', 7, "target.yield_min", "100 %", "below 100 %"),
         (BASE + "[environment]\nambient_min_c = 80\nambient_max_c = 20\n", 8,
          "environment.ambient_min_c", "80", "above ambient_max_c"),
         (BASE + '[search]\ntopology = "darlington"\n', 8, "search.topology", "darlington",
@@ -288,3 +293,16 @@ def test_every_numeric_job_key_has_a_plausible_range() -> None:
                for key, unit in keys.items()
                if unit is not None and key not in PLAUSIBLE and key not in own]
     assert missing == []
+
+
+@pytest.mark.parametrize(("value", "fraction"), [
+    ("99.7", 0.997), ('"99.7 %"', 0.997), ('"99.7%"', 0.997), ("50", 0.5), ("99.99", 0.9999),
+    ("99.9999", 0.999999)])
+def test_yield_min_is_a_percent_kept_as_a_fraction(value: str, fraction: float) -> None:
+    # hand calculation: a percent over 100; the Target keeps the fraction (DESIGN: yields
+    # are fractions), exactly the decimal the job wrote
+    job = parse_job(BASE + f"yield_min = {value}\n", "job.toml")
+    assert job.stage.target.yield_min == fraction
+    board = parse_job('[supply]\nvolts = 12\n[[stage]]\nname = "a"\n[stage.target]\n'
+                      f'ic = "1 mA"\nic_window_pct = 20\nyield_min = {value}\n', "board.toml")
+    assert board.stages[0].target.yield_min == fraction

@@ -76,6 +76,14 @@ def corner_text(corner: dict | None) -> str:
     return ", ".join(parts)
 
 
+def shown_in_percent(c: ConstraintResult) -> tuple[float, float, float, str]:
+    """A constraint's limit, worst value, margin and unit as the screens show them: the
+    yield (a fraction in the result and in JSON) in percent, like every percent key."""
+    if c.name == "yield_min":
+        return 100 * c.limit, 100 * c.worst, 100 * c.margin, "%"
+    return c.limit, c.worst, c.margin, c.unit
+
+
 def render_constraints(console: Console, constraints: list[ConstraintResult],
                        title: str = "Constraints (failures first)") -> None:
     """The pass/fail table of constraints with margins."""
@@ -88,9 +96,10 @@ def render_constraints(console: Console, constraints: list[ConstraintResult],
                                  "gain_min", "yield_min", "rin_min",
                                  "divider_ratio_min") else "≤"
         mark = "[green]ok[/green]" if c.ok else "[bold red]FAIL[/bold red]"
-        limit = f"{sign} {_q(c.limit, c.unit)}"
-        worst = _q(c.worst, c.unit) if c.worst == c.worst else "n/a"
-        margin = _q(c.margin, c.unit) if c.margin not in (float("inf"), float("-inf")) \
+        lim, wst, mgn, unit = shown_in_percent(c)
+        limit = f"{sign} {_q(lim, unit)}"
+        worst = _q(wst, unit) if wst == wst else "n/a"
+        margin = _q(mgn, unit) if mgn not in (float("inf"), float("-inf")) \
             else "fails (undefined where not active)"
         table.add_row(mark, console_text(f"{c.name}: {c.description}"), limit, worst, margin,
                       console_text(corner_text(c.corner)))

@@ -25,7 +25,7 @@ from ..errors import InputError
 from ..job import Job
 from ..parts import Inventory
 from ..units import format_quantity
-from .check_table import CORNER_LEGEND, corner_text
+from .check_table import CORNER_LEGEND, corner_text, shown_in_percent
 
 __all__ = ["CAUTION_FOOTER", "render_report", "render_report_html"]
 
@@ -120,6 +120,8 @@ _SETTING_UNITS = {"volts": "V", "negative_volts": "V", "load": "ohm", "ic_min": 
 
 
 def _setting(key: str, value: object) -> str:
+    if key == "yield_min" and isinstance(value, float):  # a fraction inside, a percent shown
+        return format_quantity(100 * value, "%", digits=4)
     unit = _SETTING_UNITS.get(key)
     if unit and isinstance(value, float) and math.isfinite(value):
         return format_quantity(value, unit, digits=4)
@@ -273,10 +275,10 @@ def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
     rows = []
     for c in sorted(r.constraints, key=lambda c: (c.ok, c.name)):
         mark = '<span class="ok">ok</span>' if c.ok else '<span class="fail">FAIL</span>'
-        margin = _q(c.margin, c.unit) if math.isfinite(c.margin) else \
-            "fails (undefined where not active)"
-        rows.append([mark, _e(c.name), _e(c.description), _e(_q(c.limit, c.unit)),
-                     _e(_q(c.worst, c.unit) if c.worst == c.worst else "n/a"), _e(margin),
+        lim, wst, mgn, unit = shown_in_percent(c)
+        margin = _q(mgn, unit) if math.isfinite(mgn) else "fails (undefined where not active)"
+        rows.append([mark, _e(c.name), _e(c.description), _e(_q(lim, unit)),
+                     _e(_q(wst, unit) if wst == wst else "n/a"), _e(margin),
                      _e(corner_text(c.corner))])
     out.append("<h3>Constraints at the worst corner (failures first)</h3>" + _table(
         ["", "constraint", "what", "limit", "worst", "margin", "at corner"], rows,

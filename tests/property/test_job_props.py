@@ -36,7 +36,8 @@ def _numbers(job: Job) -> dict[str, float]:
         t, lim = stage.target, stage.limits
         out += [("ic_min", t.ic_min), ("ic_max", t.ic_max), ("vce_min", t.vce_min),
                 ("swing_pk", t.swing_pk), ("gain_min", t.gain_min), ("gain_max", t.gain_max),
-                ("yield_min", t.yield_min), ("supply_power_max", lim.supply_power_max),
+                ("yield_min", None if t.yield_min is None else 100 * t.yield_min),
+                ("supply_power_max", lim.supply_power_max),
                 ("resistor_derating", lim.resistor_derating), ("tj_max", lim.tj_max),
                 ("derating_knee_c", lim.derating_knee_c),
                 ("derating_zero_c", lim.derating_zero_c)]
