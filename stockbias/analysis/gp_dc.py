@@ -208,7 +208,7 @@ def bias_at_current(ic, vce, dev: GPDevice, *, iterations: int = 100):
     ib = ic / 100.0
     # The series resistances move the intrinsic VCE by the (known) collector current
     # and the (unknown, small) base current: a few outer passes settle it.
-    for _ in range(4):
+    for _ in range(4 if dev.re or dev.rc else 1):
         vce_int = vce - dev.re * (ic + ib) - dev.rc * ic
         lo = np.full(ic.shape, -0.5)
         hi = np.full(ic.shape, 1.5)
