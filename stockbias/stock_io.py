@@ -10,7 +10,11 @@ delimiter (detected from the header line); CRLF, LF or CR line ends; quoted fiel
 holding delimiters, quotes and line breaks; blank lines and comment lines whose first
 non-blank character is ``#`` (outside quoted fields); header names in any case with
 spaces around them.  A semicolon-delimited file may use decimal commas (``4,7k``).
-Unknown columns are kept (their names are listed) and otherwise ignored.
+Unknown columns are kept (their names are listed) and otherwise ignored, unless a
+header looks like a misspelt stock column that the header lacks (:func:`likely_column`):
+that is one error on the header line naming both, since the column's data would
+otherwise be ignored without a word.  A required column missing for the rows of a kind
+is likewise one error on the header line, not one per row.
 
 Refused, each with its line, column and text: a row with fewer or more fields than
 the header; control characters anywhere (other programs split or hide lines at
@@ -21,8 +25,10 @@ longer than 64 characters.
 
 from __future__ import annotations
 
+import difflib
 import hashlib
 import math
+import re
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -34,7 +40,7 @@ from .stock_csv import describe, field_fault, line_faults, sanitise, visible
 from .stock_ranges import RANGES as _RANGES
 from .units import parse_quantity
 
-__all__ = ["COLUMNS", "load_inventory", "read_inventory"]
+__all__ = ["COLUMNS", "likely_column", "load_inventory", "read_inventory"]
 
 
 @dataclass(frozen=True)
@@ -87,6 +93,53 @@ COLUMNS: dict[str, Column] = {c.name: c for c in (
 
 #: Longest text read as a number (a longer one is refused before it is parsed).
 _MAX_NUMBER_CHARS = 64
+
+#: Words shop and supplier lists use for a stock column, too far from its name for a
+#: spelling match.
+_OTHER_NAMES = {
+    "quantity": "qty", "quant": "qty", "count": "qty", "pcs": "qty", "pieces": "qty",
+    "id": "part_id", "part": "part_id", "part_no": "part_id", "part_number": "part_id",
+    "resistance": "value", "ohms": "value", "ohm": "value",
+    "tol": "tolerance_pct", "watts": "power_w", "wattage": "power_w",
+    "cost": "unit_cost", "price": "unit_cost", "unit_price": "unit_cost", "type": "kind",
+}
+
+#: How alike (difflib ratio of the normalised names) a header and a stock column must be
+#: to read as a misspelling: 0.75 takes one slip in a five-letter name ('valeu', 'locaton',
+#: 'tempco' for 'tempco_ppm'); 'supplier', 'bin colour', 'typ' or 'hfe' stay foreign.
+SPELLING_RATIO = 0.75
+
+
+def _normalised(name: str) -> str:
+    return re.sub(r"[\s\-]+", "_", name.strip().lower())
+
+
+def likely_column(header: str, absent: set[str]) -> str | None:
+    """The stock column a header not in :data:`COLUMNS` was probably meant to be.
+
+    Parameters
+    ----------
+    header : str
+        The header as written (case and spacing as in the file).
+    absent : set of str
+        The stock columns the header line does not have; only these are suggested (a
+        header beside the column it resembles, such as ``notes`` beside ``note``, is
+        the user's own column).
+
+    Returns
+    -------
+    str or None
+        The column, or ``None`` when the header is near none of them (it is kept and
+        ignored).
+    """
+    name = _normalised(header)
+    if name in absent:  # 'part id', 'Part-ID'
+        return name
+    other = _OTHER_NAMES.get(name)
+    if other in absent:
+        return other
+    close = difflib.get_close_matches(name, sorted(absent), n=1, cutoff=SPELLING_RATIO)
+    return close[0] if close else None
 
 
 def _decode(data: bytes, path: str) -> str:
@@ -196,13 +249,17 @@ def read_inventory(path: str | Path, *, progress: ReadProgress | None = None) ->
             problems.append(Problem(header_no, col, visible(header[i]),
                                     "column appears twice in the header"))
         index.setdefault(col, i)
-    missing = [c.name for c in COLUMNS.values()
-               if c.name in ("kind", "part_id", "qty") and c.name not in index]
+    meant = _misspelt_headers(header, columns, index)
+    problems.extend(Problem(header_no, visible(header[i].strip()), visible(header[i]),
+                            _misspelt_message(col)) for i, col in meant.items())
+    missing = [c.name for c in COLUMNS.values() if c.name in ("kind", "part_id", "qty")
+               and c.name not in index and c.name not in meant.values()]
     if missing:
         found = "semicolon" if delimiter == ";" else "comma"
         problems.extend(Problem(header_no, m, visible(header_line.strip()),
                                 f"required column '{m}' is missing from the header "
                                 f"({found}-delimited file)") for m in missing)
+    if missing or any(c in ("kind", "part_id", "qty") for c in meant.values()):
         raise StockFileError(name, problems)
     extra = tuple(c for c in columns if c and c not in COLUMNS)
     layout = _Layout(columns, index, delimiter)
@@ -235,6 +292,12 @@ def read_inventory(path: str | Path, *, progress: ReadProgress | None = None) ->
                 transistors.append(part)
     except stock_csv.CsvSyntax as exc:
         problems.append(Problem(exc.line, "", "", f"CSV syntax: {exc.message}"))
+    for (kind, col), (count, first) in layout.lacking.items():
+        if col in meant.values():  # the misspelt header already names it
+            continue
+        rows = f"{count} {kind} row{'s' if count > 1 else ''}, the first on line {first}"
+        problems.append(Problem(header_no, col, "", f"required column '{col}' for {kind} "
+                                f"rows is missing from the header ({rows})"))
     if progress is not None:
         progress(total, total)
     if not problems and not resistors and not transistors:
@@ -248,6 +311,29 @@ def read_inventory(path: str | Path, *, progress: ReadProgress | None = None) ->
 
 
 load_inventory = read_inventory
+
+
+def _misspelt_headers(header: list[str], columns: list[str],
+                      index: dict[str, int]) -> dict[int, str]:
+    """Header position -> the stock column it misspells (see :func:`likely_column`)."""
+    absent = {c for c in COLUMNS if c not in index}
+    meant: dict[int, str] = {}
+    for i, col in enumerate(columns):
+        if col == "" or col in COLUMNS or index.get(col) != i:
+            continue
+        guess = likely_column(header[i], absent)
+        if guess is not None:
+            meant[i] = guess
+            absent.discard(guess)
+    return meant
+
+
+def _misspelt_message(col: str) -> str:
+    spec = COLUMNS[col]
+    need = (f"required for {' and '.join(spec.kinds)} rows" if spec.required
+            else f"optional, for {' and '.join(spec.kinds)} rows")
+    return (f"unknown column; did you mean '{col}' ({need})? A column the reader does not "
+            "know is ignored with its data")
 
 
 class _Layout:
@@ -265,6 +351,8 @@ class _Layout:
                         for kind in _BOTH}
         #: (text, column) -> value, or why it is refused: stock files repeat their numbers.
         self.numbers: dict[tuple[str, str], float | str] = {}
+        #: (kind, required column missing from the header) -> (rows of that kind, first line)
+        self.lacking: dict[tuple[str, str], tuple[int, int]] = {}
 
 
 def _evaluate(text: str, col: str, decimal_comma: bool) -> float | str:
@@ -395,10 +483,11 @@ class _RowReader:
                 self.warnings.append((self.line, col, visible(values[col]),
                                       f"field does not apply to a {kind} row; ignored"))
         missing = self.layout.missing[kind]
-        for col in missing:
-            self.fail(col, "", f"required column '{col}' for a {kind} row is missing "
-                               "from the header")
-        if missing:
+        if missing:  # one problem per column on the header line, after the last row
+            for col in missing:
+                count, first = self.layout.lacking.get((kind, col), (0, self.line))
+                self.layout.lacking[kind, col] = (count + 1, first)
+            self.ok = False
             return None
         qty = self.quantity()
         cost = self.number("unit_cost", required=False)

@@ -193,3 +193,17 @@ def test_reading_progress_appears_only_after_its_delay() -> None:
         assert soon.bar.tasks[0].completed == 50
         assert soon.bar.tasks[0].total == 100
     assert "reading shelf" in sink.getvalue()
+
+
+def test_misspelt_header_is_one_line_exit_2(tmp_path: Path) -> None:
+    shelf = tmp_path / "drawer.csv"
+    shelf.write_text("kind,part_id,valeu,tolerance_pct,power_w,qty\n"
+                     + "".join(f"resistor,R{i},1k,5,0.25,10\n" for i in range(12)))
+    for columns in ("80", "120"):
+        result = runner.invoke(app, ["stock", "check", str(shelf)], env={"COLUMNS": columns})
+        assert result.exit_code == 2
+        assert result.stdout == ""
+        assert result.stderr.splitlines() == [
+            f"{shelf}:1: column 'valeu': unknown column; did you mean 'value' (required for "
+            "resistor rows)? A column the reader does not know is ignored with its data "
+            "(text 'valeu')"]

@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 
 from stockbias.errors import StockFileError
-from stockbias.stock_io import read_inventory
+from stockbias.stock_io import likely_column, read_inventory
 
 SAMPLES = Path(__file__).resolve().parent.parent / "inventory_samples"
 
@@ -168,7 +168,9 @@ def test_missing_required_column(tmp_path: Path) -> None:
 
 def test_missing_kind_specific_column(tmp_path: Path) -> None:
     found = problems_of(write(tmp_path, "kind,part_id,value,qty\nresistor,R1,1k,5\n"))
-    assert [(f[0], f[1]) for f in found] == [(2, "tolerance_pct"), (2, "power_w")]
+    # on the header line, where the fix goes
+    assert [(f[0], f[1]) for f in found] == [(1, "tolerance_pct"), (1, "power_w")]
+    assert "(1 resistor row, the first on line 2)" in found[0][3]
 
 
 def test_too_many_fields(tmp_path: Path) -> None:
@@ -326,3 +328,78 @@ def test_numbers_of_thousands_of_digits_are_one_error(tmp_path: Path, column: st
     assert (line, col) == (2, column)
     assert bad.endswith("…") and len(bad) <= 41
     assert "too long for a number" in message
+
+
+# --- misspelt headers: one error on the header line, not one per row -----------------------
+
+_ROWS = "".join(f"resistor,R{i},10k,1,0.1,5\n" for i in range(40))
+
+
+@pytest.mark.parametrize(("header", "written", "meant"), [
+    ("kind,part_id,valeu,tolerance_pct,power_w,qty", "valeu", "value"),
+    ("kind,part_id,value,tolerance_pct,power_w,quantity", "quantity", "qty"),
+    ("kind,part id,value,tolerance_pct,power_w,qty", "part id", "part_id"),
+    ("kind,Part-ID,value,tolerance_pct,power_w,qty", "Part-ID", "part_id"),
+    ("kind,part_id,value,tolerance,power_w,qty", "tolerance", "tolerance_pct"),
+])
+def test_a_misspelt_header_is_one_error_naming_the_likely_column(
+        tmp_path: Path, header: str, written: str, meant: str) -> None:
+    found = problems_of(write(tmp_path, header + "\n" + _ROWS))
+    assert len(found) == 1, found                  # 40 rows, one problem
+    line, column, text, message = found[0]
+    assert (line, column, text) == (1, written, written)
+    assert f"unknown column; did you mean '{meant}'" in message
+
+
+def test_a_misspelt_optional_column_is_refused_not_silently_ignored(tmp_path: Path) -> None:
+    # tempco_pmm would drop every tempco (then taken as 0): one error on the header
+    text = "kind,part_id,value,tolerance_pct,power_w,qty,tempco_pmm\n" + \
+        "".join(f"resistor,R{i},10k,1,0.1,5,100\n" for i in range(5))
+    (line, column, _, message), = problems_of(write(tmp_path, text))
+    assert (line, column) == (1, "tempco_pmm")
+    assert "did you mean 'tempco_ppm' (optional, for resistor rows)" in message
+
+
+def test_a_misspelt_header_and_a_row_error_are_both_reported(tmp_path: Path) -> None:
+    text = "kind,part_id,value,tolerance_pct,power_w,qty,locaton\nresistor,R1,10k,1,0.1,-5,A1\n"
+    found = problems_of(write(tmp_path, text))
+    assert [(p[0], p[1]) for p in found] == [(1, "locaton"), (2, "qty")]
+
+
+@pytest.mark.parametrize(("header", "absent", "expected"), [
+    # near a missing column (ratio ≥ SPELLING_RATIO = 0.75, hand-checked with difflib)
+    ("valeu", {"value"}, "value"),          # ratio 0.80
+    ("locaton", {"location"}, "location"),  # 0.93
+    ("tempco", {"tempco_ppm"}, "tempco_ppm"),  # 0.75, the threshold itself
+    ("theta", {"theta_ja"}, "theta_ja"),    # 0.77
+    ("Quantity ", {"qty"}, "qty"),          # a shop word, not a spelling
+    ("Price", {"unit_cost"}, "unit_cost"),
+    # far from every column: kept and ignored
+    ("typ", {"qty"}, None),                 # 0.67
+    ("hfe", {"hfe_min", "hfe_max"}, None),  # 0.60
+    ("cost basis", {"unit_cost"}, None),
+    ("supplier", {"note", "location"}, None),
+    ("bin colour", {"location"}, None),
+    # near a column the header already has: the user's own column
+    ("notes", {"location"}, None),
+    ("valeu", set(), None),
+])
+def test_likely_column_threshold_both_sides(header: str, absent: set[str],
+                                            expected: str | None) -> None:
+    assert likely_column(header, absent) == expected
+
+
+def test_foreign_columns_beside_the_ones_they_resemble_are_kept(tmp_path: Path) -> None:
+    text = ("kind,part_id,value,tolerance_pct,power_w,qty,note,notes,supplier,typ\n"
+            "resistor,R1,10k,1,0.1,5,a,b,Acme,x\n")
+    inv = read_inventory(write(tmp_path, text))
+    assert inv.extra_columns == ("notes", "supplier", "typ")
+    assert inv.resistors[0].note == "a"
+
+
+def test_a_required_column_missing_for_a_kind_is_one_error_on_the_header(tmp_path: Path) -> None:
+    text = "kind,part_id,tolerance_pct,power_w,qty\n" + \
+        "".join(f"resistor,R{i},1,0.1,5\n" for i in range(30))
+    found = problems_of(write(tmp_path, text))
+    assert found == [(1, "value", "", "required column 'value' for resistor rows is missing "
+                      "from the header (30 resistor rows, the first on line 2)")]
