@@ -13,7 +13,10 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Literal
+from typing import TYPE_CHECKING, Literal
+
+if TYPE_CHECKING:
+    from .device_data import DeviceCard
 
 __all__ = [
     "MODEL_CARD_FIELDS",
@@ -171,6 +174,15 @@ class Transistor:
         Band gap, eV.
     assumed : frozenset of str
         Names of the optional fields left out of the row and filled by default.
+    model_name, model_file, curve_file : str
+        The row's device-data columns as written (empty when absent).
+    card : DeviceCard or None
+        The DC parameters the row's model card or datasheet points give
+        (:mod:`stockbias.device_data`); its IS, BR, NF, NR, VAF, XTB, XTI, EG fill the
+        fields above that the row left empty.
+    device_note : str
+        Set when the hFE and VBE ranges were moved along the card to a job's current
+        window: what was used.
     """
 
     part_id: str
@@ -201,6 +213,11 @@ class Transistor:
     note: str = ""
     line: int = 0
     assumed: frozenset[str] = field(default_factory=frozenset)
+    model_name: str = ""
+    model_file: str = ""
+    curve_file: str = ""
+    card: DeviceCard | None = field(default=None, compare=False, repr=False)
+    device_note: str = ""
 
     kind = "transistor"
 
@@ -228,9 +245,13 @@ class Transistor:
         return 0.5 * (self.vbe_min + self.vbe_max)
 
     def assumptions(self) -> list[str]:
-        """Human-readable statements of every default this row relies on."""
-        return [TRANSISTOR_DEFAULTS[name][1] for name in TRANSISTOR_DEFAULTS
-                if name in self.assumed]
+        """Human-readable statements of every default this row relies on (and, for a row
+        with a model card or datasheet points, where its device data come from)."""
+        out = [TRANSISTOR_DEFAULTS[name][1] for name in TRANSISTOR_DEFAULTS
+               if name in self.assumed]
+        if self.card is not None:
+            out.append(self.device_note or f"β(IC, T) and VBE(IC) from the {self.card.source}")
+        return out
 
     def to_dict(self) -> dict[str, object]:
         out: dict[str, object] = {"part_id": self.part_id, "kind": self.kind, "line": self.line}
@@ -239,6 +260,12 @@ class Transistor:
             value = getattr(self, name)
             out[name] = None if isinstance(value, float) and math.isinf(value) else value
         out["assumed"] = sorted(self.assumed)
+        if self.card is not None:
+            out["model_name"] = self.model_name
+            out["model_file"] = self.model_file
+            out["curve_file"] = self.curve_file
+            out["device_data"] = self.card.source
+            out["device_note"] = self.device_note
         return out
 
 

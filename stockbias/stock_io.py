@@ -34,7 +34,9 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from . import stock_csv
-from .errors import NotationError, Problem, StockFileError
+from .analysis.gp_dc import CARD_DEFAULTS
+from .device_data import CARD_TO_ROW, DeviceCard, card_for_row
+from .errors import InputError, NotationError, Problem, StockFileError
 from .parts import TRANSISTOR_DEFAULTS, Inventory, Resistor, Transistor
 from .stock_csv import describe, field_fault, line_faults, sanitise, visible
 from .stock_ranges import RANGES as _RANGES
@@ -89,6 +91,9 @@ COLUMNS: dict[str, Column] = {c.name: c for c in (
     Column("xtb", "", _T),
     Column("xti", "", _T),
     Column("eg_ev", "eV", _T),
+    Column("model_name", None, _T),
+    Column("model_file", None, _T),
+    Column("curve_file", None, _T),
 )}
 
 #: Longest text read as a number (a longer one is refused before it is parsed).
@@ -262,7 +267,7 @@ def read_inventory(path: str | Path, *, progress: ReadProgress | None = None) ->
     if missing or any(c in ("kind", "part_id", "qty") for c in meant.values()):
         raise StockFileError(name, problems)
     extra = tuple(c for c in columns if c and c not in COLUMNS)
-    layout = _Layout(columns, index, delimiter)
+    layout = _Layout(columns, index, delimiter, path.parent)
 
     resistors: list[Resistor] = []
     transistors: list[Transistor] = []
@@ -339,8 +344,10 @@ def _misspelt_message(col: str) -> str:
 class _Layout:
     """What every row of one file shares: its columns and a cache of parsed numbers."""
 
-    def __init__(self, columns: list[str], index: dict[str, int], delimiter: str) -> None:
+    def __init__(self, columns: list[str], index: dict[str, int], delimiter: str,
+                 stock_dir: Path = Path(".")) -> None:
         self.columns = columns
+        self.stock_dir = stock_dir  # model and curve files are named relative to it
         self.index = index
         self.decimal_comma = delimiter == ";"
         self.known = [(col, i) for col, i in index.items() if col in COLUMNS]
@@ -566,11 +573,41 @@ class _RowReader:
                       f"vbe_min ({vbe_min:g} V) is larger than vbe_max ({vbe_max:g} V)")
         if not self.ok:
             return None
+        card = self.device_card(polarity, values)
+        if not self.ok:
+            return None
+        if card is not None:  # the card (with SPICE's defaults) fills the Gummel-Poon
+            full = {**CARD_DEFAULTS, **card.params}  # columns the row left empty
+            for name, col in CARD_TO_ROW.items():
+                if col not in values:
+                    values[col] = full[name]
         assumed = frozenset(c for c in TRANSISTOR_DEFAULTS if c not in values)
         optional = {c: values.get(c, TRANSISTOR_DEFAULTS[c][0]) for c in TRANSISTOR_DEFAULTS}
+        names = {c: self.raw(c) for c in ("model_name", "model_file", "curve_file")}
         return Transistor(
             polarity=polarity,  # type: ignore[arg-type]
             hfe_min=values["hfe_min"], hfe_max=values["hfe_max"], vceo_max=values["vceo_max"],
             ic_max=values["ic_max"], pd_max_w=values["pd_max_w"], assumed=assumed,
-            **optional, **common,  # type: ignore[arg-type]
+            card=card, **names, **optional, **common,  # type: ignore[arg-type]
         )
+
+    def device_card(self, polarity: str, values: dict[str, float]) -> DeviceCard | None:
+        """The row's model card or fitted datasheet points (None when it names neither)."""
+        held = {"vaf": values["vaf_v"]} if "vaf_v" in values else {}
+        if "is_a" in values:
+            held["is"] = values["is_a"]
+        else:  # for points without VBE: IS from the VBE range at the test current (25 °C)
+            from .analysis.device import CELSIUS_TO_KELVIN, saturation_current_from_vbe
+
+            vbe_mid = 0.5 * (values.get("vbe_min", 0.60) + values.get("vbe_max", 0.75))
+            held["is"] = float(saturation_current_from_vbe(
+                vbe_mid, values.get("hfe_test_ic", 1e-3), values.get("nf", 1.0),
+                25.0 + CELSIUS_TO_KELVIN))
+        try:
+            return card_for_row(polarity=polarity, model_name=self.raw("model_name"),
+                                model_file=self.raw("model_file"),
+                                curve_file=self.raw("curve_file"),
+                                stock_dir=self.layout.stock_dir, held=held)
+        except InputError as exc:
+            self.fail(exc.column or "model_file", visible(exc.text or ""), exc.message)
+            return None

@@ -34,6 +34,10 @@ class StockSummary:
         Transistor lines per polarity.
     pieces : dict
         Pieces on the shelf per kind.
+    device_data : dict
+        transistor part_id → where its model card or datasheet points come from, and
+        its hFE range over the collector currents the data covers (25 °C): ``source``,
+        ``ic_min``, ``ic_max`` (A), ``hfe_min``, ``hfe_max``.
     """
 
     file: str
@@ -51,6 +55,7 @@ class StockSummary:
     tolerance_counts: dict[str, int] = field(default_factory=dict)
     polarity_counts: dict[str, int] = field(default_factory=dict)
     pieces: dict[str, int] = field(default_factory=dict)
+    device_data: dict[str, dict[str, object]] = field(default_factory=dict)
 
     def to_dict(self) -> dict[str, object]:
         return {
@@ -65,6 +70,7 @@ class StockSummary:
             "tolerance_counts": dict(self.tolerance_counts),
             "polarity_counts": dict(self.polarity_counts),
             "pieces": dict(self.pieces),
+            "device_data": {k: dict(v) for k, v in self.device_data.items()},
         }
 
 
@@ -99,4 +105,20 @@ def summarise(inv: Inventory) -> StockSummary:
         polarity_counts=_tally([t.polarity for t in inv.transistors]),
         pieces={"resistor": sum(r.qty for r in inv.resistors),
                 "transistor": sum(t.qty for t in inv.transistors)},
+        device_data=_device_data(inv),
     )
+
+
+def _device_data(inv: Inventory) -> dict[str, dict[str, object]]:
+    """Each card-bearing transistor's hFE range over the currents its data covers."""
+    out: dict[str, dict[str, object]] = {}
+    for t in inv.transistors:
+        if t.card is None:
+            continue
+        from .device_data import hfe_scale_over
+
+        lo, hi = t.card.ic_span
+        s_lo, s_hi, _, _ = hfe_scale_over(t.card, t.hfe_test_ic, lo, hi)
+        out[t.part_id] = {"source": t.card.source, "ic_min": lo, "ic_max": hi,
+                          "hfe_min": t.hfe_min * s_lo, "hfe_max": t.hfe_max * s_hi}
+    return out

@@ -169,8 +169,21 @@ def render_stock_summary(console: Console, inv: Inventory, summary: StockSummary
         console.print(f"[yellow]note[/yellow] … and {len(inv.warnings) - len(shown)} more "
                       "notes (--rows shows them all)")
     _render_assumptions(console, inv, limit)
+    _render_device_data(console, summary)
     if summary.extra_columns:
         console.print("Columns kept but not used: " + _text(", ".join(summary.extra_columns)))
+
+
+def _render_device_data(console: Console, summary: StockSummary) -> None:
+    if not summary.device_data:
+        return
+    console.print("[bold]Device data[/bold] (the hFE bin moved along each curve, 25 °C):")
+    for part_id, d in summary.device_data.items():
+        lo, hi = float(d["ic_min"]), float(d["ic_max"])  # type: ignore[arg-type]
+        h_lo, h_hi = float(d["hfe_min"]), float(d["hfe_max"])  # type: ignore[arg-type]
+        console.print(f"  - {_text(part_id)}: hFE {h_lo:.0f}–{h_hi:.0f} over IC "
+                      f"{_format_quantity(lo, 'A')}–{_format_quantity(hi, 'A')}; from the "
+                      f"{_text(str(d['source']))}")
 
 
 def _render_assumptions(console: Console, inv: Inventory, limit: int | None) -> None:
