@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # Set up stockbias in ./.venv on a Debian 12+ machine with Python 3.11+.
 #   bash scripts/setup.sh          the tool itself
-#   bash scripts/setup.sh --test   the tool, the test extras and the system packages tests use (ngspice, chromium)
+#   bash scripts/setup.sh --test   the tool, the test and cluster extras (Dask's distributed) and the system packages tests use (ngspice, chromium)
 # System packages are installed with apt-get only where missing (as root, or through sudo).
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -45,7 +45,7 @@ if [ ! -x .venv/bin/python ]; then
 fi
 .venv/bin/python -m pip install -q --upgrade pip >/dev/null 2>&1 || true
 target='.'
-[ "$want_tests" -eq 1 ] && target='.[test]'
+[ "$want_tests" -eq 1 ] && target='.[test,cluster]'
 echo "installing stockbias and its Python packages into .venv (log: .venv/pip.log)" >&2
 if ! .venv/bin/python -m pip install --disable-pip-version-check -e "$target" \
     > .venv/pip.log 2>&1; then

@@ -22,8 +22,10 @@ import numpy as np
 import pytest
 from typer.testing import CliRunner
 
-from stockbias.analysis.check import analyze
+from stockbias.analysis.check import analyze, build_spec
 from stockbias.analysis.constraints import ic_margin
+from stockbias.analysis.montecarlo import board_values
+from stockbias.assign import resolve_resistor
 from stockbias.cli.app import app
 from stockbias.job import _SECTIONS, parse_job
 from stockbias.stock_io import read_inventory
@@ -429,7 +431,14 @@ def test_monte_carlo_counts_gain_max_failures_on_boards_with_saturated_corners(
                   samples=4000, seed=3)
     mc = res.monte_carlo
     assert mc is not None
-    active = np.asarray(mc.vce) > VCE_SAT + 1e-9
+    # the same boards one by one (same seed and stream as check's streamed run)
+    inv = read_inventory(shelf)
+    ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
+    rp = {role: resolve_resistor(role, pid, inv, 5.0, ambient=ambient)
+          for role, pid in parts("39k", "8.2k", "6.8k", "1k").items()}
+    spec = build_spec(job, job.stage, rp, inv.find_transistor("TQ-N1"))
+    q, _ = board_values(spec, [], 4000, 3, tempco_ppm={r: p.tempco_ppm for r, p in rp.items()})
+    active = np.asarray(q["vce"]) > VCE_SAT + 1e-9
     some_saturated = (~active).any(axis=1)
     assert some_saturated.sum() > 100            # the case bites: many boards saturate somewhere
     assert res.worst.bounds["gain_abs"].min > 50

@@ -10,7 +10,7 @@ every constraint.  The search re-verifies every design it returns with
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -208,7 +208,8 @@ def _thermal(spec: StageSpec, wc: WorstCase) -> dict[str, object]:
 
 def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
                   transistor: Transistor, *, samples: int = 20000, seed: int = 0,
-                  topology: str | None = None) -> CheckResult:
+                  topology: str | None = None, executor: object | None = None,
+                  progress: Callable[[int], None] | None = None) -> CheckResult:
     """Analyse one stage with resolved parts (the path `check` and the search share)."""
     spec = build_spec(job, stage, parts, transistor, topology)
     network = spec.network
@@ -266,8 +267,11 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
     yield_limit = stage.target.yield_min
     if samples > 0:
         tempcos = {role: p.tempco_ppm for role, p in parts.items()}
-        mc = monte_carlo(spec, limits, samples, np.random.default_rng(seed), seed=seed,
-                         tempco_ppm=tempcos)
+        # histogram edges from the worst-case bounds: every drawn board lies inside them
+        spans = {k: (float(wc.bounds[k].min), float(wc.bounds[k].max))
+                 for k in ("ic", "vce") if k in wc.bounds}
+        mc = monte_carlo(spec, limits, samples, seed, tempco_ppm=tempcos, ranges=spans,
+                         executor=executor, progress=progress)
         if yield_limit is not None:
             y = mc.yield_.yield_
             results.append(ConstraintResult("yield_min", yield_limit, y, y - yield_limit,
@@ -355,7 +359,9 @@ def check_roles(topology: str, values: Mapping[str, str]) -> None:
 
 def analyze(job: Job, values: Mapping[str, str], transistor: str,
             inventory: Inventory | None, *, samples: int = 20000, seed: int = 0,
-            tolerance_pct: float | None = None, stage_name: str | None = None) -> CheckResult:
+            tolerance_pct: float | None = None, stage_name: str | None = None,
+            executor: object | None = None,
+            progress: Callable[[int], None] | None = None) -> CheckResult:
     """Check a stage with given values and transistor (DESIGN §3 Python API).
 
     Parameters
@@ -367,6 +373,10 @@ def analyze(job: Job, values: Mapping[str, str], transistor: str,
         Stock part id of the transistor.
     inventory : Inventory or None
     samples, seed : Monte Carlo boards and seed.
+    executor : stockbias.executor.Executor, optional
+        Where the Monte Carlo chunks run (default: this process).
+    progress : callable, optional
+        Called with the Monte Carlo boards done so far.
     tolerance_pct : float, optional
         Tolerance for values that are not stock parts (default: the job's).
     stage_name : str, optional
@@ -397,4 +407,5 @@ def analyze(job: Job, values: Mapping[str, str], transistor: str,
     ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
     parts = {role: resolve_resistor(role, text, inventory, tol, ambient=ambient)
              for role, text in values.items()}
-    return analyze_stage(job, stage, parts, t, samples=samples, seed=seed)
+    return analyze_stage(job, stage, parts, t, samples=samples, seed=seed, executor=executor,
+                         progress=progress)

@@ -29,6 +29,7 @@ __all__ = [
     "numeric_sensitivities",
     "rss_bounds",
     "yield_estimate",
+    "yield_from_counts",
 ]
 
 #: A resistor's marked tolerance is taken as this many standard deviations,
@@ -215,10 +216,24 @@ def yield_estimate(passed: ArrayLike, confidence: float = 0.95) -> YieldResult:
     flags = np.asarray(passed)
     if flags.dtype != np.bool_:
         raise InputError(f"pass flags must be booleans, got dtype {flags.dtype}")
-    n = int(flags.size)
+    return yield_from_counts(int(np.count_nonzero(flags)), int(flags.size), confidence)
+
+
+def yield_from_counts(passed: int, samples: int, confidence: float = 0.95) -> YieldResult:
+    """Yield of a batch from its counts (what streamed Monte Carlo chunks add up).
+
+    Parameters
+    ----------
+    passed : int
+        Boards that passed everywhere.
+    samples : int
+        Boards drawn, > 0.
+    confidence : float, optional
+        Two-sided confidence level of the interval (default 0.95).
+    """
+    n, k = int(samples), int(passed)
     if n == 0:
         raise InputError("a yield needs at least one sample")
-    k = int(np.count_nonzero(flags))
     low, high = clopper_pearson(k, n, confidence)
     return YieldResult(samples=n, passed=k, yield_=k / n, low=low, high=high,
                        confidence=confidence)

@@ -10,7 +10,22 @@ from typing import TYPE_CHECKING, Annotated, Any
 import typer
 
 from ..errors import InputError
-from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, SeedOpt, load, plot_files
+from .common import (
+    ClusterOpt,
+    ForceOpt,
+    InventoryOpt,
+    JobArg,
+    JsonOpt,
+    SeedOpt,
+    WorkersOpt,
+    executor_for,
+    load,
+    plot_files,
+    sample_progress,
+)
+
+#: check's Monte Carlo streams counts and histograms, so memory does not grow with --samples
+MAX_CHECK_SAMPLES = 1_000_000_000
 
 if TYPE_CHECKING:  # loaded by the command when it runs (the analysis brings in scipy)
     from ..analysis.check import CheckResult
@@ -38,9 +53,13 @@ def check(
         help="Stock part id of the transistor. Default: the stage's "
         "transistor.")] = None,
     json_out: JsonOpt = False,
-    samples: Annotated[int, typer.Option("--samples", metavar="N", min=0, max=10_000_000,
-                                         help="Monte Carlo boards (0: none).")] = 20000,
+    samples: Annotated[int, typer.Option(
+        "--samples", metavar="N", min=0, max=MAX_CHECK_SAMPLES,
+        help="Monte Carlo boards (0: none; up to 10^9, streamed in bounded memory).")]
+    = 20000,
     seed: SeedOpt = 0,
+    workers: WorkersOpt = 0,
+    cluster: ClusterOpt = None,
     tolerance: Annotated[float | None, typer.Option(
         "--tolerance", metavar="PERCENT", min=0.01, max=50.0,
         help="Tolerance, %, for values that are not stock parts (default: the job's).")] = None,
@@ -80,8 +99,16 @@ def check(
         if transistor is None:
             raise InputError("give the transistor with --transistor PART_ID (or transistor = "
                              "\"PART_ID\" in the stage)", column="--transistor")
-        result = analyze(job, assignment, transistor, inv, samples=samples, seed=seed,
-                         tolerance_pct=tolerance, stage_name=stage)
+        executor = executor_for(samples, workers, cluster)
+        try:
+            with sample_progress(json_out, samples) as progress:
+                result = analyze(job, assignment, transistor, inv, samples=samples, seed=seed,
+                                 tolerance_pct=tolerance, stage_name=stage, executor=executor,
+                                 progress=progress)
+        finally:
+            close = getattr(executor, "close", None)
+            if close is not None:
+                close()
         _stage_outputs(outs, job, inv, result, plot, report, pick_list)
         written = outs.commit()
     if json_out:

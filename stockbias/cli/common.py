@@ -30,6 +30,17 @@ TransistorOpt = Annotated[str, typer.Option("--transistor", "-t", metavar="PART_
                                             help="Stock part id of the transistor.")]
 SeedOpt = Annotated[int, typer.Option("--seed", metavar="N", min=0, max=2**31 - 1,
                                       help="Monte Carlo seed, 0 to 2147483647.")]
+WorkersOpt = Annotated[int, typer.Option(
+    "--workers", metavar="N", min=0, max=1024,
+    help="Local worker processes for Monte Carlo (0: every core; 1: this process). Short "
+    "runs stay in this process; the result is the same either way.")]
+ClusterOpt = Annotated[str | None, typer.Option(
+    "--cluster", metavar="tcp://HOST:PORT",
+    help="Run Monte Carlo on this Dask scheduler's workers (needs the cluster extra: pip "
+    "install 'stockbias[cluster]').")]
+#: Below this many boards Monte Carlo runs in the calling process: starting workers would
+#: cost more than it saves (the result does not depend on where it runs).
+PARALLEL_MIN_SAMPLES = 200_000
 ForceOpt = Annotated[bool, typer.Option(
     "--force", help="Replace output files that exist (a symbolic link is replaced itself, "
     "never the file it points to). Inputs are never written over.")]
@@ -82,3 +93,29 @@ def search_progress(json_out: bool, label: str) -> Iterator[Callable[[str, float
     finally:
         if bar.live.is_started:
             bar.stop()
+
+
+def executor_for(samples: int, workers: int, cluster: str | None) -> object:
+    """The executor for a run of ``samples`` Monte Carlo boards under --workers/--cluster."""
+    from ..executor import InProcess, make_executor
+
+    if cluster:
+        return make_executor(cluster=cluster)
+    if samples < PARALLEL_MIN_SAMPLES:
+        return InProcess()
+    return make_executor(workers or None)
+
+
+@contextmanager
+def sample_progress(json_out: bool, samples: int) -> Iterator[Callable[[int], None] | None]:
+    """A progress bar on stderr counting Monte Carlo boards done (none with --json, when
+    stderr is not a terminal, or for runs that finish within a second)."""
+    with search_progress(json_out, f"Monte Carlo, {samples:,} boards") as bar:
+        if bar is None or samples <= 0:
+            yield None
+            return
+
+        def done(boards: int) -> None:
+            bar(f"Monte Carlo: {boards:,} of {samples:,} boards", boards / samples)
+
+        yield done

@@ -261,7 +261,10 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
         console.print(f"[bold]Monte Carlo[/bold]: {y.samples} boards (seed {mc.seed}), each at "
                       f"every supply × ambient extreme: yield {100 * y.yield_:.2f} % "
                       f"(95 % interval {100 * y.low:.2f}–{100 * y.high:.2f} %); failing boards "
-                      f"by constraint: {fails}")
+                      f"by constraint: {fails}; IC over boards × corners: median "
+                      f"{_q(mc.ic.percentile(50), 'A')}, 0.135–99.865 % "
+                      f"{_q(mc.ic.percentile(0.135), 'A')}–{_q(mc.ic.percentile(99.865), 'A')} "
+                      f"(from a histogram, ±{_q(mc.ic.resolution, 'A')})")
     st = result.stability
     if st.get("reason"):
         console.print(f"[bold]Stability[/bold] factors: not applicable "

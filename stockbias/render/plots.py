@@ -38,7 +38,6 @@ __all__ = [
 #: File stems written by :func:`write_check_plots` and :func:`write_design_plots`.
 CHECK_PLOTS = ("qpoints", "ic_histogram")
 DESIGN_PLOTS = ("design_cost_margin",)
-_MC_POINTS = 4000  # Monte Carlo points drawn on the output characteristic (a fixed subsample)
 _STYLE: dict[str, Any] = {"font.size": 10, "axes.titlesize": 11, "axes.labelsize": 10,
                           "legend.fontsize": 8, "svg.hashsalt": "stockbias",
                           "svg.fonttype": "path"}
@@ -93,11 +92,8 @@ def qpoint_figure(result: CheckResult, job: Job) -> Any:
         vce_c, ic_c = _flat(ev.quantities["vce"]), _flat(ev.quantities["ic"])
         mc = result.monte_carlo
         vce_m = ic_m = np.zeros(0)
-        if mc is not None:
-            vce_m, ic_m = _flat(mc.vce), _flat(mc.ic)
-            if vce_m.size > _MC_POINTS:
-                pick = np.linspace(0, vce_m.size - 1, _MC_POINTS).astype(int)
-                vce_m, ic_m = vce_m[pick], ic_m[pick]
+        if mc is not None:  # occupied cells of the streamed joint (VCE, IC) histogram
+            vce_m, ic_m, _ = mc.qpoint.centres()
         x_max = 1.1 * hi
         ic_line = hi / r_dc if r_dc > 0 else float(np.nanmax(ic_c)) * 2
         y_top = 1.15 * max(ic_line, float(np.nanmax(ic_c)), job.stage.target.ic_max) * 1e3
@@ -139,9 +135,11 @@ def qpoint_figure(result: CheckResult, job: Job) -> Any:
         ax.scatter(vce_c, ic_c * 1e3, s=18, marker="^", facecolor="none", edgecolor="#d1495b",
                    lw=0.8, label=f"worst-case corners ({result.worst.n_vertices})")
         if vce_m.size:
-            ax.scatter(vce_m, ic_m * 1e3, s=4, marker="o", color="#1f4e79", alpha=0.4,
+            ax.scatter(vce_m, ic_m * 1e3, s=4, marker="s", color="#1f4e79", alpha=0.4,
                        lw=0, label=f"Monte Carlo boards × environment corners "
-                                   f"({mc.yield_.samples if mc else 0} boards)")
+                                   f"({mc.yield_.samples if mc else 0} boards; occupied "
+                                   f"cells of a {mc.qpoint.counts.shape[0] if mc else 0}² "
+                                   "grid)")
         nom = result.nominal
         ax.scatter([float(nom["vce"])], [float(nom["ic"]) * 1e3],  # type: ignore[arg-type]
                    s=70, marker="o", facecolor="black", edgecolor="white", zorder=5,
@@ -175,27 +173,22 @@ def ic_histogram_figure(result: CheckResult, job: Job) -> Any:
     with mpl.rc_context(_STYLE):  # type: ignore[arg-type]
         fig = _figure(7.5, 4.6)
         ax = fig.add_subplot()
-        ic = _flat(mc.ic) * 1e3
-        ic = ic[np.isfinite(ic)]
         b = result.worst.bounds.get("ic")
-        lo = min(float(ic.min()), tgt.ic_min * 1e3, b.min * 1e3 if b else math.inf)
-        hi = max(float(ic.max()), tgt.ic_max * 1e3, b.max * 1e3 if b else -math.inf)
-        pad = 0.05 * (hi - lo)
+        edges, counts = mc.ic.rebinned(80)
         ax.axvspan(tgt.ic_min * 1e3, tgt.ic_max * 1e3, color="#cfe8cf", alpha=0.7,
                    label=f"target window {tgt.ic_min * 1e3:.3g}–{tgt.ic_max * 1e3:.3g} mA")
-        ax.hist(ic, bins=60, range=(lo - pad, hi + pad), color="#4878a8", ec="white", lw=0.3,
-                label=f"{mc.yield_.samples} boards × {mc.ic.shape[1]} environment corners")
+        ax.stairs(counts, edges * 1e3, fill=True, color="#4878a8", ec="white", lw=0.3,
+                  label=f"{mc.yield_.samples} boards × {mc.corners} environment corners")
         if b is not None:
             for x, name in ((b.min, "min"), (b.max, "max")):
                 ax.axvline(x * 1e3, color="#d1495b", ls="--", lw=1.2,
                            label=f"worst-case {name} {x * 1e3:.3g} mA")
         y = mc.yield_
-        boards = np.asarray(mc.ic, dtype=float).reshape(mc.ic.shape[0], -1)
-        inside = np.all((boards >= tgt.ic_min) & (boards <= tgt.ic_max), axis=1)
+        inside = mc.ic_window_boards / y.samples
         ax.set_xlabel("collector current IC (mA)")
         ax.set_ylabel("count (board × corner)")
         ax.set_title(f"IC spread, {result.topology} with {result.transistor.part_id}\n"
-                     f"boards inside the IC window at every corner {100 * inside.mean():.2f} %\n"
+                     f"boards inside the IC window at every corner {100 * inside:.2f} %\n"
                      f"yield over all constraints {100 * y.yield_:.2f} % "
                      f"(95 % interval {100 * y.low:.2f}–{100 * y.high:.2f} %)")
         ax.grid(True, axis="y", color="0.9", lw=0.6)
