@@ -79,7 +79,10 @@ _SECTIONS: dict[str, dict[str, str | None]] = {
     "keep_purpose": {"gain_pct": "%", "rin_pct": "%", "swing_pct": "%",
                      "supply_current_pct": "%"},
 }
-_STAGE_KEYS = {"name", "topology", "transistor", "target", "limits", "values", "keep_purpose"}
+_STAGE_KEYS = {"name", "topology", "transistor", "target", "limits", "values", "keep_purpose",
+               "refs"}
+#: how a board written from a netlist marks an entry the user must fill in
+FILL_IN = "fill in"
 #: (lowest, highest) % per keep_purpose key; gain_pct is a ± band around today's gain
 _KEEP_RANGES = {"gain_pct": (0.0, 100.0), "rin_pct": (0.0, 100.0), "swing_pct": (0.0, 100.0),
                 "supply_current_pct": (100.0, 1000.0)}
@@ -396,7 +399,7 @@ class _Parser:
         for i, raw in enumerate(raw_stages):
             if not isinstance(raw, dict):
                 raise self.error("stages are written as [[stage]] tables", "stage", None, raw, i)
-            for sub in ("target", "limits", "values", "keep_purpose"):
+            for sub in ("target", "limits", "values", "keep_purpose", "refs"):
                 if sub in raw and not isinstance(raw[sub], dict):
                     raise self.error(f"{sub} is a table: write [stage.{sub}] under the "
                                      "[[stage]]", "stage", sub, raw[sub], i)
@@ -429,8 +432,13 @@ class _Parser:
                                  None, values, i)
             keep = self.keep_purpose(raw.get("keep_purpose", {}), "stage.keep_purpose",
                                      default_keep, i)
+            refs = raw.get("refs", {})
+            if not all(isinstance(v, str) for v in refs.values()):
+                raise self.error("[stage.refs] maps roles to reference designators in quotes",
+                                 "stage.refs", None, refs, i)
             stages.append(Stage(name, topology, target, limits, transistor,
-                                {str(k): str(v) for k, v in values.items()}, keep))
+                                {str(k): str(v) for k, v in values.items()}, keep,
+                                {str(k): v for k, v in refs.items()}))
         if not stages:
             raise self.error("a board needs at least one [[stage]]", "stage", None, None)
         return tuple(stages)
@@ -461,6 +469,23 @@ def _deep_line(text: str, depth: int = 100) -> int | None:
     return None
 
 
+def _refuse_unfilled(parser: _Parser, doc: dict[str, Any]) -> None:
+    """A JobError naming the first entry still marked ``fill in …`` (a board written from a
+    netlist marks what the netlist does not say that way)."""
+    def walk(table: dict[str, Any], section: str, occurrence: int) -> None:
+        for key, value in table.items():
+            if isinstance(value, dict):
+                walk(value, f"{section}.{key}" if section else key, occurrence)
+            elif isinstance(value, list) and key == "stage":
+                for i, item in enumerate(value):
+                    if isinstance(item, dict):
+                        walk(item, "stage", i)
+            elif isinstance(value, str) and value.strip().casefold().startswith(FILL_IN):
+                raise parser.error("still to be filled in: " + value.strip()[len(FILL_IN):]
+                                   .lstrip(" :"), section, key, value, occurrence)
+    walk(doc, "", 0)
+
+
 def parse_job(text: str, path: str = "<job>") -> Job:
     """Parse the text of a job file; see :func:`load_job`.  A leading byte-order mark is
     ignored (editors on some systems save UTF-8 with one)."""
@@ -478,6 +503,7 @@ def parse_job(text: str, path: str = "<job>") -> Job:
         raise JobError("arrays or tables nested too deeply to be a job", file=path,
                        line=_deep_line(text)) from None
     parser = _Parser(path, text)
+    _refuse_unfilled(parser, doc)
     known = {*_SECTIONS, "stage"}
     for section in doc:
         if section not in known:

@@ -167,6 +167,8 @@ class Stage:
     values: dict[str, str] = field(default_factory=dict)
     #: the file's [keep_purpose] / [stage.keep_purpose] (None: the defaults)
     keep_purpose: KeepPurpose | None = None
+    #: [stage.refs]: role (or ``transistor``) → reference designator(s) on the schematic
+    refs: dict[str, str] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)

@@ -208,6 +208,7 @@ def _root(
 
 def _register() -> None:
     from . import (
+        board_cmd,
         check_cmd,
         consolidate_cmd,
         demo_cmd,
@@ -224,7 +225,8 @@ def _register() -> None:
     app.command("consolidate", cls=_Command)(consolidate_cmd.consolidate)
     app.command("export", cls=_Command)(export_cmd.export)
     app.add_typer(stock_cmd.app, name="stock", cls=_Group)
-    for info in stock_cmd.app.registered_commands:  # the usage line of `stock check`...
+    app.add_typer(board_cmd.app, name="board", cls=_Group)
+    for info in [*stock_cmd.app.registered_commands, *board_cmd.app.registered_commands]:
         if info.cls in (None, typer.core.TyperCommand):
             info.cls = _Command
 
