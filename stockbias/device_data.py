@@ -193,6 +193,13 @@ def hfe_scale_over(card: DeviceCard, test_ic: float, ic_lo: float, ic_hi: float,
     return float(ratio.min()), float(ratio.max()), float(dv.min()), float(dv.max())
 
 
+def _round_out(value: float, direction: int) -> float:
+    """``value`` to three significant figures, rounded down (-1) or up (+1)."""
+    step = 10.0 ** (math.floor(math.log10(value)) - 2)
+    rounded = (math.floor if direction < 0 else math.ceil)(value / step - direction * 1e-9)
+    return float(f"{rounded * step:.3g}")
+
+
 def _window_text(lo: float, hi: float) -> str:
     from stockbias.units import format_quantity
 
@@ -217,7 +224,8 @@ def at_job_currents(inventory, ic_lo: float, ic_hi: float):
         s_lo, s_hi, dv_lo, dv_hi = hfe_scale_over(card, t.hfe_test_ic, ic_lo, ic_hi)
         lo_span, hi_span = card.ic_span
         outside = ic_lo < lo_span * 0.999 or ic_hi > hi_span * 1.001
-        note = (f"hFE {t.hfe_min * s_lo:.4g}–{t.hfe_max * s_hi:.4g} and VBE "
+        note = (f"hFE {_round_out(t.hfe_min * s_lo, -1):g}–{_round_out(t.hfe_max * s_hi, 1):g}"
+                f" and VBE "
                 f"{t.vbe_min + dv_lo:.3f}–{t.vbe_max + dv_hi:.3f} V over IC "
                 f"{_window_text(ic_lo, ic_hi)} at 25 °C from the {card.source} "
                 f"(bin hFE {t.hfe_min:.4g}–{t.hfe_max:.4g} at "
@@ -225,8 +233,10 @@ def at_job_currents(inventory, ic_lo: float, ic_hi: float):
         if outside:
             note += (f"; the window reaches outside the {_window_text(*card.ic_span)} the "
                      "data covers")
+        # three significant figures, rounded outwards (the range only widens)
+        hfe_lo, hfe_hi = _round_out(t.hfe_min * s_lo, -1), _round_out(t.hfe_max * s_hi, 1)
         moved.append(replace(
-            t, hfe_min=t.hfe_min * s_lo, hfe_max=t.hfe_max * s_hi,
+            t, hfe_min=hfe_lo, hfe_max=hfe_hi,
             vbe_min=max(t.vbe_min + dv_lo, 0.05), vbe_max=t.vbe_max + dv_hi,
             hfe_test_ic=math.sqrt(ic_lo * ic_hi), device_note=note,
             assumed=t.assumed - {"hfe_test_ic"}))
