@@ -238,6 +238,7 @@ def fit_curves(points: CurvePoints, *, held: Mapping[str, float] | None = None,
     else:
         fixed.setdefault("xti", 3.0)
         reasons.setdefault("xti", "VBE at one temperature only: 3 assumed (SPICE default)")
+    reasons.setdefault("tnom", f"the card's reference temperature, {fixed['tnom']:g} °C")
     for name in fixed:
         reasons.setdefault(name, "held as given" if name in (held or {}) else
                            "SPICE default")

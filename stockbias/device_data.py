@@ -57,16 +57,22 @@ class DeviceCard:
         ``"card"`` or ``"curve"``.
     ic_span : tuple of float
         The collector-current range the data holds over, ampere.
+    points : CurvePoints or None
+        The datasheet points (``kind == "curve"``).
+    fit : CurveFit or None
+        The fit to them: parameters fitted and held (and why), residuals.
     """
 
-    __slots__ = ("ic_span", "kind", "params", "source")
+    __slots__ = ("fit", "ic_span", "kind", "params", "points", "source")
 
     def __init__(self, params: dict[str, float], source: str, kind: str,
-                 ic_span: tuple[float, float]) -> None:
+                 ic_span: tuple[float, float], points=None, fit=None) -> None:
         self.params = dict(params)
         self.source = source
         self.kind = kind
         self.ic_span = ic_span
+        self.points = points
+        self.fit = fit
 
     def __repr__(self) -> str:
         return f"DeviceCard({self.source!r})"
@@ -155,7 +161,7 @@ def _from_curves(path: Path, shown: str, held: dict[str, float]) -> DeviceCard:
               + (f", VBE within {1e3 * fit.worst_vbe_error_v:.1f} mV" if
                  np.isfinite(points.vbe).any() else "") + ")")
     return DeviceCard(dict(fit.params), source, "curve",
-                      (float(points.ic.min()), float(points.ic.max())))
+                      (float(points.ic.min()), float(points.ic.max())), points, fit)
 
 
 def hfe_scale_over(card: DeviceCard, test_ic: float, ic_lo: float, ic_hi: float,

@@ -8,9 +8,11 @@ from typing import Annotated
 import typer
 
 from ..errors import InputError, StockFileError, UnmetError
+from .curves_cmd import curves as _curves
 from .export_cmd import AcceptChangedOpt, FromOpt, RankOpt, TransistorOpt, ValuesOpt
 
 app = typer.Typer(help="Check and look after a stock file.", no_args_is_help=True)
+app.command("curves")(_curves)
 
 
 @app.command("check")
