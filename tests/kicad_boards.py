@@ -397,3 +397,23 @@ def main() -> int:
 
 if __name__ == "__main__":
     sys.exit(main())
+
+
+def reexport(board: Board, schematic_text: str) -> str:
+    """The S-expression netlist KiCad would export after the schematic was edited: the
+    board's connectivity, each symbol's Value and fields as the schematic now has them."""
+    import re
+
+    symbols = re.split(r"\n\t\(symbol\n", schematic_text)[1:]
+    props: dict[str, dict[str, str]] = {}
+    for body in symbols:
+        found = dict(re.findall(r'\(property "((?:[^"\\]|\\.)*)" "((?:[^"\\]|\\.)*)"', body))
+        props[found["Reference"]] = {k: v.replace('\\"', '"').replace("\\\\", "\\")
+                                     for k, v in found.items()}
+    parts = []
+    for p in board.parts:
+        got = props[p.ref]
+        fields = {k: v for k, v in got.items()
+                  if k not in ("Reference", "Value", "Footprint", "Datasheet")}
+        parts.append(Part(p.ref, p.symbol, got["Value"], dict(p.nets), fields, p.at))
+    return sexpr_netlist(Board(board.name, board.title, parts))

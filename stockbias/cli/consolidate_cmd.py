@@ -9,6 +9,8 @@ from typing import TYPE_CHECKING, Annotated
 import typer
 
 from ..errors import InputError
+from . import changes_opts
+from .changes_opts import ChangesOpt, SchematicOpt, SchematicOutOpt
 from .common import BoardArg, ForceOpt, InventoryOpt, JsonOpt, load, search_progress
 
 if TYPE_CHECKING:  # loaded by the command when it runs
@@ -41,6 +43,9 @@ def consolidate(
     json_out: JsonOpt = False,
     report: Annotated[Path | None, typer.Option(
         "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
+    changes: ChangesOpt = None,
+    schematic: SchematicOpt = None,
+    schematic_out: SchematicOutOpt = None,
     force: ForceOpt = False,
 ) -> None:
     """Merge a board's resistor values onto fewer stock lines, every stage still meeting its
@@ -53,12 +58,14 @@ def consolidate(
     from ..search.consolidate import parse_keep
     from ..search.keep_purpose import parse_keep_purpose
 
-    outs = OutputSet({"the board file": board_file,
-                      "the stock file (--inventory)": inventory}, force=force)
+    outs = OutputSet({"the board file": board_file, "the stock file (--inventory)": inventory,
+                      "the schematic (--schematic)": schematic}, force=force)
     outs.file("--report", report)
+    changes_opts.declare(outs, changes, schematic, schematic_out)
     with outs:
         job, inv = load(board_file, inventory)
         assert inv is not None
+        changes_opts.check_board(job, changes, schematic)
         order = None
         if objectives is not None:
             order = tuple(o.strip() for o in objectives.split(",") if o.strip())
@@ -76,6 +83,12 @@ def consolidate(
                          purpose=not no_keep_purpose)
         if report is not None:
             _stage_report(outs, board_file, job, inv, result)
+        rows, notes = [], []
+        if result.after is not None and (changes or schematic):
+            from ..kicad.changes import consolidate_changes
+
+            rows = consolidate_changes(job, result, inv)
+            notes = changes_opts.write(outs, rows, changes, schematic)
         written = outs.commit()
     if json_out:
         payload = result.to_dict()
@@ -89,6 +102,7 @@ def consolidate(
     if "--report" in written:
         make_console(stderr=json_out).print(f"Report written: {written['--report'][0]}",
                                             markup=False)
+    changes_opts.report(written, rows, notes, json_out)
     if result.after is None:
         raise typer.Exit(1)
 

@@ -8,6 +8,8 @@ from typing import Annotated
 
 import typer
 
+from . import changes_opts
+from .changes_opts import ChangesOpt, SchematicOpt, SchematicOutOpt
 from .common import (
     ForceOpt,
     InventoryOpt,
@@ -46,6 +48,9 @@ def substitute(
     ] = False,
     report: Annotated[Path | None, typer.Option(
         "--report", dir_okay=False, help="Write a self-contained HTML report here.")] = None,
+    changes: ChangesOpt = None,
+    schematic: SchematicOpt = None,
+    schematic_out: SchematicOutOpt = None,
     force: ForceOpt = False,
 ) -> None:
     """Judge every stock transistor for an existing stage: drop-in, least rework, or ruled out."""
@@ -57,12 +62,14 @@ def substitute(
     from ..search.keep_purpose import parse_keep_purpose
     from ..search.substitute import substitute as run
 
-    outs = OutputSet({"the job file": job_file, "the stock file (--inventory)": inventory},
-                     force=force)
+    outs = OutputSet({"the job file": job_file, "the stock file (--inventory)": inventory,
+                      "the schematic (--schematic)": schematic}, force=force)
     outs.file("--report", report)
+    changes_opts.declare(outs, changes, schematic, schematic_out)
     with outs:
         job, inv = load(job_file, inventory)
         assert inv is not None
+        changes_opts.check_board(job, changes, schematic)
         tolerances = parse_keep_purpose(keep_purpose)
         if no_keep_purpose and tolerances:
             raise InputError("--keep-purpose and --no-keep-purpose contradict each other",
@@ -82,6 +89,14 @@ def substitute(
                               f"'{result.stage}'", job=job, inventory=inv, checks=checks,
                               notes=verdict_lines(result),
                               command="stockbias substitute " + " ".join(sys.argv[2:]))
+        rows, notes = [], []
+        if changes or schematic:  # the first-ranked other transistor that works
+            from ..kicad.changes import substitute_changes
+
+            found = substitute_changes(job, result)
+            if found is not None:
+                rows = found
+                notes = changes_opts.write(outs, rows, changes, schematic)
         written = outs.commit()
     if json_out:
         typer.echo(dumps(result.to_dict()))
@@ -92,5 +107,6 @@ def substitute(
     if "--report" in written:
         make_console(stderr=json_out).print(f"Report written: {written['--report'][0]}",
                                             markup=False)
+    changes_opts.report(written, rows, notes, json_out)
     if not any(c.fixed for c in result.candidates):
         raise typer.Exit(1)
