@@ -1,11 +1,11 @@
 """Where independent pieces of work run: in this process, on local worker processes, or on
 a Dask cluster.
 
-Every executor has one method, ``map(fn, tasks, progress)``: it calls ``fn(task)`` for each
-task and returns the results in the order of ``tasks``, whatever order they finished in,
-so a caller that adds the results up gets the same answer on every executor.  ``fn`` must be
-a module-level function and the tasks picklable (they travel to other processes).
-``progress`` is called with each finished task's index.
+Every executor has ``imap(fn, tasks)``: it calls ``fn(task)`` for each task and yields the
+results in the order of ``tasks``, whatever order they finished in, with only a few tasks
+in flight per worker (so a million tasks never hold a million results); ``map`` collects
+them.  A caller that adds the results up gets the same answer on every executor.  ``fn``
+must be a module-level function and the tasks picklable (they travel to other processes).
 
 Dask's ``distributed`` is an optional extra (``pip install 'stockbias[cluster]'``) and is
 imported only when a cluster address is given.
@@ -14,7 +14,8 @@ imported only when a cluster address is given.
 from __future__ import annotations
 
 import os
-from collections.abc import Callable, Sequence
+from collections import deque
+from collections.abc import Callable, Iterator, Sequence
 from typing import Any, Protocol, TypeVar
 
 from .errors import InputError
@@ -23,17 +24,17 @@ __all__ = ["DaskCluster", "Executor", "InProcess", "LocalProcesses", "cpu_count"
 
 T = TypeVar("T")
 R = TypeVar("R")
-Progress = Callable[[int], None] | None
 
 
 class Executor(Protocol):
-    """Runs ``fn`` over ``tasks``, results in task order."""
+    """Runs ``fn`` over ``tasks``; results come back in task order."""
 
     workers: int
     name: str
 
-    def map(self, fn: Callable[[Any], R], tasks: Sequence[Any],
-            progress: Progress = None) -> list[R]: ...
+    def imap(self, fn: Callable[[Any], R], tasks: Sequence[Any]) -> Iterator[R]: ...
+
+    def map(self, fn: Callable[[Any], R], tasks: Sequence[Any]) -> list[R]: ...
 
 
 def cpu_count() -> int:
@@ -44,23 +45,48 @@ def cpu_count() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-class InProcess:
+class _Base:
+    """``map`` from ``imap``."""
+
+    def imap(self, fn: Callable[[Any], R], tasks: Sequence[Any]) -> Iterator[R]:
+        raise NotImplementedError
+
+    def map(self, fn: Callable[[Any], R], tasks: Sequence[Any]) -> list[R]:
+        """Every result, in task order."""
+        return list(self.imap(fn, tasks))
+
+
+class InProcess(_Base):
     """Everything in the calling process, one task after the other."""
 
     workers = 1
     name = "this process"
 
-    def map(self, fn: Callable[[Any], R], tasks: Sequence[Any],
-            progress: Progress = None) -> list[R]:
-        out = []
-        for i, task in enumerate(tasks):
-            out.append(fn(task))
-            if progress is not None:
-                progress(i)
-        return out
+    def imap(self, fn: Callable[[Any], R], tasks: Sequence[Any]) -> Iterator[R]:
+        """Results in task order, each computed when it is asked for."""
+        for task in tasks:
+            yield fn(task)
 
 
-class LocalProcesses:
+def _windowed(submit: Callable[[Any], Any], result: Callable[[Any], R], tasks: Sequence[Any],
+              window: int) -> Iterator[R]:
+    """Results in task order with at most ``window`` tasks submitted and not yet taken, so
+    memory holds a few results whatever the number of tasks."""
+    pending: deque[Any] = deque()
+    it = iter(tasks)
+    for task in it:
+        pending.append(submit(task))
+        if len(pending) >= window:
+            break
+    while pending:
+        fut = pending.popleft()
+        for task in it:
+            pending.append(submit(task))
+            break
+        yield result(fut)
+
+
+class LocalProcesses(_Base):
     """``workers`` fresh worker processes on this machine (started with ``spawn``: no state of
     the caller is inherited, and no threads are forked)."""
 
@@ -71,27 +97,22 @@ class LocalProcesses:
         self.workers = int(workers)
         self.name = f"{self.workers} local worker processes"
 
-    def map(self, fn: Callable[[Any], R], tasks: Sequence[Any],
-            progress: Progress = None) -> list[R]:
+    def imap(self, fn: Callable[[Any], R], tasks: Sequence[Any]) -> Iterator[R]:
+        """Results in task order; at most 4 tasks per worker in flight."""
         if self.workers == 1 or len(tasks) <= 1:
-            return InProcess().map(fn, tasks, progress)
+            yield from InProcess().imap(fn, tasks)
+            return
         import multiprocessing
-        from concurrent.futures import ProcessPoolExecutor, as_completed
+        from concurrent.futures import ProcessPoolExecutor
 
         ctx = multiprocessing.get_context("spawn")
-        out: list[Any] = [None] * len(tasks)
         with ProcessPoolExecutor(max_workers=min(self.workers, len(tasks)),
                                  mp_context=ctx) as pool:
-            futures = {pool.submit(fn, task): i for i, task in enumerate(tasks)}
-            for fut in as_completed(futures):
-                i = futures[fut]
-                out[i] = fut.result()
-                if progress is not None:
-                    progress(i)
-        return out
+            yield from _windowed(lambda t: pool.submit(fn, t), lambda f: f.result(), tasks,
+                                 4 * self.workers)
 
 
-class DaskCluster:
+class DaskCluster(_Base):
     """The workers of a running Dask ``distributed`` scheduler at ``address``
     (``tcp://HOST:PORT``)."""
 
@@ -109,16 +130,15 @@ class DaskCluster:
         self.workers = max(1, len(self.client.scheduler_info().get("workers", {})))
         self.name = f"the Dask cluster at {address} ({self.workers} workers)"
 
-    def map(self, fn: Callable[[Any], R], tasks: Sequence[Any],
-            progress: Progress = None) -> list[R]:
-        futures = self.client.map(fn, list(tasks), pure=False)
-        out = []
-        for i, fut in enumerate(futures):  # in task order: the progress counts what is done
-            out.append(fut.result())
-            if progress is not None:
-                progress(i)
+    def imap(self, fn: Callable[[Any], R], tasks: Sequence[Any]) -> Iterator[R]:
+        """Results in task order; at most 4 tasks per worker in flight."""
+        def take(fut: Any) -> R:
+            out = fut.result()
             fut.release()
-        return out
+            return out  # type: ignore[no-any-return]
+
+        yield from _windowed(lambda t: self.client.submit(fn, t, pure=False), take, tasks,
+                             4 * self.workers)
 
     def close(self) -> None:
         """Disconnect from the scheduler (the cluster keeps running)."""

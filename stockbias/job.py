@@ -67,6 +67,7 @@ _SECTIONS: dict[str, dict[str, str | None]] = {
                "negative_tolerance_pct": "%", "mains_derived": None},
     "target": {"ic": "A", "ic_window_pct": "%", "ic_min": "A", "ic_max": "A", "vce_min": "V",
                "swing_pk": "V", "gain_min": "", "gain_max": "", "yield_min": "%",
+               "yield_confidence": "%",
                "rin_min": "ohm", "divider_ratio_min": ""},
     "limits": {"supply_power_max": "W", "resistor_derating": "", "tj_max": "°C",
                "derating_knee_c": "°C", "derating_zero_c": "°C", "supply_current_max": "A"},
@@ -147,10 +148,11 @@ class _Parser:
                 value = parse_quantity(raw, unit or "")
             except NotationError as exc:
                 raise self.error(exc.message, section, key, raw, occurrence) from None
-        if key == "yield_min" and isinstance(raw, (int, float)) and 0 < value <= 1:
+        if key in ("yield_min", "yield_confidence") and isinstance(raw, (int, float)) and \
+                0 < value <= 1:
             wanted = 100 * value if value < 1 else 99.9
-            raise self.error(f"yield_min is a percent (at least 50, below 100), not a "
-                             f"fraction: for {wanted:.6g} % write yield_min = {wanted:.6g}",
+            raise self.error(f"{key} is a percent (at least 50, below 100), not a "
+                             f"fraction: for {wanted:.6g} % write {key} = {wanted:.6g}",
                              section, key, raw, occurrence)
         problem = implausible(key, value)
         if problem is not None:
@@ -252,8 +254,11 @@ class _Parser:
                              "gain_min", t["gain_min"], occurrence)
         # the job states a percent; the Target (and JSON) keep the yield as a fraction
         yield_min = None if q["yield_min"] is None else round(q["yield_min"] / 100, 12)
+        confidence = 0.95 if q["yield_confidence"] is None else \
+            round(q["yield_confidence"] / 100, 12)
         return Target(ic_min, ic_max, vce_min, q["swing_pk"], q["gain_min"], q["gain_max"],
                       yield_min, ic_set=q["ic"] if not has_bounds else None,
+                      yield_confidence=confidence,
                       rin_min=q["rin_min"], divider_ratio_min=q["divider_ratio_min"])
 
     def limits(self, t: dict[str, Any], section: str, base: Limits | None = None,

@@ -75,6 +75,9 @@ class Target:
     # (consolidate, substitute), not a job key
     gain_nominal_min: float | None = None
     gain_nominal_max: float | None = None
+    #: one-sided confidence at which a design's yield must be shown to meet yield_min
+    #: (the job's percent as a fraction; 95 % when the job does not say)
+    yield_confidence: float = 0.95
 
     @property
     def ic(self) -> float:

@@ -97,6 +97,9 @@ PLAUSIBLE: dict[str, Plausible] = {
                            "below 50 % is no build target, and 100 % cannot be shown by "
                            "sampling (ask for 99.9)",
                            high_open=True),
+    "yield_confidence": Plausible(50.0, 100.0, "%", "the one-sided confidence of the yield "
+                                  "claim, in percent; below 50 % it claims nothing, and "
+                                  "100 % cannot be reached by sampling", high_open=True),
     "rin_min": Plausible(1.0, 1e9, "ohm", "an input resistance from 1 Ω up to an "
                          "electrometer's 1 GΩ"),
     "divider_ratio_min": Plausible(0.0, 1000.0, "", "the divider current as a multiple of "

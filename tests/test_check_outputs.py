@@ -167,6 +167,7 @@ swing_pk = "1 V"
 gain_min = 0.3
 gain_max = 5
 yield_min = "90 %"
+yield_confidence = "97.5 %"
 [limits]
 supply_power_max = "60 mW"
 [environment]

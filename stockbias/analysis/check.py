@@ -209,8 +209,12 @@ def _thermal(spec: StageSpec, wc: WorstCase) -> dict[str, object]:
 def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
                   transistor: Transistor, *, samples: int = 20000, seed: int = 0,
                   topology: str | None = None, executor: object | None = None,
-                  progress: Callable[[int], None] | None = None) -> CheckResult:
-    """Analyse one stage with resolved parts (the path `check` and the search share)."""
+                  progress: Callable[[int], None] | None = None,
+                  stream: int = 0) -> CheckResult:
+    """Analyse one stage with resolved parts (the path `check` and the search share).
+
+    ``stream`` picks the Monte Carlo's family of random streams (0 for ``check``; the yield
+    search re-checks its designs on a stream it never sampled them on)."""
     spec = build_spec(job, stage, parts, transistor, topology)
     network = spec.network
     ratings = {role: p.rating for role, p in parts.items()}
@@ -271,7 +275,7 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
         spans = {k: (float(wc.bounds[k].min), float(wc.bounds[k].max))
                  for k in ("ic", "vce") if k in wc.bounds}
         mc = monte_carlo(spec, limits, samples, seed, tempco_ppm=tempcos, ranges=spans,
-                         executor=executor, progress=progress)
+                         executor=executor, progress=progress, stream=stream)
         if yield_limit is not None:
             y = mc.yield_.yield_
             results.append(ConstraintResult("yield_min", yield_limit, y, y - yield_limit,

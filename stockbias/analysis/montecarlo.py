@@ -302,19 +302,18 @@ def monte_carlo(spec: StageSpec, limits: list[Limit], samples: int, seed: int = 
     blocks = math.ceil(n / STREAM_BLOCK)
     per = max(1, math.ceil(int(chunk) / STREAM_BLOCK))
     tasks = [(run, b, min(b + per, blocks)) for b in range(0, blocks, per)]
-    done = [0]
-
-    def tick(i: int) -> None:
-        _, first, stop = tasks[i]
-        done[0] += min(stop * STREAM_BLOCK, n) - first * STREAM_BLOCK
-        if progress is not None:
-            progress(done[0])
-
     ex = executor if executor is not None else InProcess()
-    tallies = ex.map(_run_chunk, tasks, tick)  # type: ignore[attr-defined]
-    total = tallies[0]
-    for t in tallies[1:]:
-        total = total.merge(t)
+    # tallies are merged as they arrive (integer counts and extremes: exact in any order),
+    # so memory holds the chunks in flight, not one tally per chunk
+    total: _Tally | None = None
+    done = 0
+    for (_, first, stop), tally in zip(tasks, ex.imap(_run_chunk, tasks),  # type: ignore[attr-defined]
+                                       strict=True):
+        total = tally if total is None else total.merge(tally)
+        done += min(stop * STREAM_BLOCK, n) - first * STREAM_BLOCK
+        if progress is not None:
+            progress(done)
+    assert total is not None
     failing = {lim.name: total.failing.get(lim.name, 0) for lim in checked}
     return MonteCarloResult(
         yield_=yield_from_counts(total.passed, total.boards),

@@ -24,6 +24,7 @@ __all__ = [
     "TRUNCATION_SIGMAS",
     "YieldResult",
     "clopper_pearson",
+    "one_sided_bounds",
     "draw_resistor_factors",
     "draw_uniform",
     "numeric_sensitivities",
@@ -76,6 +77,25 @@ def clopper_pearson(
     low = 0.0 if k == 0 else float(stats.beta.ppf(alpha / 2.0, k, n - k + 1))
     high = 1.0 if k == n else float(stats.beta.ppf(1.0 - alpha / 2.0, k + 1, n - k))
     return low, high
+
+
+def one_sided_bounds(successes: int, trials: int, confidence: float) -> tuple[float, float]:
+    """One-sided Clopper–Pearson bounds of a binomial proportion.
+
+    ``low`` is the lower bound and ``high`` the upper bound, each holding alone at
+    ``confidence`` (0.5 ≤ confidence < 1): P(p ≥ low) ≥ confidence and P(p ≤ high) ≥
+    confidence.  Each is the matching end of the two-sided interval at ``2·confidence − 1``.
+    """
+    if not 0.5 <= confidence < 1.0:
+        raise InputError("a one-sided confidence must lie in [0.5, 1)", text=str(confidence))
+    if confidence == 0.5:  # the two-sided interval at 0: both bounds are the median estimate
+        from scipy import stats
+
+        k, n = int(successes), int(trials)
+        low = 0.0 if k == 0 else float(stats.beta.ppf(0.5, k, n - k + 1))
+        high = 1.0 if k == n else float(stats.beta.ppf(0.5, k + 1, n - k))
+        return low, high
+    return clopper_pearson(successes, trials, 2.0 * confidence - 1.0)
 
 
 def draw_resistor_factors(

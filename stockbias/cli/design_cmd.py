@@ -7,7 +7,17 @@ from typing import TYPE_CHECKING, Annotated
 
 import typer
 
-from .common import ForceOpt, InventoryOpt, JobArg, JsonOpt, load, plot_files, search_progress
+from .common import (
+    ClusterOpt,
+    ForceOpt,
+    InventoryOpt,
+    JobArg,
+    JsonOpt,
+    WorkersOpt,
+    load,
+    plot_files,
+    search_progress,
+)
 
 if TYPE_CHECKING:  # loaded by the command when it runs
     from ..outputs import OutputSet
@@ -35,6 +45,8 @@ def design(
     variants: Annotated[bool, typer.Option(
         "--variants", help="List every RC value that works with each network, each "
         "re-verified in full (--top counts networks either way).")] = False,
+    workers: WorkersOpt = 0,
+    cluster: ClusterOpt = None,
 ) -> None:
     """Search the stock for the best designs that meet every worst-case limit."""
     from ..outputs import OutputSet
@@ -54,6 +66,13 @@ def design(
         job, inv = load(job_file, inventory)
         assert inv is not None
         job, assumed = with_design_defaults(job)
+        if not job.is_board and job.stage.target.yield_min is not None:
+            from .yield_design import run_yield_design
+
+            run_yield_design(outs, job, inv, job_file, inventory, top=top,
+                             time_limit=time_limit, json_out=json_out, save=save,
+                             workers=workers, cluster=cluster, assumed=assumed)
+            return
         with search_progress(json_out, "searching the shelf") as progress:
             result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress,
                                 verify_variants=variants)
