@@ -446,7 +446,21 @@ class _Parser:
                                 {str(k): v for k, v in refs.items()}))
         if not stages:
             raise self.error("a board needs at least one [[stage]]", "stage", None, None)
+        self.shared_designators(stages)
         return tuple(stages)
+
+    def shared_designators(self, stages: list[Stage]) -> None:
+        """Two stages naming one schematic part in [stage.refs] share a node: they are
+        DC-coupled and cannot be designed as independent stages of one board."""
+        owner: dict[str, str] = {}
+        for i, st in enumerate(stages):
+            for designator in {d for v in st.refs.values() for d in re.split(r"[+|]", v) if d}:
+                if designator in owner:
+                    raise self.error(f"stages '{owner[designator]}' and '{st.name}' both name "
+                                     f"{designator}: stages that share a part are DC-coupled "
+                                     "and cannot be designed as independent stages",
+                                     "stage.refs", None, designator, i)
+                owner[designator] = st.name
 
 
 def _shown(value: Any) -> str:

@@ -356,3 +356,31 @@ def test_cli_bad_netlist_and_no_stage() -> None:
     result = runner.invoke(app, ["board", "from-netlist", str(empty)])
     assert result.exit_code == 1
     assert "no stage could be imported" in result.output
+
+
+def test_stages_joined_by_a_resistor_are_dc_coupled() -> None:
+    # Q1's collector feeds Q2's base through R5: one DC-coupled pair, not two stages
+    parts = {"R1": ("R", "47k"), "R2": ("R", "10k"), "R3": ("R", "4k7"), "R4": ("R", "1k"),
+             "R5": ("R", "10k"), "R6": ("R", "2k2"), "R7": ("R", "470R"),
+             "Q1": ("Q_NPN_BCE", "NPN"), "Q2": ("Q_NPN_BCE", "NPN")}
+    nets = {"+12V": [("R1", "1", ""), ("R3", "1", ""), ("R6", "1", "")],
+            "/b1": [("R1", "2", ""), ("R2", "1", ""), ("Q1", "1", "B")],
+            "/c1": [("R3", "2", ""), ("Q1", "2", "C"), ("R5", "1", "")],
+            "/e1": [("Q1", "3", "E"), ("R4", "1", "")],
+            "/b2": [("R5", "2", ""), ("Q2", "1", "B")],
+            "/c2": [("R6", "2", ""), ("Q2", "2", "C")], "/e2": [("Q2", "3", "E"), ("R7", "1", "")],
+            "GND": [("R2", "2", ""), ("R4", "2", ""), ("R7", "2", "")]}
+    board = import_board(parse_netlist(_tiny(nets, parts)))
+    assert board.stages == []
+    (p,) = board.problems
+    assert set(p.refs) == {"Q1", "Q2", "R1", "R2", "R3", "R4", "R5", "R6", "R7"}
+    assert "R5 joins Q1 collector to Q2 base" in p.reason
+
+
+def test_a_board_naming_one_part_in_two_stages_is_refused() -> None:
+    board = import_board(load_netlist(SAMPLES / "kicad_networks.xml"))
+    text = board.text.replace('RE = "R11"', 'RE = "R4"')   # Q3's RE said to be Q1's
+    with pytest.raises(JobError) as err:
+        parse_job(text.replace('"fill in:', '"1 mA" #'))
+    assert "stages 'Q1' and 'Q3' both name R4" in err.value.message
+    assert "DC-coupled" in err.value.message
