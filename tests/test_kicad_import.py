@@ -8,6 +8,7 @@ say (KiCad's power-symbol naming, common practice).
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import jsonschema
@@ -325,6 +326,7 @@ def test_cli_without_out_prints_the_board() -> None:
     result = runner.invoke(app, ["board", "from-netlist", str(SAMPLES / "kicad_networks.xml")])
     assert result.exit_code == 0, result.output
     assert result.stdout.startswith("# Board read from the KiCad netlist")
+    assert max(len(line) for line in result.stdout.splitlines()[1:]) <= 100
     assert 'RC = "R22+R23"' in result.stdout
 
 
@@ -384,3 +386,21 @@ def test_a_board_naming_one_part_in_two_stages_is_refused() -> None:
         parse_job(text.replace('"fill in:', '"1 mA" #'))
     assert "stages 'Q1' and 'Q3' both name R4" in err.value.message
     assert "DC-coupled" in err.value.message
+
+
+@pytest.mark.parametrize("width", [80, 120])
+def test_screen_fits_the_width_and_keeps_values_whole(tmp_path: Path, width: int) -> None:
+    for name, extra, wholes in (
+            ("kicad_unclassified.net", [], ("R14 ('~')", "RE=R14 (value to fill in)")),
+            ("kicad_distribution_amp.net", ["-i", str(SHELF)], ("330 µA", "RE=R16 CF-680R"))):
+        out = tmp_path / f"{width}{name}.toml"
+        r = runner.invoke(app, ["board", "from-netlist", str(SAMPLES / name), "-o", str(out),
+                                *extra], env={"COLUMNS": str(width)})
+        assert r.exit_code == 0, r.output
+        lines = r.stdout.splitlines()
+        for line in lines:
+            assert len(line) <= width or str(SAMPLES) in line or str(out) in line, line
+            assert not re.match(r"\s*[µmk]?[AVΩ]\b", line), line   # no unit torn from its number
+        text = " ".join(line.strip() for line in lines)
+        for whole in wholes:
+            assert whole in text

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import json
 import math
+import textwrap
 from collections import Counter
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -281,8 +282,8 @@ def _fill(what: str, to_fill: list[str]) -> str:
 def _text(board: ImportedBoard, *, with_targets: bool) -> str:
     g = board.graph
     to_fill: list[str] = []
-    out = [f"# Board read from the KiCad netlist {_comment(board.netlist.path)} by "
-           "`stockbias board from-netlist`.",
+    out = [f"# Board read from the KiCad netlist {_comment(board.netlist.path)}",
+           "# by `stockbias board from-netlist`.",
            "# [stage.refs] names each role's parts on the schematic; [stage.values] holds",
            "# their values (or the part ids of their 'Stock part' field). Entries that begin",
            "# 'fill in' are what the netlist does not say: replace them before `check`.",
@@ -343,8 +344,10 @@ def _text(board: ImportedBoard, *, with_targets: bool) -> str:
         out += [f"{role} = {_q(e.label)}" for role, e in s.found.roles.items()]
     if board.problems:
         out += ["", "# Not classified (not in this board file):"]
-        out += [f"#   {_comment(', '.join(p.refs))}: {_comment(p.reason)}"
-                for p in board.problems]
+        for p in board.problems:
+            out += textwrap.wrap(f"{_comment(', '.join(p.refs))}: {_comment(p.reason)}",
+                                 width=88, initial_indent="#   ", subsequent_indent="#       ",
+                                 break_long_words=False, break_on_hyphens=False)
     if with_targets:
         board.to_fill = to_fill
     return "\n".join(out) + "\n"

@@ -4,17 +4,30 @@ to fill in.  Lines wrap at the console width; references, values and part ids ar
 
 from __future__ import annotations
 
+import re
 from typing import TYPE_CHECKING
 
 from rich.console import Console
 from rich.text import Text
 
 from ..errors import printable
+from ..units import format_quantity
 
 if TYPE_CHECKING:
     from ..kicad.board_writer import ImportedBoard
 
 __all__ = ["render_import"]
+
+
+def _words(text: str) -> list[str]:
+    """Words to wrap between; a number stays with its unit (``330 µA`` is one word)."""
+    out: list[str] = []
+    for word in text.split(" "):
+        if out and re.search(r"\d$", out[-1]) and re.fullmatch(r"[µmkMG]?[AVΩ%][),;.]*", word):
+            out[-1] += " " + word
+        else:
+            out.append(word)
+    return out
 
 
 def _items(console: Console, lead: str, items: list[str]) -> None:
@@ -45,15 +58,15 @@ def render_import(console: Console, board: ImportedBoard, written: str | None) -
                  for role, e in s.found.roles.items()]
         _items(console, f"  {s.name}: {s.found.topology} {s.found.polarity} {part}:", items)
         if s.ic is not None:
-            _items(console, "      target:", f"IC {s.ic * 1e3:.3g} mA ±{s.ic_window_pct:g} % "
-                   f"({s.target_note})".split(" "))
+            _items(console, "      target:", _words(f"IC {format_quantity(s.ic, 'A')} "
+                   f"±{s.ic_window_pct:g} % ({s.target_note})"))
     if board.problems:
         console.print(Text("Not classified:"))
         for p in board.problems:
-            _items(console, "  " + ", ".join(p.refs) + ":", p.reason.split(" "))
+            _items(console, "  " + ", ".join(p.refs) + ":", _words(p.reason))
     if board.to_fill:
         console.print(Text(f"To fill in before `check` ({len(board.to_fill)}):"))
         for what in board.to_fill:
-            _items(console, "  -", what.split(" "))
+            _items(console, "  -", _words(what))
     if written:
         console.print(Text(printable(f"Board file written: {written}")))
