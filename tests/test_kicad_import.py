@@ -404,3 +404,17 @@ def test_screen_fits_the_width_and_keeps_values_whole(tmp_path: Path, width: int
         text = " ".join(line.strip() for line in lines)
         for whole in wholes:
             assert whole in text
+
+
+@pytest.mark.parametrize(("part", "value", "fields", "polarity", "source"), [
+    ("Q_NPN_BCE", "small signal", {}, "NPN", "symbol"),
+    ("Q_BJT", "PNP general purpose", {}, "PNP", "value"),
+    ("Q_BJT", "QX-7", {"Type": "npn"}, "NPN", "field 'Type'"),
+    ("Q_BJT", "QX-7", {}, None, ""),
+])
+def test_polarity_from_symbol_value_or_field(part: str, value: str, fields: dict,
+                                             polarity: str | None, source: str) -> None:
+    from stockbias.kicad.graph import _polarity
+    from stockbias.kicad.netlist import Component
+
+    assert _polarity(Component("Q1", value, "Device", part, fields)) == (polarity, source)
