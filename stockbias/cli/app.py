@@ -216,6 +216,7 @@ def _register() -> None:
         export_cmd,
         stock_cmd,
         substitute_cmd,
+        sweep_cmd,
     )
 
     app.command("demo", cls=_Command)(demo_cmd.demo)
@@ -224,6 +225,7 @@ def _register() -> None:
     app.command("substitute", cls=_Command)(substitute_cmd.substitute)
     app.command("consolidate", cls=_Command)(consolidate_cmd.consolidate)
     app.command("export", cls=_Command)(export_cmd.export)
+    app.command("sweep", cls=_Command)(sweep_cmd.sweep)
     app.add_typer(stock_cmd.app, name="stock", cls=_Group)
     app.add_typer(board_cmd.app, name="board", cls=_Group)
     for info in [*stock_cmd.app.registered_commands, *board_cmd.app.registered_commands]:
