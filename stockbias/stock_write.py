@@ -11,9 +11,13 @@ and compared with the original, part by part, before it may replace it.
 How the file is replaced (a crash at any point leaves the old file or the
 new one, whole):
 
-1. an exclusive lock (``fcntl.flock``) on ``.<name>.lock`` in the same folder
-   serialises stockbias processes; the file is read *under* the lock, so two
-   reservations run one after the other and neither is lost;
+1. an exclusive lock (``fcntl.flock``) on the stock file itself serialises
+   stockbias processes, with no lock file left beside it.  Since a reservation
+   replaces the file (a new inode), a process that gets the lock checks that
+   the file it locked is still the one at the path, and otherwise locks the new
+   one: the lock that counts is always the current file's.  The file is read
+   *under* the lock, so two reservations run one after the other and neither is
+   lost;
 2. the new bytes go to a temporary file in the same folder
    (``.<name>.<random>.tmp``), flushed and fsynced;
 3. a timestamped backup ``<name>.YYYYmmdd-HHMMSS.bak`` is written next to the
@@ -29,8 +33,8 @@ Every step works on the real file (symbolic links resolved): a link to the
 stock file stays a link and the file it points to is the one changed, and a
 link and the real path share one lock.  A file with several hard links is
 refused (replacing it would leave the other names with the old quantities).
-A dry run takes no lock and creates nothing.  A folder where the lock, the
-temporary file or the backup cannot be written is a one-line
+A dry run takes no lock and creates nothing.  A folder where the temporary
+file or the backup cannot be written is a one-line
 :class:`~stockbias.errors.InputError`.
 """
 
@@ -235,33 +239,50 @@ def _layout(data: bytes, delimiter: str) -> tuple[int, int]:
 
 @contextlib.contextmanager
 def _locked(path: Path, timeout_s: float, shown: str | None = None) -> Iterator[None]:
-    """Hold ``.<name>.lock`` next to ``path`` (the real path: one lock per file)."""
+    """Hold an exclusive lock on the stock file at ``path`` (the real path).
+
+    Every reservation replaces the file while it holds the lock on it, so a lock
+    obtained on a file that is no longer at the path is let go and the new file's
+    is taken: whoever holds the lock of the file now at the path is the only
+    writer.  No lock file is created.
+    """
     shown = str(path) if shown is None else shown
-    lock = path.with_name(f".{path.name}.lock")
+    deadline = time.monotonic() + timeout_s
+    while True:
+        try:
+            fd = os.open(path, os.O_RDONLY)
+        except OSError as exc:
+            raise InputError(f"cannot open the stock file: {exc.strerror}; nothing written",
+                             file=shown) from None
+        try:
+            while True:
+                try:
+                    fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                    break
+                except OSError as exc:
+                    if exc.errno not in (errno.EAGAIN, errno.EACCES, errno.EWOULDBLOCK):
+                        raise
+                    if time.monotonic() >= deadline:
+                        raise StockLockedError(
+                            f"another stockbias process has held the lock on the stock file "
+                            f"for {timeout_s:g} s; nothing written, try again",
+                            file=shown) from None
+                    time.sleep(0.05)
+            locked, now = os.fstat(fd), _identity(path)
+            if now == (locked.st_dev, locked.st_ino):
+                yield
+                return
+        finally:
+            os.close(fd)  # closing releases the lock
+        # the file was replaced while we waited: lock the one at the path now
+
+
+def _identity(path: Path) -> tuple[int, int] | None:
     try:
-        fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
-    except OSError as exc:
-        raise InputError(f"cannot create the lock file {lock.name} in {path.parent}: "
-                         f"{exc.strerror}; a reservation needs to write in the stock file's "
-                         "folder; nothing written", file=shown) from None
-    try:
-        deadline = time.monotonic() + timeout_s
-        while True:
-            try:
-                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-                break
-            except OSError as exc:
-                if exc.errno not in (errno.EAGAIN, errno.EACCES, errno.EWOULDBLOCK):
-                    raise
-                if time.monotonic() >= deadline:
-                    raise StockLockedError(
-                        f"another process has held the lock {lock.name} for "
-                        f"{timeout_s:g} s; nothing written, try again", file=shown) \
-                        from None
-                time.sleep(0.05)
-        yield
-    finally:
-        os.close(fd)  # closing releases the lock
+        st = os.stat(path)
+    except OSError:
+        return None
+    return st.st_dev, st.st_ino
 
 
 def _refuse_hard_links(path: Path, shown: str) -> None:

@@ -10,6 +10,7 @@ import signal
 import subprocess
 import sys
 import textwrap
+import threading
 import time
 from datetime import datetime
 from pathlib import Path
@@ -150,7 +151,7 @@ def test_short_stock_names_every_short_line_and_writes_nothing(tmp_path: Path) -
     assert "Q-N1 (line 10) have 12, need 13" in str(err.value)
     assert "R-1K" not in str(err.value)
     assert path.read_bytes() == AWKWARD.encode("utf-8")
-    assert sorted(p.name for p in tmp_path.iterdir()) == [".drawer.csv.lock", "drawer.csv"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["drawer.csv"]   # no lock file
 
 
 def test_dry_run_writes_nothing(tmp_path: Path) -> None:
@@ -173,19 +174,47 @@ def test_a_change_by_another_program_is_detected_and_nothing_replaced(tmp_path: 
     with pytest.raises(StockChangedError, match="changed by another program"):
         reserve_stock(path, lambda inv: {"R-4K7": 1}, fault=editor_saves)
     assert path.read_bytes() == edited
-    assert sorted(p.name for p in tmp_path.iterdir()) == [".drawer.csv.lock", "drawer.csv"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["drawer.csv"]   # no lock file
 
 
 def test_a_held_lock_is_waited_for_then_refused(tmp_path: Path) -> None:
     path = awkward(tmp_path)
-    fd = os.open(tmp_path / ".drawer.csv.lock", os.O_RDWR | os.O_CREAT)
+    fd = os.open(path, os.O_RDONLY)
     try:
         fcntl.flock(fd, fcntl.LOCK_EX)
-        with pytest.raises(StockLockedError, match="held the lock"):
+        with pytest.raises(StockLockedError, match="held the lock on the stock file"):
             reserve_stock(path, lambda inv: {"R-4K7": 1}, lock_timeout_s=0.2)
     finally:
         os.close(fd)
     assert path.read_bytes() == AWKWARD.encode("utf-8")
+    assert [p.name for p in tmp_path.iterdir()] == ["drawer.csv"]
+
+
+def test_a_lock_on_a_replaced_file_is_let_go_for_the_current_ones(tmp_path: Path) -> None:
+    """A waits on the file B is replacing; B replaces it, C locks the new one, B lets go:
+    A must wait for C (the lock of the file now at the path), not write beside it."""
+    path = awkward(tmp_path)
+    old_fd = os.open(path, os.O_RDONLY)
+    fcntl.flock(old_fd, fcntl.LOCK_EX)                     # B holds the lock of the file
+    done: list[object] = []
+    worker = threading.Thread(target=lambda: done.append(
+        reserve_stock(path, lambda inv: {"R-4K7": 1}, lock_timeout_s=30)))
+    worker.start()                                         # A waits on B's file
+    time.sleep(0.3)
+    replaced = AWKWARD.replace(";0,25; 40 ;", ";0,25; 30 ;")
+    staged = tmp_path / "staged.csv"
+    staged.write_bytes(replaced.encode("utf-8"))
+    os.replace(staged, path)                               # B's reservation: 40 -> 30
+    new_fd = os.open(path, os.O_RDONLY)
+    fcntl.flock(new_fd, fcntl.LOCK_EX)                     # C locks the new file
+    os.close(old_fd)                                       # B lets go
+    time.sleep(0.5)
+    assert path.read_bytes() == replaced.encode("utf-8")  # A did not write beside C
+    assert worker.is_alive()
+    os.close(new_fd)                                       # C lets go
+    worker.join(timeout=30)
+    assert not worker.is_alive() and done
+    assert qty(path)["R-4K7"] == 29                        # A took one from B's result
 
 
 def test_unknown_part_is_refused(tmp_path: Path) -> None:
