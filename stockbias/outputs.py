@@ -277,9 +277,9 @@ class OutputSet:
         for o in self._outputs.values():
             if o.staged is None:
                 continue
-            if o.folder:
-                for tmp in sorted(o.staged.iterdir()):
-                    out.append((tmp, o.path / tmp.name, o.option))
+            if o.folder:  # names may lie in subfolders ("device_data/x.lib")
+                for tmp in sorted(p for p in o.staged.rglob("*") if not p.is_dir()):
+                    out.append((tmp, o.path / tmp.relative_to(o.staged), o.option))
             else:
                 out.append((o.staged, o.path, o.option))
         return out
@@ -305,6 +305,10 @@ class OutputSet:
                     o.path.mkdir()
                     made_dirs.append(o.path)
             for tmp, final, option in files:
+                missing = [d for d in final.parents if not os.path.lexists(d)]
+                for d in reversed(missing):  # a subfolder of a folder output
+                    d.mkdir()
+                    made_dirs.append(d)
                 placed.append(self._place(tmp, final, option))
             for folder in {os.path.realpath(p.final.parent) for p in placed}:
                 fsync_path(folder)
@@ -315,7 +319,7 @@ class OutputSet:
                         os.replace(p.undo, p.final)
                     elif not p.replaced:
                         os.unlink(p.final)
-            for d in made_dirs:
+            for d in reversed(made_dirs):
                 with contextlib.suppress(OSError):
                     d.rmdir()
             self.discard()

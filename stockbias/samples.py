@@ -19,8 +19,10 @@ SAMPLES_DIR = Path(__file__).resolve().parent / "samples"
 
 
 def sample_names() -> list[str]:
-    """The bundled sample files' names, sorted."""
-    return sorted(p.name for p in SAMPLES_DIR.iterdir() if p.is_file())
+    """The bundled sample files as paths relative to their folder (``device_data/x.lib``
+    for a file a shelf refers to), sorted."""
+    return sorted(p.relative_to(SAMPLES_DIR).as_posix() for p in SAMPLES_DIR.rglob("*")
+                  if p.is_file() and "__pycache__" not in p.parts)
 
 
 def sample_path(name: str, folder: Path | None = None) -> Path:

@@ -59,7 +59,9 @@ def test_copy_to_copies_every_sample_and_runs_on_the_copies(
     result = runner.invoke(app, ["demo", "--copy-to", "my samples"])
     assert result.exit_code == 0, result.output
     folder = tmp_path / "my samples"
-    assert sorted(p.name for p in folder.iterdir()) == sample_names()
+    assert sorted(p.relative_to(folder).as_posix() for p in folder.rglob("*")
+                  if p.is_file()) == sample_names()
+    assert "device_data/fernhill_models.lib" in sample_names()   # subfolders too
     for name in sample_names():
         assert (folder / name).read_bytes() == (SAMPLES_DIR / name).read_bytes()
     assert "Sample files copied to 'my samples'" in result.stdout
@@ -129,6 +131,10 @@ def test_an_installed_wheel_runs_the_demo_from_any_folder(tmp_path: Path) -> Non
     found = subprocess.run([str(python), "-c", "import stockbias; print(stockbias.__file__)"],
                            cwd=where, env=env, check=True, capture_output=True, text=True)
     assert Path(found.stdout.strip()).is_relative_to(env_dir)   # the wheel, not the checkout
+    names = subprocess.run([str(python), "-c", "from stockbias.samples import sample_names; "
+                            "print('\\n'.join(sample_names()))"], cwd=where, env=env,
+                           check=True, capture_output=True, text=True).stdout.split()
+    assert names == sample_names()                  # every sample shipped, subfolders too
     demo = subprocess.run([str(env_dir / "bin" / "stockbias"), "demo"], cwd=where, env=env,
                           capture_output=True, text=True, timeout=600, check=False)
     assert demo.returncode == 0, demo.stderr

@@ -375,3 +375,36 @@ def test_force_replaces_an_existing_file(bench: dict[str, Path], kind: str,
     assert result.exit_code == 0, result.output
     assert looks_written(option, out.read_bytes())
     assert {k: v for k, v in listing(folder).items() if k != "earlier.out"} == others
+
+
+def test_a_folder_output_with_subfolders_is_placed_whole_or_not_at_all(tmp_path: Path) -> None:
+    names = ["a.csv", "data/b.lib", "data/deep/c.csv"]
+    target = tmp_path / "copy"
+    outs = OutputSet({})
+    outs.folder("--copy-to", target, names)
+    with outs:
+        staged = outs.stage("--copy-to")
+        for n in names:
+            (staged / n).parent.mkdir(parents=True, exist_ok=True)
+            (staged / n).write_text(n)
+        written = outs.commit()
+    assert sorted(p.relative_to(target).as_posix() for p in written["--copy-to"]) == names
+    assert all((target / n).read_text() == n for n in names)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["copy"]     # no temporaries left
+
+    # the last file cannot be placed (a folder took its path): nothing stays, not even
+    # the folders the commit made
+    again = tmp_path / "again"
+    outs = OutputSet({})
+    outs.folder("--copy-to", again, names)
+    with outs:
+        staged = outs.stage("--copy-to")
+        for n in names:
+            (staged / n).parent.mkdir(parents=True, exist_ok=True)
+            (staged / n).write_text(n)
+        (again / "data" / "deep" / "c.csv").mkdir(parents=True)
+        with pytest.raises(OutputError, match="a folder is there"):
+            outs.commit()
+    assert sorted(p.relative_to(again).as_posix() for p in again.rglob("*")) == \
+        ["data", "data/deep", "data/deep/c.csv"]                    # only what was there
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["again", "copy"]

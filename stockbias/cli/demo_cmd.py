@@ -85,6 +85,7 @@ def _copy_samples(folder: Path, force: bool) -> Path:
     with outs:
         staged = outs.stage("--copy-to")
         for name in names:
+            (staged / name).parent.mkdir(parents=True, exist_ok=True)
             (staged / name).write_bytes((SAMPLES_DIR / name).read_bytes())
         outs.commit()
     return folder
