@@ -25,7 +25,9 @@ Screens before sampling, each sound
 Sampled screens
     Every other candidate is sampled on the same boards (common random numbers: the same
     seed and stream give every candidate the same manufacturing draws, so differences
-    between candidates are not noise).  First ``SCREEN_SAMPLES`` boards each (stream 1):
+    between candidates are not noise), vectorised over candidates × boards × corners
+    for candidates that share network, transistor and piece structure
+    (:mod:`stockbias.analysis.mc_candidates`).  First ``SCREEN_SAMPLES`` boards each (stream 1):
     a candidate whose one-sided Clopper–Pearson *upper* bound is below the target at
     confidence 1 − α/m (α = 1 − yield_confidence, m the candidates screened; Bonferroni)
     is out — with probability ≥ 1 − α no candidate that meets the target is dropped.
@@ -211,6 +213,35 @@ def _sample_task(task: tuple) -> tuple[int, int]:
     return mc.yield_.passed, mc.yield_.samples
 
 
+def _group_task(task: tuple) -> list[int]:
+    """Pass counts of one group of candidates on common boards (runs in workers too)."""
+    from ..analysis.mc_candidates import passing_counts
+
+    specs, limits, tempcos, n, seed, stream = task
+    return passing_counts(specs, limits, tempcos, n, seed, stream)
+
+
+def _screen(ex: object, job: Job, cands: list[_Candidate]) -> list[tuple[int, int]]:
+    """(passed, samples) of every candidate on the screening boards: candidates that share
+    network, transistor and piece structure vectorised together (candidates × boards ×
+    corners), one executor task per group."""
+    from ..analysis.mc_candidates import group_key
+
+    tasks = _tasks(job, cands, SCREEN_SAMPLES, STREAM_SCREEN)
+    groups: dict[object, list[int]] = {}
+    for i, (spec, limits, tempcos, *_rest) in enumerate(tasks):
+        key = group_key(spec, limits, tempcos)
+        groups.setdefault(("alone", i) if key is None else key, []).append(i)
+    members = list(groups.values())
+    work = [([tasks[i][0] for i in g], [tasks[i][1] for i in g], [tasks[i][2] for i in g],
+             SCREEN_SAMPLES, job.search.seed, STREAM_SCREEN) for g in members]
+    out: list[tuple[int, int]] = [(0, 0)] * len(cands)
+    for g, counts in zip(members, ex.map(_group_task, work), strict=True):  # type: ignore[attr-defined]
+        for i, k in zip(g, counts, strict=True):
+            out[i] = (k, SCREEN_SAMPLES)
+    return out
+
+
 def _tasks(job: Job, cands: list[_Candidate], n: int, stream: int) -> list[tuple]:
     stage = job.stage
     out = []
@@ -300,7 +331,7 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
         if progress is not None:
             progress(f"screening {m} candidates × {SCREEN_SAMPLES:,} boards",
                      len(levels) / (len(levels) + 2))
-        counts = ex.map(_sample_task, _tasks(job, sampled, SCREEN_SAMPLES, STREAM_SCREEN))  # type: ignore[attr-defined]
+        counts = _screen(ex, job, sampled)
         for c, (k_pass, n) in zip(sampled, counts, strict=True):
             c.screen = YieldResult(n, k_pass, k_pass / n, *clopper(k_pass, n))
             c.screen_high = one_sided_bounds(k_pass, n, 1.0 - alpha / m)[1]
@@ -312,10 +343,17 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
     dropped_final: list[str] = []
     judged = 0
     seen_nets: set[tuple[object, ...]] = set()
-    for c in alive:
-        if len(chosen) >= top or time.monotonic() - t0 > limit * 1.5:
+    cut = 0
+    for i, c in enumerate(alive):
+        if len(chosen) >= top:
+            break
+        if time.monotonic() - t0 > limit:
+            cut = len(alive) - i      # the time limit holds: the rest is not judged
             break
         if c.mass < y_min:
+            if progress is not None:
+                progress(f"judging candidate {i + 1} of {len(alive)} on {samples:,} boards",
+                         (len(levels) + i / max(len(alive), 1)) / (len(levels) + 2))
             judged += 1
             (k_pass, n), = ex.map(_sample_task, _tasks(job, [c], samples, STREAM_JUDGE))  # type: ignore[attr-defined]
             low = one_sided_bounds(k_pass, n, conf)[0]
@@ -352,11 +390,15 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
         "sampled_candidates": m, "screened_out": screened_out,
         "screen_confidence_each": None if not m else 1.0 - alpha / m,
         "judged": judged, "dropped_on_final_check": dropped_final,
+        "not_judged_time_limit": cut,
         "executor": getattr(ex, "name", "this process"),
     }
     result = YieldDesignResult(status, chosen, plain.search.objectives, y_min, conf, samples,
                                worst, seconds, stats)
     result.assumptions = _assumptions(worst, chosen)
+    if cut:
+        result.assumptions.append(f"time limit reached: {cut} candidates were not judged; a "
+                                  "longer --time-limit may find cheaper designs")
     if not chosen:
         result.explanation = (
             f"no candidate was shown to reach {100 * y_min:g} % at {100 * conf:g} % "
