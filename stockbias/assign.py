@@ -5,11 +5,11 @@ when there is one), a series pair ``A+B`` or a parallel pair ``A|B``.  A value
 that is not on the shelf is analysed with a stated tolerance, flagged as not in
 stock (``in_stock: false``) and warned about.
 
-Tokens are read in this order: a part id of the shelf (exactly); a transistor
-id (an error); a value in engineering notation (``4k7``, ``4.7e+4``, ``R47``) —
-unless the token resembles the shelf's part ids (an id in other letter case, or a
-token that begins with a letter and is a close spelling of an id or has the same
-letter prefix as one, as ``R999`` beside lines named ``R4K7``, ``R10K``), which
+Tokens are read in this order: a part id of the shelf (in any letter case, as
+everywhere ids are looked up); a transistor id (an error); a value in engineering
+notation (``4k7``, ``4.7e+4``, ``R47``) — unless the token resembles the shelf's
+part ids (a token that begins with a letter and is a close spelling of an id or
+has the same letter prefix as one, as ``R999`` beside lines named ``R4K7``, ``R10K``), which
 is an error naming the nearest ids, because a mistyped id must not be analysed
 as a 0.999 Ω resistor.  A value must lie in the stock reader's plausible range
 (1 mΩ…10 GΩ).  A value held by several stock lines takes the tightest

@@ -24,6 +24,7 @@ __all__ = [
     "Inventory",
     "Resistor",
     "Transistor",
+    "id_key",
 ]
 
 Polarity = Literal["NPN", "PNP"]
@@ -269,6 +270,11 @@ class Transistor:
         return out
 
 
+def id_key(part_id: str) -> str:
+    """The form two part ids are compared in: letter case ignored (``CF-4K7`` = ``cf-4k7``)."""
+    return part_id.casefold()
+
+
 @dataclass(frozen=True)
 class Inventory:
     """A validated stock file.
@@ -295,19 +301,27 @@ class Inventory:
     sha256: str = ""
     extra_columns: tuple[str, ...] = ()
 
+    # Part ids are matched without regard to letter case (`qn-gp40` finds QN-GP40), as
+    # role names are; the stock reader refuses two ids that differ only in case.
+
     def part(self, part_id: str) -> Resistor | Transistor:
-        """The row with this stock code; KeyError if there is none."""
+        """The row with this stock code (any letter case); KeyError if there is none."""
+        key = id_key(part_id)
         rows: tuple[Resistor | Transistor, ...] = (*self.resistors, *self.transistors)
         for row in rows:
-            if row.part_id == part_id:
+            if id_key(row.part_id) == key:
                 return row
         raise KeyError(part_id)
 
     def find_resistor(self, part_id: str) -> Resistor | None:
-        return next((r for r in self.resistors if r.part_id == part_id), None)
+        """The resistor line with this part id (any letter case), or None."""
+        key = id_key(part_id)
+        return next((r for r in self.resistors if id_key(r.part_id) == key), None)
 
     def find_transistor(self, part_id: str) -> Transistor | None:
-        return next((t for t in self.transistors if t.part_id == part_id), None)
+        """The transistor line with this part id (any letter case), or None."""
+        key = id_key(part_id)
+        return next((t for t in self.transistors if id_key(t.part_id) == key), None)
 
     @property
     def bias_resistors(self) -> tuple[Resistor, ...]:

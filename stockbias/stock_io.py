@@ -37,7 +37,7 @@ from . import stock_csv
 from .analysis.gp_dc import CARD_DEFAULTS
 from .device_data import CARD_TO_ROW, DeviceCard, card_for_row
 from .errors import InputError, NotationError, Problem, StockFileError
-from .parts import TRANSISTOR_DEFAULTS, Inventory, Resistor, Transistor
+from .parts import TRANSISTOR_DEFAULTS, Inventory, Resistor, Transistor, id_key
 from .stock_csv import describe, field_fault, line_faults, sanitise, visible
 from .stock_ranges import RANGES as _RANGES
 from .units import parse_quantity
@@ -272,7 +272,7 @@ def read_inventory(path: str | Path, *, progress: ReadProgress | None = None) ->
     resistors: list[Resistor] = []
     transistors: list[Transistor] = []
     warnings: list[tuple[int, str, str, str]] = []
-    seen_ids: dict[str, int] = {}
+    seen_ids: dict[str, tuple[int, str]] = {}   # id_key -> (line, the id as written)
     total = len(lines)
     try:
         for count, (record, _) in enumerate(records, start=1):
@@ -282,12 +282,16 @@ def read_inventory(path: str | Path, *, progress: ReadProgress | None = None) ->
             if not row.has_header_width():
                 continue
             raw_id = row.raw("part_id")
-            if raw_id and raw_id in seen_ids:
+            key = id_key(raw_id)
+            if raw_id and key in seen_ids:
+                first_line, first_id = seen_ids[key]
+                same = "" if first_id == raw_id else \
+                    f" as '{visible(first_id)}': ids match in any letter case"
                 problems.append(Problem(record.line, "part_id", visible(raw_id),
-                                        f"duplicate part_id (first on line {seen_ids[raw_id]})"))
+                                        f"duplicate part_id (first on line {first_line}{same})"))
                 continue
             if raw_id:
-                seen_ids[raw_id] = record.line
+                seen_ids[key] = (record.line, raw_id)
             part = row.build()
             if part is None:
                 continue

@@ -403,3 +403,24 @@ def test_a_required_column_missing_for_a_kind_is_one_error_on_the_header(tmp_pat
     found = problems_of(write(tmp_path, text))
     assert found == [(1, "value", "", "required column 'value' for resistor rows is missing "
                       "from the header (30 resistor rows, the first on line 2)")]
+
+
+def test_ids_differing_only_in_letter_case_are_duplicates(tmp_path: Path) -> None:
+    # part ids match in any letter case (`-t qn-gp1` finds QN-GP1), so two lines whose ids
+    # differ only in case could not be told apart
+    text = f"{HEADER}\n{GOOD_T.replace('Q1', 'QN-GP1')}\n{GOOD_T.replace('Q1', 'qn-gp1')}\n"
+    (line, column, bad, message), = problems_of(write(tmp_path, text))
+    assert (line, column, bad) == (3, "part_id", "qn-gp1")
+    assert message == ("duplicate part_id (first on line 2 as 'QN-GP1': ids match in any "
+                       "letter case)")
+
+
+def test_lookups_ignore_letter_case(tmp_path: Path) -> None:
+    inv = read_inventory(write(tmp_path, f"{HEADER}\n{GOOD_R.replace('R1', 'CF-4K7')}\n"
+                                         f"{GOOD_T.replace('Q1', 'QN-GP1')}\n"))
+    assert inv.find_resistor("cf-4k7") is inv.resistors[0]
+    assert inv.find_transistor("Qn-Gp1") is inv.transistors[0]
+    assert inv.part("CF-4k7") is inv.resistors[0]
+    assert inv.find_resistor("qn-gp1") is None and inv.find_transistor("cf-4k7") is None
+    with pytest.raises(KeyError):
+        inv.part("CF-4K8")
