@@ -36,9 +36,11 @@ from .. import __version__
 from ..errors import StockbiasError, StockFileError, printable
 from .failsafe import (
     EXIT_BAD_INPUT,
+    EXIT_DONE,
     EXIT_INTERNAL,
     EXIT_INTERRUPTED,
     interrupt_handled,
+    output_closed,
     watch_interrupts,
     write_crash_report,
 )
@@ -50,8 +52,16 @@ def _flatten(message: str) -> str:
 
 def _interrupted() -> None:
     interrupt_handled.set()
-    typer.echo("stockbias: interrupted", err=True)
+    _say("stockbias: interrupted")
     sys.exit(EXIT_INTERRUPTED)
+
+
+def _say(line: str) -> None:
+    """One line on stderr; a closed stderr has nobody to tell, and the exit code stands."""
+    try:
+        typer.echo(line, err=True)
+    except BrokenPipeError:
+        pass
 
 
 class _Command(typer.core.TyperCommand):
@@ -98,12 +108,24 @@ class _Group(TyperGroup):
 class _OneLineErrors(_Group):
     """A command group whose errors are always one line and an exit code."""
 
+    def make_context(self, *args: Any, **kwargs: Any) -> Any:
+        try:  # `stockbias --help | head -1`: the help is written while the options are read
+            return super().make_context(*args, **kwargs)
+        except BrokenPipeError:
+            output_closed()
+            raise typer.Exit(EXIT_DONE) from None
+
     def invoke(self, ctx: Any) -> Any:
         try:
             return super().invoke(ctx)
         except KeyboardInterrupt:
             # typer would turn it into a silent exit 130; say what happened
             raise typer.Abort() from None
+        except BrokenPipeError:
+            # the reader of stdout went away (`... | head -1`): end quietly, exit 0
+            # (typer would exit 1 here)
+            output_closed()
+            raise typer.Exit(EXIT_DONE) from None
 
     def main(self, args: Sequence[str] | None = None, prog_name: str | None = None,
              complete_var: str | None = None, standalone_mode: bool = True,
@@ -114,31 +136,35 @@ class _OneLineErrors(_Group):
                               standalone_mode=False, windows_expand_args=windows_expand_args,
                               **extra)
         except NoArgsIsHelpError as exc:  # the help, on stdout; no command is a usage error
-            typer.echo(exc.format_message())
+            try:
+                typer.echo(exc.format_message())
+            except BrokenPipeError:
+                output_closed()
             sys.exit(EXIT_BAD_INPUT)
         except UsageError as exc:
             where = f" ({exc.ctx.command_path})" if exc.ctx is not None else ""
-            typer.echo(f"stockbias: usage error{where}: {_flatten(exc.format_message())}",
-                       err=True)
+            _say(f"stockbias: usage error{where}: {_flatten(exc.format_message())}")
             sys.exit(EXIT_BAD_INPUT)
         except StockFileError as exc:
             for line in exc.lines():
-                typer.echo(line, err=True)
+                _say(line)
             sys.exit(exc.exit_code)
         except StockbiasError as exc:
-            typer.echo(_with_command(exc, self, argv), err=True)
+            _say(_with_command(exc, self, argv))
             sys.exit(exc.exit_code)
         except ClickException as exc:  # a file typer could not open, say: bad input
-            typer.echo(f"stockbias: {_flatten(exc.format_message())}", err=True)
+            _say(f"stockbias: {_flatten(exc.format_message())}")
             sys.exit(EXIT_BAD_INPUT)
         except (typer.Abort, KeyboardInterrupt):
             _interrupted()
+        except BrokenPipeError:  # stdout closed outside a command (a usage error's help)
+            output_closed()
+            sys.exit(EXIT_DONE)
         except OSError as exc:
             if exc.filename is None:
                 _internal_error(exc, argv)
             # a file the user named cannot be read or written: their input, not our bug
-            typer.echo(printable(f"{exc.filename}: {exc.strerror or _flatten(str(exc))}"),
-                       err=True)
+            _say(printable(f"{exc.filename}: {exc.strerror or _flatten(str(exc))}"))
             sys.exit(EXIT_BAD_INPUT)
         except Exception as exc:
             _internal_error(exc, argv)
@@ -171,9 +197,8 @@ def _internal_error(exc: BaseException, argv: list[str]) -> None:
     path = write_crash_report(exc, ["stockbias", *argv])
     where = (f"a full report was written to {path}" if path
              else "no report could be written (the temporary folder is not writable)")
-    typer.echo(f"stockbias: internal error: {type(exc).__name__}: "
-               f"{_flatten(str(exc))[:300]}; {where}; please attach it to a bug report",
-               err=True)
+    _say(f"stockbias: internal error: {type(exc).__name__}: "
+         f"{_flatten(str(exc))[:300]}; {where}; please attach it to a bug report")
     sys.exit(EXIT_INTERNAL)
 
 

@@ -29,6 +29,7 @@ __all__ = [
     "EXIT_NOT_MET",
     "INTERRUPT_GRACE_S",
     "interrupt_handled",
+    "output_closed",
     "watch_interrupts",
     "write_crash_report",
 ]
@@ -125,3 +126,30 @@ def watch_interrupts() -> None:
                     os._exit(EXIT_INTERRUPTED)
 
     threading.Thread(target=watch, name="stockbias-interrupt-watch", daemon=True).start()
+
+
+def output_closed() -> None:
+    """The reader of stdout went away (``stockbias stock check FILE | head -1``).
+
+    Nobody is left to read the rest, so it is not an error: whatever is still
+    buffered for stdout goes to the null device, so that the interpreter's last
+    flush is quiet too, and the command ends with exit 0 (the caller exits).
+    """
+    try:
+        sys.stdout.flush()
+    except (OSError, ValueError):
+        pass
+    try:
+        fd = sys.stdout.fileno()
+    except (AttributeError, OSError, ValueError):  # not a real file (a test runner's)
+        return
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+    except OSError:  # pragma: no cover - no null device
+        return
+    try:
+        os.dup2(devnull, fd)
+    except OSError:  # pragma: no cover
+        pass
+    finally:
+        os.close(devnull)
