@@ -118,7 +118,7 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
     """(free role, every variant of the network with core roles ``core``), best key first.
 
     Every candidate of the free role is screened with the same exact-at-a-vertex bounds the
-    search uses (:func:`.prepass.free_role_bounds`, constant VBE only) and then checked at
+    search uses (:func:`.prepass.free_role_bounds`, either model) and then checked at
     every vertex with :func:`.prepass.vertex_check`; those that pass and fit the stock
     (each line's uses × build quantity ≤ its quantity) are the variants.
     """
@@ -127,14 +127,11 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
         return None, []
     fc = cands[free]
     idx1 = {r: np.array([i], dtype=np.int64) for r, i in core.items()}
-    if job.search.model == "constant_vbe":
-        h, low_need, ic_top = free_role_bounds(job, stage, network, transistor, cands, idx1)
-        j0, j1 = free_role_range(fc, h, low_need)
-        fj = np.arange(int(j0[0]), int(max(j1[0], j0[0])), dtype=np.int64)
-        fj = fj[free_role_keep(job, stage, fc, np.zeros(fj.size, dtype=np.int64), fj, h,
-                               low_need, ic_top)]
-    else:
-        fj = np.flatnonzero(fc.present).astype(np.int64)
+    h, low_need, ic_top = free_role_bounds(job, stage, network, transistor, cands, idx1)
+    j0, j1 = free_role_range(fc, h, low_need)
+    fj = np.arange(int(j0[0]), int(max(j1[0], j0[0])), dtype=np.int64)
+    fj = fj[free_role_keep(job, stage, fc, np.zeros(fj.size, dtype=np.int64), fj, h,
+                           low_need, ic_top)]
     if fj.size == 0:
         return free, []
     arr = {r: (cands[r], np.full(fj.size, i, dtype=np.int64)) for r, i in core.items()}

@@ -180,12 +180,8 @@ class _Search(RowScan):
         bom = _count_distinct(lines) + 1
         hi_x = _range(tabs["low_max"], i0, i1, np.maximum, 0.0)
         lo_x = _range(tabs["high_min"], i0, i1, np.minimum, np.inf)
-        ic_hi = np.full(sel.size, -np.inf)
-        for n_, d0 in rows.hi_terms:
-            ic_hi = np.maximum(ic_hi, rows.alpha_hi * n_[sel] / (d0[sel] + hi_x) + rows.icbo_hi)
-        ic_lo = np.full(sel.size, np.inf)
-        for n_, d0 in rows.lo_terms:
-            ic_lo = np.minimum(ic_lo, rows.alpha_lo * n_[sel] / (d0[sel] + lo_x) + rows.icbo_lo)
+        ic_hi = rows.ic_hi_at(sel, hi_x)
+        ic_lo = rows.ic_lo_at(sel, lo_x)
         mppm = margin_ppm(ic_lo, ic_hi, t.ic_min, t.ic_max, t.ic)
         return sel, objective_key(self.objectives, cost, parts, distinct, bom, mppm)
 
@@ -237,7 +233,7 @@ class _Search(RowScan):
         self.stats["cores"] += int(ic_hi.size)
         if ic_hi.size == 0:
             return
-        if b.network == "divider" and not b.exact:
+        if b.network == "divider" and not b.exact and self.job.search.model == "constant_vbe":
             ok = self._divider_power_ok(b, idx)
             idx = {r: v[ok] for r, v in idx.items()}
             ic_hi, ic_lo = ic_hi[ok], ic_lo[ok]

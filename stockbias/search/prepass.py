@@ -38,6 +38,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -56,6 +57,9 @@ from ..job import Job, Stage
 from ..parts import Transistor
 from ..topologies import get_network
 from .candidates import RoleCandidates
+
+if TYPE_CHECKING:
+    from .exp_cut import ExpRows
 from .purpose_bounds import (
     dead_rows,
     gain_max_conductance,
@@ -229,6 +233,7 @@ class Rows:
     alpha_lo: float
     icbo_hi: float
     icbo_lo: float
+    exp: ExpRows | None = None      # the exponential model's loop terms (else closed form)
 
     @property
     def size(self) -> int:
@@ -240,7 +245,28 @@ class Rows:
                     self.b_thr[sel], self.i0[sel], self.i1[sel],
                     [(n_[sel], d0[sel]) for n_, d0 in self.hi_terms],
                     [(n_[sel], d0[sel]) for n_, d0 in self.lo_terms], self.alpha_hi,
-                    self.alpha_lo, self.icbo_hi, self.icbo_lo)
+                    self.alpha_lo, self.icbo_hi, self.icbo_lo,
+                    None if self.exp is None else self.exp.take(sel))
+
+    def ic_hi_at(self, row: np.ndarray, x: np.ndarray) -> np.ndarray:
+        """IC at the IC-max vertex for rows ``row`` with the interval role at ``x`` (ohm):
+        at most the worst-case maximum of any design of that row that passes, A."""
+        if self.exp is not None:
+            return self.exp.ic_hi(row, x)
+        ic = np.full(np.shape(x), -np.inf)
+        for n_, d0 in self.hi_terms:
+            ic = np.maximum(ic, self.alpha_hi * n_[row] / (d0[row] + x) + self.icbo_hi)
+        return ic
+
+    def ic_lo_at(self, row: np.ndarray, x: np.ndarray) -> np.ndarray:
+        """IC at the IC-min vertex (see :meth:`ic_hi_at`): at least the worst-case minimum
+        of any design of that row that passes, A."""
+        if self.exp is not None:
+            return self.exp.ic_lo(row, x)
+        ic = np.full(np.shape(x), np.inf)
+        for n_, d0 in self.lo_terms:
+            ic = np.minimum(ic, self.alpha_lo * n_[row] / (d0[row] + x) + self.icbo_lo)
+        return ic
 
 
 def row_slices(network: str, cands: dict[str, RoleCandidates], budget: int = ROW_BUDGET
@@ -287,24 +313,18 @@ def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
     m = grid[plan.enumerated[0]].size
     alpha_hi = cn.beta_hi / (cn.beta_hi + 1)
     alpha_lo = cn.beta_lo / (cn.beta_lo + 1)
-    ie_max = (t.ic_max - cn.icbo_hi) / alpha_hi          # largest IE allowed at IC-max vertex
-    ie_min = (t.ic_min - cn.icbo_lo) / alpha_lo          # smallest IE needed at IC-min vertex
-    a_thr = np.full(m, -np.inf)
-    hi_terms = []
-    for s in ends_up:
-        n_, d0 = ie_terms(network, s, cn.vcc_hi, cn.vee_hi, cn.beta_hi, cn.vbe_hi, cn.icbo_hi)
-        hi_terms.append((n_, d0))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            thr = np.where(n_ > 0, n_ / ie_max - d0, np.inf) if ie_max > 0 else np.full(m, np.inf)
-        a_thr = np.maximum(a_thr, thr)
-    b_thr = np.full(m, np.inf)
-    lo_terms = []
-    for s in ends_lo:
-        n_, d0 = ie_terms(network, s, cn.vcc_lo, cn.vee_lo, cn.beta_lo, cn.vbe_lo, cn.icbo_lo)
-        lo_terms.append((n_, d0))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            thr = np.where(n_ > 0, n_ / ie_min - d0 if ie_min > 0 else np.inf, -np.inf)
-        b_thr = np.minimum(b_thr, thr)
+    hi_terms: list[tuple[np.ndarray, np.ndarray]] = []
+    lo_terms: list[tuple[np.ndarray, np.ndarray]] = []
+    exp = None
+    beta_scale = 1.0
+    if job.search.model == "exponential":
+        from .exp_cut import exp_thresholds, ratio_beta_scale
+
+        a_thr, b_thr, exp = exp_thresholds(job, stage, network, q, ends_up, ends_lo, m)
+        beta_scale = ratio_beta_scale(job, stage, q, network)
+    else:
+        a_thr, b_thr = _closed_form_thresholds(t, cn, network, ends_up, ends_lo, m, hi_terms,
+                                               lo_terms)
     xc = cands[plan.interval]
     present = xc.value > 0
     f_lo = float(np.max(xc.low[present] / xc.value[present])) if present.any() else 1.0
@@ -317,10 +337,35 @@ def row_cuts(job: Job, stage: Stage, network: str, q: Transistor,
     # rows a purpose limit rules out at some vertex (rin, divider ratio, supply): empty cut
     dead = dead_rows(job, stage, network, q,
                      {r: cands[r].low[grid[r]] for r in plan.enumerated},
-                     {r: cands[r].high[grid[r]] for r in plan.enumerated})
+                     {r: cands[r].high[grid[r]] for r in plan.enumerated}, beta_scale)
     i1 = np.where(dead, i0, np.maximum(i1, i0))
     return Rows(grid, a_thr, b_thr, i0, i1, hi_terms, lo_terms, alpha_hi,
-                alpha_lo, cn.icbo_hi, cn.icbo_lo)
+                alpha_lo, cn.icbo_hi, cn.icbo_lo, exp)
+
+
+def _closed_form_thresholds(t, cn: Corners, network: str, ends_up, ends_lo, m: int,
+                            hi_terms: list, lo_terms: list) -> tuple[np.ndarray, np.ndarray]:
+    """Constant VBE: (A, B) per row from IE = N/(D0 + X) at the two IC-extreme vertices;
+    the (N, D0) of each setting are appended to ``hi_terms``/``lo_terms``."""
+    alpha_hi = cn.beta_hi / (cn.beta_hi + 1)
+    alpha_lo = cn.beta_lo / (cn.beta_lo + 1)
+    ie_max = (t.ic_max - cn.icbo_hi) / alpha_hi          # largest IE allowed at IC-max vertex
+    ie_min = (t.ic_min - cn.icbo_lo) / alpha_lo          # smallest IE needed at IC-min vertex
+    a_thr = np.full(m, -np.inf)
+    for s in ends_up:
+        n_, d0 = ie_terms(network, s, cn.vcc_hi, cn.vee_hi, cn.beta_hi, cn.vbe_hi, cn.icbo_hi)
+        hi_terms.append((n_, d0))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            thr = np.where(n_ > 0, n_ / ie_max - d0, np.inf) if ie_max > 0 else np.full(m, np.inf)
+        a_thr = np.maximum(a_thr, thr)
+    b_thr = np.full(m, np.inf)
+    for s in ends_lo:
+        n_, d0 = ie_terms(network, s, cn.vcc_lo, cn.vee_lo, cn.beta_lo, cn.vbe_lo, cn.icbo_lo)
+        lo_terms.append((n_, d0))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            thr = np.where(n_ > 0, n_ / ie_min - d0 if ie_min > 0 else np.inf, -np.inf)
+        b_thr = np.minimum(b_thr, thr)
+    return a_thr, b_thr
 
 
 def materialise(network: str, q: Transistor, cands: dict[str, RoleCandidates], rows: Rows,
@@ -347,12 +392,8 @@ def materialise(network: str, q: Transistor, cands: dict[str, RoleCandidates], r
     if x_attr is not None:
         keep &= x_attr[xi] <= x_limit[rloc]
     row, xi, x_lo, x_hi = row[keep], xi[keep], x_lo[keep], x_hi[keep]
-    ic_hi = np.full(row.size, -np.inf)
-    for n_, d0 in rows.hi_terms:
-        ic_hi = np.maximum(ic_hi, rows.alpha_hi * n_[row] / (d0[row] + x_lo) + rows.icbo_hi)
-    ic_lo = np.full(row.size, np.inf)
-    for n_, d0 in rows.lo_terms:
-        ic_lo = np.minimum(ic_lo, rows.alpha_lo * n_[row] / (d0[row] + x_hi) + rows.icbo_lo)
+    ic_hi = rows.ic_hi_at(row, x_lo)
+    ic_lo = rows.ic_lo_at(row, x_hi)
     ok = ic_hi <= q.ic_max * (1 + _REL)                   # IC rating at the IC-max vertex
     idx = {r: rows.grid[r][row[ok]] for r in plan.enumerated}
     idx[plan.interval] = xi[ok]
@@ -383,6 +424,10 @@ def free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor,
     Also returns IC at the IC-max vertex with the interval role at its low end (A), for the
     RC dissipation check.
     """
+    if job.search.model == "exponential":
+        from .exp_cut import exp_free_role_bounds
+
+        return exp_free_role_bounds(job, stage, network, q, cands, idx)
     plan = PLANS[network]
     cn = corners(job, q, network)
     t = stage.target

@@ -39,6 +39,8 @@ Gain (free role RC)
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from ..analysis import device
@@ -59,10 +61,13 @@ def _beta_min(job: Job, q: Transistor) -> float:
 
 
 def dead_rows(job: Job, stage: Stage, network: str, q: Transistor,
-              low: dict[str, np.ndarray], high: dict[str, np.ndarray]) -> np.ndarray:
+              low: dict[str, np.ndarray], high: dict[str, np.ndarray],
+              beta_scale: float = 1.0) -> np.ndarray:
     """Rows of the enumerated roles that break a purpose limit at some vertex (bool).
 
     ``low``/``high``: role → band ends of the enumerated roles per row (ohm, 0 = absent).
+    ``beta_scale``: the largest IC/IB at that vertex as a multiple of β (1 for the
+    constant-VBE model; see :func:`.exp_cut.ratio_beta_scale`; inf: no ratio condition).
     See the module notes for the vertex and the proof of each condition.
     """
     t, lim = stage.target, stage.limits
@@ -82,9 +87,10 @@ def dead_rows(job: Job, stage: Stage, network: str, q: Transistor,
             dead |= r_bias < t.rin_min * (1 - _REL)
         if network != "divider":
             return dead
-        if t.divider_ratio_min and t.ic_min > 0:
+        if t.divider_ratio_min and t.ic_min > 0 and math.isfinite(beta_scale):
             i2_max = vcc_lo / (high["R1"] + high["R2"])
-            dead |= i2_max < t.divider_ratio_min * t.ic_min / _beta_min(job, q) * (1 - _REL)
+            dead |= i2_max < (t.divider_ratio_min * t.ic_min
+                                / (_beta_min(job, q) * beta_scale) * (1 - _REL))
         if t.ic_min > 0:
             i_sup = vcc_hi / (low["R1"] + low["R2"]) + t.ic_min
             if lim.supply_current_max is not None:

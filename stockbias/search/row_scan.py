@@ -24,14 +24,13 @@ import numpy as np
 from ..parts import Transistor
 from ..topologies import get_network
 from .candidates import RoleCandidates
-from .prepass import PLANS, Rows, cross_product_check, materialise, row_cuts, row_slices
+from .prepass import PLANS, Rows, materialise, row_cuts, row_slices
 from .ranking import BIG as _BIG
 from .ranking import composite as _composite
 from .ranking import lex_le as _lex_le
 
-__all__ = ["EXPONENTIAL_MAX_DESIGNS", "GROUP_FACTOR", "PAIR_ROW_LIMIT", "Block", "RowScan"]
+__all__ = ["GROUP_FACTOR", "PAIR_ROW_LIMIT", "Block", "RowScan"]
 
-EXPONENTIAL_MAX_DESIGNS = 300_000
 #: A group (rows searched best-first together) holds at most this many times the row budget.
 GROUP_FACTOR = 4
 #: With pairs on, the enumerated roles take pairs only while rows × transistors stay below this.
@@ -102,7 +101,7 @@ class RowScan(ABC):
         net = get_network(net_name)
         plan = PLANS[net_name]
         cands = {r.name: self.shelf.candidates(r.optional, self.pairs) for r in net.roles}
-        if self.pairs and self.job.search.model == "constant_vbe":
+        if self.pairs:
             rows = int(np.prod([len(cands[r]) for r in plan.enumerated], dtype=np.int64))
             if rows * max(len(self.transistors), 1) > PAIR_ROW_LIMIT:
                 # too many rows to cross: pairs only where a role is cut per core
@@ -116,17 +115,12 @@ class RowScan(ABC):
         transistor index, transistor), network by network, range by range (each at most
         ``row_budget`` rows), transistor by transistor."""
         nets = [(n, self.network_cands(n)) for n in self.networks]
-        per = [1 if self.job.search.model == "exponential"
-               else len(row_slices(n, c, self.row_budget)) for n, c in nets]
+        per = [len(row_slices(n, c, self.row_budget)) for n, c in nets]
         total = max(1, sum(per) * len(self.transistors))
         for net_name, cands in nets:
-            if self.job.search.model == "exponential":
-                self.coverage.start(net_name, "", [0.0])
-                spans = [(0, 1)]
-            else:
-                first = PLANS[net_name].enumerated[0]
-                self.coverage.start(net_name, first, cands[first].value.tolist())
-                spans = row_slices(net_name, cands, self.row_budget)
+            first = PLANS[net_name].enumerated[0]
+            self.coverage.start(net_name, first, cands[first].value.tolist())
+            spans = row_slices(net_name, cands, self.row_budget)
             for span in spans:
                 for qi, q in enumerate(self.transistors):
                     yield net_name, cands, span, qi, q
@@ -138,13 +132,6 @@ class RowScan(ABC):
         (None when there are none).  Rows with an empty cut or a key above κ cannot lead
         to a design ranked in the top K (κ only falls), so they are not kept."""
         self.stats["row_units"] += 1
-        if self.job.search.model == "exponential":
-            b = self._exponential_block(net_name, qi, q, cands)
-            sel, key = self.row_bounds(b)
-            keep = _lex_le(key, kappa)
-            b.idx = {r: v[keep] for r, v in b.idx.items()}
-            b.ic_hi, b.ic_lo, b.lb = b.ic_hi[keep], b.ic_lo[keep], key[keep]
-            return b if b.n_rows else None
         plan = PLANS[net_name]
         rows = row_cuts(self.job, self.stage, net_name, q, cands, self._cache, span)
         self.stats["rows"] = self.stats.get("rows", 0) + rows.size
@@ -157,17 +144,6 @@ class RowScan(ABC):
             return None
         b.rows, b.lb = rows.take(sel[keep]), key[keep]
         return b
-
-    def _exponential_block(self, net_name: str, qi: int, q: Transistor,
-                           cands: dict[str, RoleCandidates]) -> Block:
-        """Exponential model: the full cross product, every vertex (no closed-form cut)."""
-        idx, chk, total = cross_product_check(self.job, self.stage, net_name, q, cands,
-                                              EXPONENTIAL_MAX_DESIGNS,
-                                              f"{net_name} with this shelf")
-        self.stats["designs_vertex_checked"] += total
-        self.stats["cores"] += int(chk["ok"].size)
-        return Block(net_name, qi, q, cands, tuple(cands), None, idx=idx, ic_hi=chk["ic_max"],
-                      ic_lo=chk["ic_min"], exact=True)
 
     # --- the whole search ------------------------------------------------------------
     def run(self) -> tuple[str, dict[str, float]]:
