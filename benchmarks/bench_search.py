@@ -19,8 +19,14 @@ from __future__ import annotations
 
 import argparse
 import itertools
+import json
+import os
+import subprocess
+import sys
+import tempfile
 import time
 import warnings
+from pathlib import Path
 
 import numpy as np
 
@@ -121,11 +127,98 @@ def naive(job, inv: Inventory, budget_s: float) -> tuple[float, bool]:
     return time.perf_counter() - t0, True
 
 
+SAMPLES = Path(__file__).resolve().parent.parent / "inventory_samples"
+
+
+def _shelf_csv(inv: Inventory, path: Path) -> None:
+    """A generated shelf as a stock file (the columns the reader takes)."""
+    cols = ["kind", "part_id", "value", "tolerance_pct", "power_w", "tempco_ppm", "qty",
+            "unit_cost", "polarity", "hfe_min", "hfe_max", "vceo_max", "ic_max", "pd_max_w",
+            "vbe_min", "vbe_max"]
+    rows = [",".join(cols)]
+    for r in inv.resistors:
+        rows.append(f"resistor,{r.part_id},{r.value_ohm!r},{r.tolerance_pct},{r.power_w},"
+                    f"{r.tempco_ppm or 0},{r.qty},{r.unit_cost},,,,,,,,")
+    for q in inv.transistors:
+        rows.append(f"transistor,{q.part_id},,,,,{q.qty},{q.unit_cost},{q.polarity},"
+                    f"{q.hfe_min},{q.hfe_max},{q.vceo_max},{q.ic_max},{q.pd_max_w},"
+                    f"{q.vbe_min},{q.vbe_max}")
+    path.write_text("\n".join(rows) + "\n")
+
+
+def _with_model(job_text: str, model: str) -> str:
+    """The job text with ``[search] model`` set (the key replaced or added)."""
+    out, in_search, done = [], False, False
+    for line in job_text.splitlines():
+        if line.strip().startswith("[") and in_search and not done:
+            out.append(f'model = "{model}"')
+            done = True
+        if line.strip() == "[search]":
+            in_search = True
+        if in_search and line.strip().startswith("model"):
+            continue
+        out.append(line)
+    if not done:
+        out += ([] if in_search else ["[search]"]) + [f'model = "{model}"']
+    return "\n".join(out) + "\n"
+
+
+def _fresh(job: Path, stock: Path) -> tuple[float, float, str, int]:
+    """`stockbias design JOB --inventory STOCK --json` in a fresh process:
+    (wall clock s, solve s, status, designs checked at every vertex)."""
+    cmd = [sys.executable, "-m", "stockbias", "design", str(job), "--inventory", str(stock),
+           "--json", "--time-limit", "300"]
+    t0 = time.perf_counter()
+    p = subprocess.run(cmd, capture_output=True, text=True, env=os.environ.copy())
+    wall = time.perf_counter() - t0
+    out = json.loads(p.stdout)
+    return wall, out["solve_seconds"], out["status"], out["stats"].get("designs_vertex_checked",
+                                                                        0)
+
+
+def exponential_rows() -> None:
+    """Exponential vs constant-VBE model on every bundled shelf with the line-driver job
+    and on the generated E96 shelf with 20 transistors (this script's job), each in a fresh
+    process, both models in the same run; ratios exponential / constant VBE."""
+    cases = []
+    line_driver = (SAMPLES / "line_driver_job.toml").read_text()
+    for csv in sorted(SAMPLES.glob("*.csv")):
+        if csv.name == "broken_shelf.csv":
+            continue                    # every line is a deliberate mistake: no design
+        cases.append((csv.name, line_driver, csv))
+    with tempfile.TemporaryDirectory() as tmp:
+        e96 = Path(tmp) / "e96_20.csv"
+        _shelf_csv(shelf("E96", 20), e96)
+        cases.append(("generated E96, 20 transistors (bench job)", JOB.format(pairs="false"),
+                      e96))
+        print("\n| shelf | job | model | status | fresh-process wall (s) | solve (s) | "
+              "designs checked at every vertex | wall ratio exp/cvbe | solve ratio exp/cvbe |")
+        print("|---|---|---|---|---|---|---|---|---|")
+        for name, text, stock in cases:
+            res = {}
+            for model in ("constant_vbe", "exponential"):
+                job = Path(tmp) / f"job_{model}.toml"
+                job.write_text(_with_model(text, model))
+                res[model] = _fresh(job, stock)
+            c, e = res["constant_vbe"], res["exponential"]
+            jname = "line_driver_job.toml" if text is line_driver else "bench JOB"
+            for model, r in res.items():
+                ratio = (f"{e[0] / c[0]:.2f}", f"{e[1] / c[1]:.2f}") if model == "exponential" \
+                    else ("", "")
+                print(f"| {name} | {jname} | {model} | {r[2]} | {r[0]:.2f} | {r[1]:.2f} | "
+                      f"{r[3]} | {ratio[0]} | {ratio[1]} |", flush=True)
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--quick", action="store_true")
     ap.add_argument("--baseline-only", action="store_true")
+    ap.add_argument("--exponential", action="store_true",
+                    help="only the exponential vs constant-VBE rows (fresh processes)")
     args = ap.parse_args()
+    if args.exponential:
+        exponential_rows()
+        return
     rows = []
     cases = [("E12", 1, False), ("E12", 20, False), ("E24", 20, False), ("E48", 20, False),
              ("E96", 1, False), ("E96", 5, False), ("E96", 20, False),

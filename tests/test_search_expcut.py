@@ -223,3 +223,34 @@ def test_exponential_optimum_matches_exhaustive(case):
         assert all(d.check.ok and d.check.model == "exponential" for d in result.designs)
     else:
         assert result.status == "infeasible"
+
+
+@pytest.mark.spice
+@pytest.mark.parametrize("seed,topology,n_lines,window,temps",
+                         [(1, "divider", 6, 25, (25, 25)), (9, "dual_supply", 8, 20, (25, 25))])
+def test_chosen_exponential_design_matches_ngspice(seed, topology, n_lines, window, temps):
+    """The best exponential-model design's nominal point (25 °C, hFE geometric mean, VBE
+    middle) against ngspice with the design's values and the stock row's model card.
+    Tolerances of tests/test_spice_match.py, measured against ngspice-39: IC within
+    3e-5 relative, node voltages within 0.2 mV."""
+    import shutil
+
+    from stockbias.analysis.spice import spice_operating_point
+    from stockbias.render.netlist import model_card
+
+    if shutil.which("ngspice") is None:
+        pytest.skip("ngspice is not installed")
+    inv = _shelf(seed, n_lines, 2, 5)
+    job = _exp(_job(seed, topology, window, 5, OBJECTIVE_SETS[0], temps))
+    result = design(job, inv, top=2)
+    assert result.designs
+    for d in result.designs:
+        card, _notes = model_card(d.transistor)
+        values = {r: p.value for r, p in d.check.parts.items()}
+        # the rails as check takes them (write_netlist maps them to the network's rails)
+        sp = spice_operating_point(d.topology, values, d.transistor.polarity,
+                                   job.supply.volts, job.supply.negative_volts, card, 25.0)
+        nom = d.check.nominal
+        assert abs(float(nom["ic"]) - sp["ic"]) <= 3e-5 * abs(sp["ic"]) + 1e-10
+        for node in ("vb", "vc", "ve"):
+            assert abs(float(nom[node]) - sp[node]) <= 2e-4, node

@@ -535,6 +535,8 @@ def solve_constant_vbe(
 def _pnjlim(v_new, v_old, vt, v_crit):
     """SPICE junction-voltage limiting, vectorised (keeps Newton off the exponential wall)."""
     limit = (v_new > v_crit) & (np.abs(v_new - v_old) > 2.0 * vt)
+    if not limit.any():
+        return v_new, limit             # the usual case once Newton is close
     arg = 1.0 + (v_new - v_old) / vt
     from_positive = np.where(
         arg > 0, v_old + vt * np.log(np.where(arg > 0, arg, 1.0)), v_crit
@@ -650,8 +652,16 @@ def solve_exponential(
     p0, p1, p2 = resp.junction(0, 2)
     q0, q1, q2 = resp.junction(0, 1)
 
-    # Start from the constant-VBE point with VBE at 1 mA and β = BF.
+    # Start from the constant-VBE point with VBE at 1 mA and β = BF, then once more with
+    # the VBE of the diode law at that point's current (a fixed-point step: the start is
+    # then within a few millivolts wherever the point is active).
     vbe_start = nf * vt * np.log(1e-3 / is_a)
+    ib0 = (vbe_start - p0 - p2 * (bf + 1.0) * icbo_f) / (p1 + p2 * bf)
+    ic0 = bf * ib0 + (bf + 1.0) * icbo_f
+    with np.errstate(invalid="ignore", divide="ignore"):
+        vbe_2 = nf * vt * np.log(np.maximum(ic0 - icbo_f, 1e-3 * is_a) / is_a)
+    vbe_start = np.where(ic0 - icbo_f > 1e-9, np.clip(vbe_2, vbe_start - 0.2, vbe_start + 0.1),
+                         vbe_start)
     ib0 = (vbe_start - p0 - p2 * (bf + 1.0) * icbo_f) / (p1 + p2 * bf)
     ic0 = bf * ib0 + (bf + 1.0) * icbo_f
     cut0 = (ib0 + ic0) <= 0

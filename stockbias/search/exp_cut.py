@@ -391,7 +391,8 @@ def exp_free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor, ca
                          idx: dict[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """The free role's bounds of :func:`.prepass.free_role_bounds` for the exponential model.
 
-    H: at the IC-max device vertex (hot), both VCC ends and both ends of X, a passing
+    H: at the IC-max device vertex (hot), both VCC ends and X at its low end (where IC,
+    and with it the headroom used and the gain, is largest; any vertex is sound), a passing
     design keeps VCE ≥ w_need, and its IC and VE are at least the pinned ones with VCE =
     w_need (module notes), so RC·IC ≤ VRAIL_C − VE − w_need gives
     RC_high ≤ (VRAIL_C − VE_p − w_need)/IC_p; and |gain| ≤ gain_max there, with IC between
@@ -428,7 +429,7 @@ def exp_free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor, ca
         w = -cn.b if cn.a == 1.0 else 0.0
         for s in settings:
             v_d, r_b, r_x = drive_terms(network, s, cn.vcc, cn.vee)
-            for x in x_ends:
+            for x in x_ends[:1]:
                 ic, ie, ok = pinned_ic(cn, v_d, r_b, x + r_x)
                 ic = np.where(ok & np.isfinite(ic), ic * (1 - _SLACK), 0.0)
                 ie = np.where(ok & np.isfinite(ie), ie * (1 - _SLACK), 0.0)

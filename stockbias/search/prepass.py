@@ -24,6 +24,13 @@ Monotonicity used to pick the vertices (constant VBE, active region; tested in
     voltage, so both of its ends are evaluated.  VCE = VRAIL_C − IC·RC − VE falls with
     RC; its direction in VCC and in X is ambiguous, so both ends are evaluated.
 
+Exponential model
+    The same plan and the same vertices; the thresholds A and B come from the
+    Gummel–Poon state at the window edge with the collector side pinned at what a
+    passing design allows (closed form per row, :mod:`.exp_cut`), and the collector
+    currents at the two vertices from a vectorised bracketed Newton solve.  Every
+    rejection stays exact at a vertex.
+
 Interval of the last role
     For each assignment of the enumerated roles and each transistor, IC ≤ ic_max at
     the IC-max vertex gives X_low ≥ A = N/IE_hi − D0, and IC ≥ ic_min at the IC-min
@@ -588,8 +595,8 @@ def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
 def cross_product_check(job: Job, stage: Stage, network: str, q: Transistor,
                         cands: dict[str, RoleCandidates], limit: int, what: str
                         ) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray], int]:
-    """Every assignment of the roles, checked at every vertex (the exponential model has no
-    closed-form cut): (role → candidate indices of the passing designs, their
+    """Every assignment of the roles, checked at every vertex (the board search's
+    exponential-model path; the single-stage search cuts it, :mod:`.exp_cut`): (role → candidate indices of the passing designs, their
     :func:`vertex_check` arrays, how many were checked).  ``what`` names the search in the
     error when there are more than ``limit`` assignments."""
     from ..errors import InputError

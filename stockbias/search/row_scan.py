@@ -41,9 +41,9 @@ PAIR_ROW_LIMIT = 20_000_000
 class Block:
     """One (network, transistor): candidate tables and the rows of the enumerated roles.
 
-    Constant VBE: ``rows`` holds the interval cuts; cores are made per chunk of rows.
-    Exponential: ``idx``/``ic_hi``/``ic_lo`` hold full designs already checked at every
-    vertex (``exact``), one per row.
+    ``rows`` holds the interval cuts (either model, :func:`.prepass.row_cuts`); cores are
+    made per chunk of rows.  ``exact`` blocks (``idx``/``ic_hi``/``ic_lo``: full designs
+    already checked at every vertex, one per row) are no longer built by the row scan.
     """
 
     network: str
