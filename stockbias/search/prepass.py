@@ -596,8 +596,9 @@ def cross_product_check(job: Job, stage: Stage, network: str, q: Transistor,
                         cands: dict[str, RoleCandidates], limit: int, what: str
                         ) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray], int]:
     """Every assignment of the roles, checked at every vertex (the board search's
-    exponential-model path; the single-stage search cuts it, :mod:`.exp_cut`): (role → candidate indices of the passing designs, their
-    :func:`vertex_check` arrays, how many were checked).  ``what`` names the search in the
+    exponential-model path; the single-stage search cuts it, :mod:`.exp_cut`): (role →
+    candidate indices of the passing designs, their :func:`vertex_check` arrays, how many
+    were checked).  ``what`` names the search in the
     error when there are more than ``limit`` assignments."""
     from ..errors import InputError
 
