@@ -404,7 +404,7 @@ def _exponential_small_signal(spec: StageSpec, point: StagePoint, op: OperatingP
     dic_dvbe = is_a * ef / vtf * early
     dic_dvbc = -is_a * er / vtr * early - (i_f - i_r) * inv_vaf - is_a * er / vtr / br
     g_o = -dic_dvbc
-    with np.errstate(divide="ignore"):
+    with np.errstate(divide="ignore", over="ignore"):   # gₒ subnormal in cut-off: rₒ = inf
         ro = np.asarray(1.0 / g_o, dtype=float)
     return dic_dvbe + dic_dvbc, is_a * ef / vtf / bf, ro
 
