@@ -1,33 +1,41 @@
 """Which design the bench commands act on: a search rank, a saved result, or given values.
 
 ``export``, ``stock reserve`` and the pick list all work on one chosen stage.
-It is named in one of three ways on the command line:
+A board file holds several stages; :func:`pick_stage` narrows it to the one
+``--stage NAME`` names (its own topology, target, limits and fitted parts).
+The stage's design is named in one of four ways on the command line:
 
-* ``--rank N``: run the design search on the job and take the N-th design;
+* ``--rank N``: run the design search on the job (or the stage) and take the
+  N-th design;
 * ``--from RESULT.json``: a result saved by ``design --save`` (or its
-  ``--json`` output), design ``--rank N`` within it (default 1);
-* ``--values ROLE=...,... --transistor ID``: parts given by hand.
+  ``--json`` output), design ``--rank N`` within it (default 1); of a board
+  result, the stage ``--stage`` names;
+* ``--values ROLE=...,... --transistor ID``: parts given by hand;
+* none of these, for a stage whose file gives its transistor and
+  ``[stage.values]``: the parts fitted today (:func:`fitted_selection`).
 
 Each becomes one :class:`Selection` (topology, transistor part id and the
 ``ROLE=`` assignment text that :func:`stockbias.analysis.check.analyze`
 takes; a pair is written ``A+B`` or ``A|B``).  :func:`bench_needs` counts
-what a resolved selection takes from the shelf for a build.
+what a resolved selection takes from the shelf for a build, and
+:func:`board_needs` what every stage of a board takes together.
 """
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import math
 import os
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from .assign import ResolvedResistor, parse_assignments, resolve_resistor
 from .errors import InputError, UnmetError
-from .job import TOPOLOGY_NAMES, Job
+from .job import TOPOLOGY_NAMES, Job, Stage, load_job, stage_key_error
 from .parts import Inventory, Transistor
 
 if TYPE_CHECKING:
@@ -41,14 +49,18 @@ __all__ = [
     "ResultFileError",
     "Selection",
     "bench_needs",
+    "board_needs",
     "check_inputs",
     "choose",
     "failing_summary",
+    "fitted_parts",
+    "fitted_selection",
     "from_design",
     "from_result_file",
     "from_search",
     "from_values",
     "input_record",
+    "pick_stage",
     "resolve_selection",
     "verify_selection",
 ]
@@ -86,6 +98,9 @@ class Selection:
         records nothing; None for a selection that is not from a saved result.
     file : str or None
         The saved result's path (None when not from a file).
+    stage : str or None
+        The board stage whose fitted parts these are (:func:`fitted_selection`):
+        a problem with them names the stage's key in the job file.  None otherwise.
     """
 
     topology: str
@@ -94,6 +109,7 @@ class Selection:
     source: str
     inputs: dict[str, Any] | None = field(default=None, compare=False)
     file: str | None = field(default=None, compare=False)
+    stage: str | None = field(default=None, compare=False)
 
     def job_for(self, job: Job) -> Job:
         """The job with its stage set to this selection's topology."""
@@ -126,6 +142,105 @@ def from_values(job: Job, values: str | list[str], transistor: str | None,
                          "topology; set [search] topology in the job", file=job.path,
                          column="search.topology", text="any")
     return Selection(topology, transistor, assignment, source)
+
+
+def pick_stage(job: Job, name: str | None, doing: str) -> Job:
+    """The one-stage job a command acts on (``--stage NAME``).
+
+    A board's stage keeps its own topology, target, limits, transistor and
+    ``[stage.values]`` and shares the rest of the file.  A job of one stage is
+    returned as it is (``name``, if given, must be that stage's).
+
+    Parameters
+    ----------
+    job : Job
+    name : str or None
+        The ``--stage`` option.
+    doing : str
+        What the command does with the stage, for the message (``"export"``).
+
+    Raises
+    ------
+    InputError
+        A board of several stages without ``name``, or a name that is not one of its
+        stages; the message names the file and the stages there are.
+    """
+    names = ", ".join(s.name for s in job.stages)
+    if name is None:
+        if len(job.stages) > 1:
+            raise InputError(f"the board has {len(job.stages)} stages: name the one to "
+                             f"{doing} with --stage NAME (stages: {names})", file=job.path,
+                             column="--stage")
+        return job
+    found = next((s for s in job.stages if s.name == name), None)
+    if found is None:
+        raise InputError(f"no stage of that name in the file; its stages: {names}",
+                         file=job.path, column="--stage", text=name)
+    return job if len(job.stages) == 1 else replace(job, stages=(found,))
+
+
+def _stage_error(job: Job, stage: str, key: str, message: str,
+                 text: str | None = None) -> InputError:
+    """:func:`stockbias.job.stage_key_error` located in the whole file, also when ``job`` is
+    one stage of a board (:func:`pick_stage`): the file is read again to find the stage."""
+    full = job
+    if len(job.stages) == 1:
+        with contextlib.suppress(InputError, OSError):
+            full = load_job(job.path)
+    return stage_key_error(full, stage, key, message, text)
+
+
+def fitted_selection(job: Job, stage: Stage | None = None) -> Selection:
+    """The parts a board stage is fitted with today: its ``transistor`` and
+    ``[stage.values]`` (``stage`` defaults to the job's only stage)."""
+    st = job.stage if stage is None else stage
+    if st.topology == "any":
+        raise _stage_error(job, st.name, "topology", "the stage's fitted parts need its "
+                              "topology", "any")
+    if not st.values:
+        raise _stage_error(job, st.name, "values", "no fitted parts: give the stage's "
+                              "[stage.values] (or --values ... --transistor ID with --stage)")
+    if st.transistor is None:
+        raise _stage_error(job, st.name, "transistor", "no fitted transistor: give "
+                              "transistor = \"PART_ID\" in the stage (or --transistor ID "
+                              "with --stage)")
+    return Selection(st.topology, st.transistor, dict(st.values),
+                     f"stage '{st.name}' as fitted ([stage.values] of {job.path})",
+                     stage=st.name)
+
+
+def fitted_parts(job: Job, stage: Stage, inventory: Inventory,
+                 tolerance_pct: float | None = None
+                 ) -> tuple[Transistor, dict[str, ResolvedResistor]]:
+    """A board stage's fitted transistor and resolved parts; every problem names the stage's
+    key in the job file (``stage.values.R1``, ``stage.transistor``) and its line.
+
+    ``tolerance_pct`` is taken for values that are not stock parts (default: the job's).
+    """
+    from .analysis.check import check_roles
+
+    sel = fitted_selection(job, stage)
+    q = inventory.find_transistor(sel.transistor_id)
+    if q is None:
+        raise _stage_error(job, stage.name, "transistor", f"transistor {stage.transistor} "
+                              "is not in the stock file", stage.transistor)
+    try:
+        check_roles(stage.topology, stage.values)
+    except InputError as exc:
+        one_role = exc.text and "=" not in exc.text
+        raise _stage_error(job, stage.name, f"values.{exc.text}" if one_role else "values",
+                              exc.message, exc.text) from None
+    tol = job.build.default_tolerance_pct if tolerance_pct is None else tolerance_pct
+    ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
+    parts = {}
+    for role, text in stage.values.items():
+        try:
+            parts[role] = resolve_resistor(role, text, inventory, tol, source="stage.values",
+                                           ambient=ambient)
+        except InputError as exc:
+            raise _stage_error(job, stage.name, f"values.{role}", exc.message,
+                                  text) from None
+    return q, parts
 
 
 def _design_values(design: Mapping[str, Any], where: str, file: str) -> dict[str, str]:
@@ -187,8 +302,9 @@ def from_design(design: Mapping[str, Any], source: str, *, file: str = "<result>
     return Selection(str(topology), tid.strip(), values, source)
 
 
-def from_result_file(path: str | Path, rank: int = 1) -> Selection:
-    """Design ``rank`` of a result saved by ``design --save`` (or its ``--json`` output)."""
+def from_result_file(path: str | Path, rank: int = 1, stage: str | None = None) -> Selection:
+    """Design ``rank`` of a result saved by ``design --save`` (or its ``--json`` output);
+    of a board result, its stage ``stage`` (required there)."""
     path = Path(path)
     file = str(path)
     try:
@@ -225,10 +341,33 @@ def from_result_file(path: str | Path, rank: int = 1) -> Selection:
                                   f"{len(designs)} design(s)", file=file, column="designs",
                                   text=str(rank))
         index = rank - 1
-    sel = from_design(designs[index], f"design rank {rank} of {file}", file=file,
-                      where=f"designs[{index}]")
+    sel = _board_stage_design(designs[index], rank, index, stage, file)
+    if sel is None:
+        sel = from_design(designs[index], f"design rank {rank} of {file}", file=file,
+                          where=f"designs[{index}]")
     inputs = doc.get("inputs")
     return replace(sel, inputs=dict(inputs) if isinstance(inputs, dict) else {}, file=file)
+
+
+def _board_stage_design(design: Any, rank: int, index: int, stage: str | None,
+                        file: str) -> Selection | None:
+    """The stage ``stage`` of a board design (a design with a ``stages`` list); None for a
+    one-stage design."""
+    stages = design.get("stages") if isinstance(design, dict) else None
+    if not isinstance(stages, list):
+        return None
+    names = [s.get("name") for s in stages if isinstance(s, dict)]
+    shown = ", ".join(str(n) for n in names)
+    if stage is None:
+        raise ResultFileError(f"the result is a board design: name the stage with --stage NAME "
+                              f"(stages: {shown})", file=file, column=f"designs[{index}].stages")
+    if stage not in names:
+        raise ResultFileError(f"the board design has no stage of that name; its stages: "
+                              f"{shown}", file=file, column=f"designs[{index}].stages",
+                              text=stage)
+    j = names.index(stage)
+    return from_design(stages[j], f"stage '{stage}' of design rank {rank} of {file}",
+                       file=file, where=f"designs[{index}].stages[{j}]")
 
 
 def input_record(path: str | Path) -> dict[str, object]:
@@ -351,8 +490,13 @@ def from_search(job: Job, inventory: Inventory, rank: int, *,
 
 def choose(job: Job, inventory: Inventory, *, rank: int | None = None,
            from_file: str | Path | None = None, values: list[str] | None = None,
-           transistor: str | None = None) -> Selection:
-    """The command-line rule: exactly one of ``--rank``, ``--from``, ``--values``."""
+           transistor: str | None = None, stage: str | None = None) -> Selection:
+    """The command-line rule: at most one of ``--rank``, ``--from``, ``--values``; with
+    none, the stage's fitted parts when its file gives them.
+
+    ``job`` is the one-stage job (:func:`pick_stage`); ``stage`` the ``--stage`` option,
+    which picks the stage of a board result given with ``--from``.
+    """
     given = [name for name, v in (("--from", from_file), ("--values", values)) if v]
     if len(given) > 1:
         raise InputError("give either --from RESULT.json or --values, not both",
@@ -366,9 +510,11 @@ def choose(job: Job, inventory: Inventory, *, rank: int | None = None,
                              "does not go with --values", column="--rank", text=str(rank))
         return from_values(job, values, transistor)
     if from_file is not None:
-        return from_result_file(from_file, 1 if rank is None else rank)
+        return from_result_file(from_file, 1 if rank is None else rank, stage)
     if rank is not None:
         return from_search(job, inventory, rank)
+    if len(job.stages) == 1 and job.stage.values:
+        return fitted_selection(job)
     raise InputError("say which design: --rank N (search), --from RESULT.json, or "
                      "--values ROLE=...,... --transistor ID", column="--rank")
 
@@ -377,6 +523,10 @@ def resolve_selection(job: Job, selection: Selection, inventory: Inventory,
                       tolerance_pct: float | None = None
                       ) -> tuple[dict[str, ResolvedResistor], Transistor]:
     """The selection's resistors resolved against the stock, and its transistor row."""
+    if selection.stage is not None:  # a stage's fitted parts: problems name its keys
+        st = next(s for s in job.stages if s.name == selection.stage)
+        q, fitted = fitted_parts(job, st, inventory, tolerance_pct)
+        return fitted, q
     network = get_network(selection.topology)
     unknown = sorted(set(selection.values) - set(network.role_names))
     if unknown:
@@ -392,7 +542,8 @@ def resolve_selection(job: Job, selection: Selection, inventory: Inventory,
         raise InputError(f"no transistor with that part id in {inventory.path}; transistors: "
                          f"{ids}", column="--transistor", text=selection.transistor_id)
     tol = job.build.default_tolerance_pct if tolerance_pct is None else tolerance_pct
-    parts = {role: resolve_resistor(role, text, inventory, tol)
+    ambient = (job.environment.ambient_min_c, job.environment.ambient_max_c)
+    parts = {role: resolve_resistor(role, text, inventory, tol, ambient=ambient)
              for role, text in selection.values.items()}
     return parts, t
 
@@ -495,3 +646,28 @@ def bench_needs(parts: Mapping[str, ResolvedResistor], transistor: Transistor,
                         r.location, r.qty))
     return [*out, *off]
 
+
+
+def board_needs(stages: Sequence[tuple[str, Mapping[str, ResolvedResistor], Transistor]],
+                build_quantity: int) -> list[Need]:
+    """Pieces each stock line gives to ``build_quantity`` boards of every stage together.
+
+    ``stages`` holds (stage name, resolved parts, transistor) for each stage.  A line
+    used by several stages is one line with its pieces summed; each role is named
+    ``ROLE@STAGE`` (``Q@input`` for a transistor).  Values not in stock stay lines of
+    their own.
+    """
+    merged: dict[str, Need] = {}
+    off: list[Need] = []
+    for name, parts, transistor in stages:
+        for n in bench_needs(parts, transistor, build_quantity):
+            roles = tuple(f"{role}@{name}" for role in n.roles)
+            if not n.part_id:
+                off.append(replace(n, roles=roles))
+                continue
+            have = merged.get(n.part_id)
+            merged[n.part_id] = replace(n, roles=roles) if have is None else replace(
+                have, roles=(*have.roles, *roles), per_board=have.per_board + n.per_board,
+                quantity=have.quantity + n.quantity)
+    ordered = sorted(merged.values(), key=lambda n: n.kind != "transistor")
+    return [*ordered, *off]

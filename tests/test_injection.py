@@ -241,7 +241,7 @@ def test_cli_export_through_location_stage_name_and_job_path(tmp_path: Path) -> 
                                                                f"name = {name}", 1))
     shelf = _hostile_shelf(tmp_path / "shelf.csv", evil)
     out = tmp_path / "stage.cir"
-    result = runner.invoke(app, ["export", str(board), "-i", str(shelf), "-v",
+    result = runner.invoke(app, ["export", str(board), "-i", str(shelf), "--stage", evil, "-v",
                                  "R1=CF-100K,R2=CF-22K,RE=CF-4K7,RC=CF-10K", "-t", "QN-LB2",
                                  "--netlist", str(out), "--json"])
     assert result.exit_code == 0, result.output
@@ -264,7 +264,7 @@ def test_cli_export_through_location_stage_name_and_job_path(tmp_path: Path) -> 
     plots = dict(run_ngspice_plots(text))
     # ngspice-39 against stockbias's exponential-model nominal point (tests/test_export.py bound)
     assert plots["Operating Point"]["i(v_ic)"][0] == pytest.approx(expected["ic"], rel=IC_RTOL)
-    clean = runner.invoke(app, ["export", str(BOARD), "-i", str(SHELF), "-v",
+    clean = runner.invoke(app, ["export", str(BOARD), "-i", str(SHELF), "--stage", "input", "-v",
                                 "R1=CF-100K,R2=CF-22K,RE=CF-4K7,RC=CF-10K", "-t", "QN-LB2",
                                 "--netlist", "-"])
     assert clean.exit_code == 0, clean.output

@@ -352,8 +352,11 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
         i = int(bad[0])
         tj_ex = None if i < n_vertex else float(all_tj[i])
         example = corner_setting(spec, dict(zip(axes, bits[i % n_vertex], strict=True)), tj_ex)
+    # a corner counts once, whether it leaves the active region at the ambient, self-heated,
+    # or both (the self-heated rows repeat the vertices in order)
+    n_bad = int(np.unique(bad % n_vertex).size) if n_vertex else int(bad.size)
     return WorstCase(axes=axes, bounds=bounds, n_vertices=n_vertex, vertex_eval=ev,
-                     regions_seen=seen_regions, non_active_corners=int(bad.size),
+                     regions_seen=seen_regions, non_active_corners=n_bad,
                      non_active_example=example)
 
 

@@ -10,12 +10,15 @@ from typing import TYPE_CHECKING, Annotated
 
 import typer
 
+from ..errors import InputError
+
 if TYPE_CHECKING:  # the commands load them when they run: --help stays light
     from ..job import Job
     from ..parts import Inventory
 
-JobArg = Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True,
-                                        metavar="JOB_FILE", help="The job (TOML) file.")]
+JobArg = Annotated[Path, typer.Argument(
+    exists=True, dir_okay=False, readable=True, metavar="JOB_FILE",
+    help="The job (TOML) file: one stage, or a board of [[stage]] tables.")]
 BoardArg = Annotated[Path, typer.Argument(
     exists=True, dir_okay=False, readable=True, metavar="BOARD_FILE",
     help="The board (TOML) file: its [[stage]] tables with the parts fitted today.")]
@@ -41,6 +44,26 @@ ClusterOpt = Annotated[str | None, typer.Option(
 #: Below this many boards Monte Carlo runs in the calling process: starting workers would
 #: cost more than it saves (the result does not depend on where it runs).
 PARALLEL_MIN_SAMPLES = 200_000
+#: Most Monte Carlo boards one check may draw, in every command that takes --samples.  Each
+#: board is held in memory at every supply × ambient extreme while it is judged: 10⁶ boards
+#: take about 0.7 GB and a few seconds per check (measured on the line driver); more would
+#: crowd out a shared machine.  Raise it here once the draw streams in bounded memory.
+MAX_SAMPLES = 1_000_000
+
+
+def _samples_within_cap(value: int) -> int:
+    if value > MAX_SAMPLES:
+        raise InputError(f"at most {MAX_SAMPLES:,} Monte Carlo boards per check: every board "
+                         "is held in memory at each supply × ambient extreme (about 0.7 GB "
+                         "and a few seconds per million), so more would exhaust memory and "
+                         "time", column="--samples", text=str(value))
+    return value
+
+
+SamplesOpt = Annotated[int, typer.Option(
+    "--samples", metavar="N", min=0, callback=_samples_within_cap,
+    help=f"Monte Carlo boards per check, 0 (none) to {MAX_SAMPLES:,}; the cap keeps memory "
+    "and time bounded (about 0.7 GB and a few seconds per million boards).")]
 ForceOpt = Annotated[bool, typer.Option(
     "--force", help="Replace output files that exist (a symbolic link is replaced itself, "
     "never the file it points to). Inputs are never written over.")]

@@ -20,12 +20,18 @@ if TYPE_CHECKING:  # loaded by the commands when they run (selection brings in n
 # option can be declared without loading the analysis (a test checks the two agree)
 ACCEPT_CHANGED_OPTION = "--accept-changed-inputs"
 
-__all__ = ["AcceptChangedOpt", "FromOpt", "RankOpt", "TransistorOpt", "ValuesOpt", "export",
-           "select"]
+__all__ = ["AcceptChangedOpt", "BenchStageOpt", "FromOpt", "RankOpt", "TransistorOpt",
+           "ValuesOpt", "export", "select"]
 
 RankOpt = Annotated[int | None, typer.Option(
     "--rank", metavar="N",
     min=1, help="Design N of the search (or of the --from file; default 1).")]
+BenchStageOpt = Annotated[str | None, typer.Option(
+    "--stage", metavar="NAME",
+    help="The stage of a board file (needed when it has several): its own topology, "
+    "target and limits; --from takes this stage of a board result. Without --rank, "
+    "--from or --values: the parts it is fitted with (its transistor and "
+    "[stage.values]).")]
 FromOpt = Annotated[Path | None, typer.Option(
     "--from", exists=True, dir_okay=False, readable=True,
     help="A result saved by design --save (JSON).")]
@@ -42,12 +48,14 @@ AcceptChangedOpt = Annotated[bool, typer.Option(
 
 
 def select(job: Job, inventory: Inventory, rank: int | None, from_file: Path | None,
-           values: list[str] | None, transistor: str | None) -> Selection:
-    """The design the command acts on (exactly one of --rank, --from, --values)."""
+           values: list[str] | None, transistor: str | None,
+           stage: str | None = None) -> Selection:
+    """The design the command acts on (at most one of --rank, --from, --values; none: the
+    stage's fitted parts).  ``job`` is the one stage (``--stage``) the command acts on."""
     from ..selection import choose
 
     return choose(job, inventory, rank=rank, from_file=from_file, values=values,
-                  transistor=transistor)
+                  transistor=transistor, stage=stage)
 
 
 def export(
@@ -62,6 +70,7 @@ def export(
     from_file: FromOpt = None,
     values: ValuesOpt = None,
     transistor: TransistorOpt = None,
+    stage: BenchStageOpt = None,
     json_out: JsonOpt = False,
     accept_changed: AcceptChangedOpt = False,
     force: ForceOpt = False,
@@ -76,6 +85,7 @@ def export(
         bench_needs,
         check_inputs,
         failing_summary,
+        pick_stage,
         resolve_selection,
         verify_selection,
     )
@@ -93,7 +103,8 @@ def export(
     with outs:
         job, inv = load(job_file, inventory)
         assert inv is not None
-        sel = select(job, inv, rank, from_file, values, transistor)
+        job = pick_stage(job, stage, "export")
+        sel = select(job, inv, rank, from_file, values, transistor, stage)
         changed = check_inputs(sel, job_file, inventory, accept_changed=accept_changed)
         if changed:
             verdict = verify_selection(job, sel, inv)
@@ -133,7 +144,8 @@ def export(
             sweep = "" if exported.sweep_c is None else (
                 f" and a TEMP sweep {exported.sweep_c[0]:g}…{exported.sweep_c[1]:g} °C")
             where = "stdout" if str(netlist) == "-" else str(netlist)
-            console.print(f"Netlist written to {where}: {sel.topology}, {t.polarity} "
+            which = "" if stage is None else f"stage '{job.stage.name}', "
+            console.print(f"Netlist written to {where}: {which}{sel.topology}, {t.polarity} "
                           f"{t.part_id}, .op at {exported.temperature_c:g} °C{sweep}; "
                           f"expected IC {format_quantity(exported.expected['ic'], 'A')}, "
                           f"VCE {format_quantity(exported.expected['vce'], 'V')} "

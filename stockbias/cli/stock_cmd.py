@@ -2,14 +2,19 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
 from ..errors import InputError, StockFileError, UnmetError
 from .curves_cmd import curves as _curves
 from .export_cmd import AcceptChangedOpt, FromOpt, RankOpt, TransistorOpt, ValuesOpt
+
+if TYPE_CHECKING:  # loaded by the command when it runs
+    from ..job import Job
+    from ..selection import Selection
 
 app = typer.Typer(help="Check and look after a stock file.", no_args_is_help=True)
 app.command("curves")(_curves)
@@ -62,11 +67,17 @@ def reserve(
                                          writable=True, metavar="STOCK_FILE",
                                          help="The stock CSV file to change.")],
     job_file: Annotated[Path, typer.Option("--job", "-j", exists=True, dir_okay=False,
-                                           readable=True, help="The job (TOML) file.")],
+                                           readable=True, help="The job or board (TOML) file.")],
     rank: RankOpt = None,
     from_file: FromOpt = None,
     values: ValuesOpt = None,
     transistor: TransistorOpt = None,
+    stage: Annotated[str | None, typer.Option(
+        "--stage", metavar="NAME",
+        help="Reserve for this stage of a board file alone (with --rank, --from or "
+        "--values, or its fitted parts). Without it, a board file's every stage is reserved "
+        "with the parts it is fitted with (its transistor and [stage.values]), all stages "
+        "× the build quantity.")] = None,
     quantity: Annotated[int | None, typer.Option(
         "--quantity", "-q", metavar="N", min=1, help="Boards to build (default: the job's [build] "
         "quantity).")] = None,
@@ -86,8 +97,11 @@ def reserve(
     from ..render.pick_list import render_reservation
     from ..selection import (
         bench_needs,
+        board_needs,
         check_inputs,
         failing_summary,
+        fitted_selection,
+        pick_stage,
         resolve_selection,
         verify_selection,
     )
@@ -98,39 +112,59 @@ def reserve(
     job = load_job(job_file)
     boards = job.build.quantity if quantity is None else quantity
     inventory = read_inventory(file)
-    selection = select(job, inventory, rank, from_file, values, transistor)
+    whole_board = (job.is_board and stage is None and rank is None and from_file is None
+                   and not values and not transistor)
+    chosen: list[tuple[Job, Selection]]
+    if whole_board:  # every stage as fitted, each with its own topology and limits
+        chosen = [(replace(job, stages=(st,)), fitted_selection(job, st))
+                  for st in job.stages]
+    else:
+        one = pick_stage(job, stage, "reserve for")
+        chosen = [(one, select(one, inventory, rank, from_file, values, transistor, stage))]
 
     def takes(inv):  # run on the file as read under the lock
-        parts, t = resolve_selection(job, selection, inv)
-        needs = bench_needs(parts, t, boards)
+        resolved = [(sj.stage.name, *resolve_selection(sj, sel, inv)) for sj, sel in chosen]
+        needs = (board_needs(resolved, boards) if whole_board
+                 else bench_needs(resolved[0][1], resolved[0][2], boards))
         off = [n for n in needs if not n.part_id]
         if off:
             raise InputError("reserve takes stock parts only, and "
                              f"{', '.join(n.roles[0] for n in off)} is not a stock part; "
                              "nothing written", column="--values",
-                             text=selection.assignment_text())
+                             text="; ".join(sel.assignment_text() for _, sel in chosen))
         return {n.part_id: n.quantity for n in needs}
 
     takes(inventory)  # a part that is not on the shelf is refused before any analysis
-    changed = check_inputs(selection, job_file, file, accept_changed=accept_changed)
-    verdict = verify_selection(job, selection, inventory)
-    if not verdict.ok:
-        why = (f"{selection.source} fails the job: {failing_summary(verdict)}")
-        if not force:
-            raise UnmetError(f"{why}; nothing reserved (--force reserves it anyway)",
-                             file=str(job_file))
-        make_console(stderr=True).print(f"Warning: {why}; reserved anyway (--force)", markup=False)
-    elif changed:
-        make_console(stderr=True).print(f"Note: {', '.join(changed)} changed since the "
-                                        f"result was saved; {selection.source} re-verified "
-                                        "against the current files: it meets the job.",
-                                        markup=False)
+    verdicts = []
+    for sj, sel in chosen:
+        changed = check_inputs(sel, job_file, file, accept_changed=accept_changed)
+        verdict = verify_selection(sj, sel, inventory)
+        verdicts.append(verdict)
+        if not verdict.ok:
+            why = (f"{sel.source} fails the job: {failing_summary(verdict)}")
+            if not force:
+                raise UnmetError(f"{why}; nothing reserved (--force reserves it anyway)",
+                                 file=str(job_file))
+            make_console(stderr=True).print(f"Warning: {why}; reserved anyway (--force)",
+                                            markup=False)
+        elif changed:
+            make_console(stderr=True).print(f"Note: {', '.join(changed)} changed since the "
+                                            f"result was saved; {sel.source} re-verified "
+                                            "against the current files: it meets the job.",
+                                            markup=False)
 
-    res = reserve_stock(file, takes, dry_run=dry_run, build_label=f" for {boards} board(s)")
+    label = f" for {boards} board(s)" + (f", every stage of {job.path}" if whole_board else "")
+    res = reserve_stock(file, takes, dry_run=dry_run, build_label=label)
     if json_out:
         payload = res.to_dict()
-        payload.update({"build_quantity": boards, "selection": selection.to_dict(),
-                        "design_ok": verdict.ok})
+        payload["build_quantity"] = boards
+        if whole_board:
+            payload["stages"] = [{"stage": sj.stage.name, "selection": sel.to_dict(),
+                                  "design_ok": v.ok}
+                                 for (sj, sel), v in zip(chosen, verdicts, strict=True)]
+        else:
+            payload["selection"] = chosen[0][1].to_dict()
+        payload["design_ok"] = all(v.ok for v in verdicts)
         typer.echo(dumps(payload))
         return
     render_reservation(make_console(), res, boards)

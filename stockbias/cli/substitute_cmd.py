@@ -15,9 +15,8 @@ from .common import (
     InventoryOpt,
     JobArg,
     JsonOpt,
+    SamplesOpt,
     SeedOpt,
-    TransistorOpt,
-    ValuesOpt,
     load,
 )
 
@@ -25,8 +24,18 @@ from .common import (
 def substitute(
     job_file: JobArg,
     inventory: InventoryOpt,
-    values: ValuesOpt,
-    transistor: TransistorOpt,
+    values: Annotated[list[str] | None, typer.Option(
+        "--values", "-v", metavar="ROLE=VALUE",
+        help="The stage's parts today: ROLE=VALUE_OR_PART_ID[,...]; a series pair A+B, a "
+        "parallel pair A|B. Repeatable. Default: the stage's [stage.values].")] = None,
+    transistor: Annotated[str | None, typer.Option(
+        "--transistor", "-t", metavar="PART_ID",
+        help="Stock part id of the transistor specified today. Default: the stage's "
+        "transistor.")] = None,
+    stage: Annotated[str | None, typer.Option(
+        "--stage", metavar="NAME",
+        help="The stage of a board file (needed when it has several): its own topology, "
+        "target, limits and fitted parts.")] = None,
     json_out: JsonOpt = False,
     max_changes: Annotated[int | None, typer.Option(
         "--max-changes", metavar="N",
@@ -34,8 +43,7 @@ def substitute(
     time_limit: Annotated[float | None, typer.Option(
         "--time-limit", metavar="SECONDS",
         min=0.1, max=86400.0, help="Seconds for the rework searches.")] = None,
-    samples: Annotated[int, typer.Option("--samples", metavar="N", min=0, max=1_000_000,
-                                         help="Monte Carlo boards per reported check.")] = 2000,
+    samples: SamplesOpt = 2000,
     seed: SeedOpt = 0,
     keep_purpose: Annotated[str | None, typer.Option(
         "--keep-purpose", metavar="NAME=PERCENT",
@@ -61,6 +69,7 @@ def substitute(
     from ..render.json_out import dumps
     from ..search.keep_purpose import parse_keep_purpose
     from ..search.substitute import substitute as run
+    from ..selection import fitted_parts, pick_stage
 
     outs = OutputSet({"the job file": job_file, "the stock file (--inventory)": inventory,
                       "the schematic (--schematic)": schematic}, force=force)
@@ -69,12 +78,24 @@ def substitute(
     with outs:
         job, inv = load(job_file, inventory)
         assert inv is not None
+        job = pick_stage(job, stage, "substitute in")
         changes_opts.check_board(job, changes, schematic)
+        st = job.stage
+        if not values and st.values:
+            fitted_parts(job, st, inv)  # a problem with the file's parts names its key
+        assignment = parse_assignments(values) if values else dict(st.values)
+        if not assignment:
+            raise InputError("give the stage's parts with --values ROLE=VALUE,... (or "
+                             "[stage.values] in the job file)", column="--values")
+        transistor = transistor or st.transistor
+        if transistor is None:
+            raise InputError("give the transistor specified today with --transistor PART_ID "
+                             "(or transistor = \"PART_ID\" in the stage)", column="--transistor")
         tolerances = parse_keep_purpose(keep_purpose)
         if no_keep_purpose and tolerances:
             raise InputError("--keep-purpose and --no-keep-purpose contradict each other",
                              column="--no-keep-purpose", text=keep_purpose)
-        result = run(job, parse_assignments(values), transistor, inv, max_changes=max_changes,
+        result = run(job, assignment, transistor, inv, max_changes=max_changes,
                      time_limit_s=time_limit, samples=samples, seed=seed,
                      keep_purpose=tolerances, purpose=not no_keep_purpose)
         if report is not None:

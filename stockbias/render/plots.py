@@ -49,6 +49,11 @@ def _figure(width: float = 7.5, height: float = 5.2) -> Any:
     return Figure(figsize=(width, height), dpi=150, layout="constrained")
 
 
+def _target(result: CheckResult, job: Job) -> Any:
+    """The target of the stage ``result`` checks (a board holds one per stage)."""
+    return next((s for s in job.stages if s.name == result.stage), job.stage).target
+
+
 def _flat(x: Any) -> np.ndarray:
     return np.asarray(x, dtype=float).reshape(-1)
 
@@ -96,7 +101,7 @@ def qpoint_figure(result: CheckResult, job: Job) -> Any:
             vce_m, ic_m, _ = mc.qpoint.centres()
         x_max = 1.1 * hi
         ic_line = hi / r_dc if r_dc > 0 else float(np.nanmax(ic_c)) * 2
-        y_top = 1.15 * max(ic_line, float(np.nanmax(ic_c)), job.stage.target.ic_max) * 1e3
+        y_top = 1.15 * max(ic_line, float(np.nanmax(ic_c)), _target(result, job).ic_max) * 1e3
         # limits first, underneath everything
         ax.axvspan(0, t.vce_sat, color="0.85", hatch="//", ec="0.55", lw=0,
                    label=f"saturation (VCE < {t.vce_sat:g} V)")
@@ -118,7 +123,7 @@ def qpoint_figure(result: CheckResult, job: Job) -> Any:
                        label=f"above VCEO {t.vceo_max:g} V")
         else:
             ax.plot([], [], " ", label=f"VCEO {t.vceo_max:g} V (beyond the axis)")
-        tgt = job.stage.target
+        tgt = _target(result, job)
         ax.axhspan(tgt.ic_min * 1e3, tgt.ic_max * 1e3, color="#cfe8cf", alpha=0.6,
                    label=f"IC target {tgt.ic_min * 1e3:.3g}–{tgt.ic_max * 1e3:.3g} mA")
         if tgt.vce_min > 0:
@@ -169,7 +174,7 @@ def ic_histogram_figure(result: CheckResult, job: Job) -> Any:
     if mc is None:
         raise InputError("the IC histogram needs Monte Carlo boards (--samples more than 0)",
                          column="--samples", text="0")
-    tgt = job.stage.target
+    tgt = _target(result, job)
     with mpl.rc_context(_STYLE):  # type: ignore[arg-type]
         fig = _figure(7.5, 4.6)
         ax = fig.add_subplot()

@@ -32,11 +32,12 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from ..analysis.check import analyze_stage, check_roles
-from ..assign import ResolvedResistor, resolve_resistor
+from ..analysis.check import analyze_stage
+from ..assign import ResolvedResistor
 from ..errors import InputError
-from ..job import OBJECTIVES, Job, stage_key_error
+from ..job import OBJECTIVES, Job
 from ..parts import Inventory, Resistor, Transistor
+from ..selection import fitted_parts
 from ..topologies import get_network
 from .board import (
     BoardDesign,
@@ -142,39 +143,7 @@ def parse_keep(text: str | Iterable[str] | None, job: Job) -> list[tuple[str, st
 def _current(job: Job, inventory: Inventory
              ) -> list[tuple[Transistor, dict[str, ResolvedResistor]]]:
     """Each stage's current transistor and resolved parts (errors name the stage)."""
-    out = []
-    for st in job.stages:
-        if st.topology == "any":
-            raise stage_key_error(job, st.name, "topology", "consolidation needs the stage's "
-                                  "topology", "any")
-        if st.transistor is None:
-            raise stage_key_error(job, st.name, "transistor", "consolidation needs the stage's "
-                                  "current transistor (transistor = \"PART_ID\")")
-        q = inventory.find_transistor(st.transistor)
-        if q is None:
-            raise stage_key_error(job, st.name, "transistor", f"transistor {st.transistor} is "
-                                  "not in the stock file", st.transistor)
-        if not st.values:
-            raise stage_key_error(job, st.name, "values", "consolidation needs the stage's "
-                                  "current parts ([stage.values])")
-        try:
-            check_roles(st.topology, st.values)
-        except InputError as exc:
-            one_role = exc.text and "=" not in exc.text
-            raise stage_key_error(job, st.name, f"values.{exc.text}" if one_role else "values",
-                                  exc.message, exc.text) from None
-        parts = {}
-        for role, text in st.values.items():
-            try:
-                parts[role] = resolve_resistor(
-                    role, text, inventory, job.build.default_tolerance_pct,
-                    source="stage.values",
-                    ambient=(job.environment.ambient_min_c, job.environment.ambient_max_c))
-            except InputError as exc:
-                raise stage_key_error(job, st.name, f"values.{role}", exc.message,
-                                      text) from None
-        out.append((q, parts))
-    return out
+    return [fitted_parts(job, st, inventory) for st in job.stages]
 
 
 def _purpose_rule(job: Job, override: dict[str, float | None] | None, on: bool) -> str:
