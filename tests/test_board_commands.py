@@ -69,6 +69,7 @@ def test_check_board_gives_every_stage_a_verdict(columns: int) -> None:
     for part in ("CF-100K", "CF-22K", "CF-4K7", "CF-680R", "QN-LB2", "QN-LB1", "QN-GP40"):
         assert part in out
     assert "Monte Carlo yield 100.00 % of 200 boards" in out
+    assert "Assumed (in one stage or more): TJ max 150 °C" in " ".join(out.split())
     assert "--stage NAME" in out
     assert fits(out, columns), out
 
@@ -419,3 +420,26 @@ def test_reserve_board_with_a_failing_stage_reserves_nothing(tmp_path: Path) -> 
     assert line.startswith(f"{PROBE}: stage 'driver' as fitted")
     assert "ic_max" in line and line.endswith("nothing reserved (--force reserves it anyway)")
     assert _sha(shelf) == before
+
+
+# --- plots of a board stage -------------------------------------------------------------
+
+def test_plots_draw_the_window_of_the_stage_checked() -> None:
+    # line_out's window in the board file: 3 mA ±40 % = 1.8–4.2 mA (hand calculation);
+    # the first stage's (input, 0.5 mA ±40 %) must not be drawn for it
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from stockbias.analysis.check import analyze
+    from stockbias.job import load_job
+    from stockbias.render.plots import ic_histogram_figure, qpoint_figure
+    from stockbias.stock_io import load_inventory
+
+    job, inv = load_job(BOARD), load_inventory(SHELF)
+    result = analyze(job, dict(job.stages[3].values), "QN-GP40", inv, samples=200,
+                     stage_name="line_out")
+    for figure in (qpoint_figure(result, job), ic_histogram_figure(result, job)):
+        labels = [h.get_label() for ax in figure.axes
+                  for h in ax.get_legend_handles_labels()[0]]
+        assert any("target" in x and "1.8–4.2 mA" in x for x in labels), labels
+        assert not any("0.3–0.7 mA" in x for x in labels), labels

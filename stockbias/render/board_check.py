@@ -140,6 +140,9 @@ def _stage_lines(r: CheckResult, job: Job, width: int) -> list[tuple[str, str]]:
     for c in sorted(failing, key=lambda c: c.name):
         lines += [(x, "red") for x in fill_phrases(["✗ " + _failure_phrase(c, r)], width,
                                                    "      ")]
+    for w in r.warnings:
+        lines += [(x, "yellow") for x in fill_phrases(f"warning: {w}".split(" "), width,
+                                                      "      ", sep=" ", hang="        ")]
     return lines
 
 
@@ -175,6 +178,11 @@ def render_board_check(console: Console, job: Job, results: Sequence[CheckResult
         cautions += [c for c in r.cautions if c not in cautions]
     for c in cautions:
         _print(console, _words(f"caution: {c}", width), "yellow")
+    assumed: list[str] = []
+    for r in results:
+        assumed += [a for a in r.assumptions if a not in assumed]
+    if assumed:
+        _print(console, _words("Assumed (in one stage or more): " + "; ".join(assumed), width))
     _print(console, _words("Every table of one stage (constraints, corners, stability, "
                            "thermal, assumptions): "
                            f"{command or 'stockbias check BOARD'} --stage NAME", width), "dim")
