@@ -230,3 +230,18 @@ def test_substitute_writes_the_transistor_change(tmp_path: Path) -> None:
         assert row["role"] == change["role"] and row["stock_part_id"] == change["part_id"]
     sch = (tmp_path / "s.kicad_sch").read_text()
     assert f'"Stock part" "{best["part_id"]}"' in sch
+
+
+def test_substitute_on_one_stage_of_the_board(consolidated: dict, tmp_path: Path) -> None:
+    # --stage picks Q3 of the imported board; the change names Q3's designator
+    r = runner.invoke(app, ["substitute", str(consolidated["board"]), "-i", str(SHELF),
+                            "--stage", "Q3", "--samples", "0", "--json",
+                            "--changes", str(tmp_path / "q3.csv")])
+    assert r.exit_code == 0, r.output
+    best = next(c for c in json.loads(r.stdout)["candidates"]
+                if c["ruled_out"] is None and (c["drop_in"] or c["changes"])
+                and c["part_id"] != "QN-GP40")
+    rows = list(csv.DictReader(io.StringIO((tmp_path / "q3.csv").read_text())))
+    assert rows[0]["reference"] == "Q3" and rows[0]["new_value"] == best["part_id"]
+    refs = {"R1": "R9", "R2": "R10", "RC": "R11", "RE": "R12"}   # the sample's Q3 stage
+    assert [r["reference"] for r in rows[1:]] == [refs[c["role"]] for c in best["changes"]]
