@@ -585,6 +585,8 @@ class _RowReader:
             for name, col in CARD_TO_ROW.items():
                 if col not in values:
                     values[col] = full[name]
+            if values.get("vaf_v") == 0.0:     # SPICE's VAF = 0 means no Early effect
+                values["vaf_v"] = math.inf
         assumed = frozenset(c for c in TRANSISTOR_DEFAULTS if c not in values)
         optional = {c: values.get(c, TRANSISTOR_DEFAULTS[c][0]) for c in TRANSISTOR_DEFAULTS}
         names = {c: self.raw(c) for c in ("model_name", "model_file", "curve_file")}

@@ -255,3 +255,22 @@ def test_chosen_exponential_design_matches_ngspice(seed, topology, n_lines, wind
         assert abs(float(nom["ic"]) - sp["ic"]) <= 3e-5 * abs(sp["ic"]) + 1e-10
         for node in ("vb", "vc", "ve"):
             assert abs(float(nom[node]) - sp[node]) <= 2e-4, node
+
+
+def test_characterised_shelf_searches_with_the_exponential_model():
+    """A row whose model card leaves VAF at SPICE's 0 (no Early effect) reads as VAF = inf
+    (SPICE convention: the BJT parameter table gives VAF default 0 = infinite), and the
+    exponential search on the characterised sample shelf finishes with every design
+    re-verified."""
+    from pathlib import Path
+
+    from stockbias.job import load_job
+    from stockbias.stock_io import load_inventory
+
+    samples = Path(__file__).resolve().parent.parent / "inventory_samples"
+    inv = load_inventory(samples / "characterised_parts.csv")
+    assert next(q for q in inv.transistors if q.part_id == "QF-LC").vaf_v == float("inf")
+    job = _exp(load_job(samples / "line_driver_job.toml"))
+    r = design(job, inv, top=2)
+    assert r.status in ("optimal", "infeasible")
+    assert all(d.check.ok and d.check.model == "exponential" for d in r.designs)
