@@ -69,7 +69,7 @@ _CARD = re.compile(
     r"|V_IC c qc DC 0|V_IB b qb DC 0"
     r"|B_ICBO q[cb] q[cb] I = [0-9.e+-]+ \* pow\(2, \(temper - 25\) / [0-9.]+\)"
     r"|\.model QSTAGE (?:NPN|PNP) \((?:[A-Z]+=[-+0-9.e]+ ?)+\)"
-    r"|\.options reltol=1e-6 abstol=1e-15 vntol=1e-9|\.temp [-0-9.e]+|\.op"
+    r"|\.options reltol=1e-6 abstol=1e-15 vntol=1e-9 gmin=1e-15|\.temp [-0-9.e]+|\.op"
     r"|\.dc TEMP [-0-9.e]+ [-0-9.e]+ [-0-9.e]+|\.print dc v\(b\) v\(c\) v\(e\) i\(V_IC\) i\(V_IB\)"
     r"|\.end)")
 

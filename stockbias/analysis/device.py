@@ -185,9 +185,10 @@ def icbo_at(icbo25, temp_c, doubling_c=10.0):
 class GummelPoon:
     """DC Gummel–Poon parameters already at the device temperature.
 
-    No high-injection (IKF, IKR), leakage (ISE, ISC) or parasitic-resistance
-    terms; VAR is infinite.  Fields may be arrays that broadcast with the
-    circuit arrays.
+    By default no high-injection (IKF, IKR), recombination (ISE, ISC) or
+    parasitic-resistance terms and VAR infinite; a model card's row sets them
+    (:func:`stockbias.analysis.stage.gummel_poon_of`).  Fields may be arrays that
+    broadcast with the circuit arrays.
 
     Attributes
     ----------
@@ -207,12 +208,39 @@ class GummelPoon:
     nf: float | np.ndarray = 1.0
     nr: float | np.ndarray = 1.0
     vaf: float | np.ndarray = np.inf
+    #: The terms of a full model card (:mod:`stockbias.analysis.gp_dc`), already at the
+    #: device temperature: recombination currents ISE, ISC (A) and their emission
+    #: coefficients, knee currents IKF, IKR (A), reverse Early voltage VAR (V), series
+    #: resistances RB, RE, RC (ohm).  The defaults drop every one of them.
+    ise: float | np.ndarray = 0.0
+    ne: float | np.ndarray = 1.5
+    isc: float | np.ndarray = 0.0
+    nc: float | np.ndarray = 2.0
+    ikf: float | np.ndarray = np.inf
+    ikr: float | np.ndarray = np.inf
+    var: float | np.ndarray = np.inf
+    rb: float = 0.0
+    re: float = 0.0
+    rc: float = 0.0
 
     def __post_init__(self) -> None:
-        for name in ("is_a", "bf", "br", "nf", "nr", "vaf"):
+        for name in ("is_a", "bf", "br", "nf", "nr", "vaf", "ne", "nc", "ikf", "ikr", "var"):
             value = np.asarray(getattr(self, name), dtype=float)
             if np.any(~(value > 0)):
                 raise ValueError(f"Gummel-Poon parameter {name} must be positive, got {value}")
+
+    @property
+    def full(self) -> bool:
+        """True when a term beyond the simple transport model is present."""
+        return bool(np.any(np.asarray(self.ise) > 0) or np.any(np.asarray(self.isc) > 0)
+                    or np.any(np.isfinite(self.ikf)) or np.any(np.isfinite(self.ikr))
+                    or np.any(np.isfinite(self.var)) or self.rb > 0 or self.re > 0
+                    or self.rc > 0)
+
+    def extras(self) -> tuple:
+        """(ISE, NE, ISC, NC, 1/IKF, 1/IKR, 1/VAR) for the full current equations."""
+        return (self.ise, self.ne, self.isc, self.nc, 1.0 / np.asarray(self.ikf, dtype=float),
+                1.0 / np.asarray(self.ikr, dtype=float), 1.0 / np.asarray(self.var, dtype=float))
 
 
 def gummel_poon_at(is_a, bf, br, nf, nr, vaf, xti, eg_ev, xtb, tnom_c, temp_c) -> GummelPoon:

@@ -37,6 +37,7 @@ from stockbias.analysis.device import CELSIUS_TO_KELVIN, thermal_voltage
 __all__ = [
     "CARD_DEFAULTS",
     "GPDevice",
+    "as_gummel_poon",
     "bias_at_current",
     "device_at",
     "junction_currents",
@@ -135,6 +136,26 @@ def device_at(params: Mapping[str, float], temp_c) -> GPDevice:
         rb=p["rb"], re=p["re"], rc=p["rc"],
         vt=vt,
     )
+
+
+def _inverse_or_inf(x) -> np.ndarray:
+    x = np.asarray(x, dtype=float)
+    with np.errstate(divide="ignore"):
+        return np.where(x > 0, 1.0 / np.where(x > 0, x, 1.0), np.inf)
+
+
+def as_gummel_poon(dev: GPDevice, *, is_scale=1.0, bf_scale=1.0):
+    """The device as :class:`stockbias.analysis.device.GummelPoon`, the form the circuit
+    solve (:func:`stockbias.analysis.operating_point.solve_exponential`) takes; IS and BF
+    optionally scaled (arrays broadcast: the production spread around a card)."""
+    from .device import GummelPoon
+
+    return GummelPoon(
+        is_a=np.asarray(dev.is_a) * is_scale, bf=np.asarray(dev.bf) * bf_scale, br=dev.br,
+        nf=dev.nf, nr=dev.nr, vaf=_inverse_or_inf(dev.inv_vaf), ise=dev.ise, ne=dev.ne,
+        isc=dev.isc, nc=dev.nc, ikf=_inverse_or_inf(dev.inv_ikf),
+        ikr=_inverse_or_inf(dev.inv_ikr), var=_inverse_or_inf(dev.inv_var),
+        rb=float(dev.rb), re=float(dev.re), rc=float(dev.rc))
 
 
 def _diode(v, i_s, n_vt):

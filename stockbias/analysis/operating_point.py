@@ -546,8 +546,21 @@ def _pnjlim(v_new, v_old, vt, v_crit):
     return np.where(limit, limited, v_new), limit
 
 
-def _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf, vt, icbo):
-    """Terminal currents IB, IC and their derivatives in (VBE, VBC)."""
+def _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf, vt, icbo, extra=None):
+    """Terminal currents IB, IC and their derivatives in (VBE, VBC).
+
+    ``extra`` = (ISE, NE, ISC, NC, 1/IKF, 1/IKR, 1/VAR) adds a model card's
+    recombination, high-injection and reverse-Early terms
+    (:func:`stockbias.analysis.gp_dc.junction_currents`); None: the transport model.
+    """
+    if extra is not None:
+        from .gp_dc import GPDevice, junction_currents
+
+        ise, ne, isc, nc, inv_ikf, inv_ikr, inv_var = extra
+        dev = GPDevice(is_a=is_a, bf=bf, br=br, nf=nf, nr=nr, ise=ise, ne=ne, isc=isc, nc=nc,
+                       inv_vaf=inv_vaf, inv_var=inv_var, inv_ikf=inv_ikf, inv_ikr=inv_ikr,
+                       rb=0.0, re=0.0, rc=0.0, vt=vt)
+        return junction_currents(vbe, vbc, dev, icbo)
     vtf, vtr = nf * vt, nr * vt
     ef = np.exp(np.minimum(vbe / vtf, _EXP_ARG_MAX))
     er = np.exp(np.minimum(vbc / vtr, _EXP_ARG_MAX))
@@ -642,15 +655,21 @@ def solve_exponential(
         If the Newton iteration does not converge (not seen in practice).
     """
     inv_vaf = 1.0 / np.asarray(gp.vaf, dtype=float)
+    full = gp.full
     st = _stage(
         network, resistances, polarity, vcc, vee,
         gp.is_a, gp.bf, gp.br, gp.nf, gp.nr, inv_vaf, temp_k, icbo,
+        *(gp.extras() if full else ()),
     )
-    is_a, bf, br, nf, nr, inv_vaf_f, temp_f, icbo_f = st.extra
+    is_a, bf, br, nf, nr, inv_vaf_f, temp_f, icbo_f = st.extra[:8]
+    extra = st.extra[8:] if full else None
     vt = thermal_voltage(temp_f)
     resp = _linear_response(st.network, st.r, st.rails)
     p0, p1, p2 = resp.junction(0, 2)
     q0, q1, q2 = resp.junction(0, 1)
+    if full:  # the card's series resistances: the junctions sit inside RB, RE, RC
+        p1, p2 = p1 - gp.rb - gp.re, p2 - gp.re
+        q1, q2 = q1 - gp.rb, q2 + gp.rc
 
     # Start from the constant-VBE point with VBE at 1 mA and β = BF, then once more with
     # the VBE of the diode law at that point's current (a fixed-point step: the start is
@@ -675,7 +694,8 @@ def solve_exponential(
     converged = False
     polish = _NEWTON_POLISH
     for _ in range(_NEWTON_MAX_ITER):
-        ib, ic, dib, dic = _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f)
+        ib, ic, dib, dic = _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f,
+                                        extra)
         f1 = p0 + p1 * ib + p2 * ic - vbe
         f2 = q0 + q1 * ib + q2 * ic - vbc
         j11 = p1 * dib[0] + p2 * dic[0] - 1.0
@@ -699,10 +719,10 @@ def solve_exponential(
     if not converged:
         raise ArithmeticError("exponential operating point: Newton iteration did not converge")
 
-    ib, ic, _, _ = _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f)
+    ib, ic, _, _ = _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f, extra)
     vb, vc, ve = resp.voltages(ib, ic).T
     region = classify_exponential(
-        vb - ve, vb - vc, nf, nr, temp_f,
+        vbe if full else vb - ve, vbc if full else vb - vc, nf, nr, temp_f,
         cutoff_vbe_vt=cutoff_vbe_vt, saturation_ratio=saturation_ratio,
     )
     return _assemble(st, ib, ic, vb, vc, ve, region)

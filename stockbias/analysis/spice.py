@@ -67,11 +67,15 @@ def _num(x: float) -> str:
     return f"{float(x):.12g}"
 
 
+#: A full card's further DC terms (SPICE names, SI units), written only when given.
+CARD_EXTRAS = ("ise", "ne", "isc", "nc", "ikf", "ikr", "var", "rb", "re", "rc")
+
+
 def _card(model_card: Mapping[str, float]) -> dict[str, float]:
     missing = {"is_a", "bf"} - set(model_card)
     if missing:
         raise ValueError(f"model card needs {sorted(missing)}")
-    unknown = set(model_card) - {"is_a", "bf", *MODEL_CARD_DEFAULTS}
+    unknown = set(model_card) - {"is_a", "bf", *MODEL_CARD_DEFAULTS, *CARD_EXTRAS}
     if unknown:
         raise ValueError(f"model card: unknown parameter(s) {sorted(unknown)}")
     return {**MODEL_CARD_DEFAULTS, **{k: float(v) for k, v in model_card.items()}}
@@ -215,10 +219,12 @@ def write_netlist(
         f"EG={_num(card['eg_ev'])}",
         f"TNOM={_num(card['tnom_c'])}",
     ]
+    params += [f"{k.upper()}={_num(card[k])}" for k in CARD_EXTRAS
+               if k in card and math.isfinite(card[k]) and card[k] != 0.0]
     lines += [
         f".model QSTAGE {pol} ({' '.join(params)})",
-        "* tight tolerances: this netlist is a cross-check",
-        ".options reltol=1e-6 abstol=1e-15 vntol=1e-9",
+        "* tight tolerances and a small GMIN: this netlist is a cross-check",
+        ".options reltol=1e-6 abstol=1e-15 vntol=1e-9 gmin=1e-15",
         f".temp {_num(temp_c)}",
         *analyses,
         ".end",

@@ -143,15 +143,20 @@ class DeviceSpec:
     pd_max_w: float | np.ndarray = math.inf
     ic_max: float | np.ndarray = math.inf
     vceo_max: float | np.ndarray = math.inf
+    #: A model card's DC parameters (lower-case SPICE names, SI) when the stock row names
+    #: one (or datasheet points fitted to one); the exponential model then follows it.
+    card: Mapping[str, float] | None = field(default=None, compare=False)
 
     @classmethod
     def from_transistor(cls, t: object) -> DeviceSpec:
         """Build from a :class:`stockbias.parts.Transistor` row."""
-        names = [f.name for f in cls.__dataclass_fields__.values() if f.name != "vbe_tempco"]
+        names = [f.name for f in cls.__dataclass_fields__.values()
+                 if f.name not in ("vbe_tempco", "card")]
         values = {n: getattr(t, n) for n in names}
         if values["theta_ja"] is None:
             values["theta_ja"] = math.nan
-        return cls(**values)
+        card = getattr(t, "card", None)
+        return cls(**values, card=None if card is None else dict(card.params))
 
     @property
     def theta_ja_effective(self) -> np.ndarray:
@@ -367,6 +372,8 @@ def gummel_poon_of(spec: StageSpec, point: StagePoint, temp_c: np.ndarray) -> de
     BF is the point's hFE at 25 °C; both then move to ``temp_c``.
     """
     d = spec.device
+    if d.card is not None:
+        return _card_gummel_poon(d, point, temp_c)
     t25 = device.STOCK_REFERENCE_C + device.CELSIUS_TO_KELVIN
     nf = np.asarray(d.nf, dtype=float)
     if d.is_a is None:
@@ -378,6 +385,34 @@ def gummel_poon_of(spec: StageSpec, point: StagePoint, temp_c: np.ndarray) -> de
         is25 = is_nom * np.exp((vbe_mid - point.vbe) / (nf * device.thermal_voltage(t25)))
     return device.gummel_poon_at(is25, point.hfe, d.br, d.nf, d.nr, d.vaf_v, d.xti, d.eg_ev,
                                  d.xtb, device.STOCK_REFERENCE_C, temp_c)
+
+
+def _card_gummel_poon(d: DeviceSpec, point: StagePoint, temp_c: np.ndarray
+                      ) -> device.GummelPoon:
+    """A model card's device at a point: the card as given at the nominal point, the hFE
+    bin's and VBE range's spread applied around it.
+
+    BF is the card's × hFE/hFE_nominal (the bin's geometric mean) and IS the card's ×
+    exp((VBE_mid − VBE)/(NF·VT at 25 °C)), so the nominal point is the card itself and the
+    corners keep the bin's relative spread; the row's own Gummel–Poon columns (the card
+    fills those the row leaves empty) and the card's other terms follow the card's
+    temperature laws (:func:`stockbias.analysis.gp_dc.device_at`).
+    """
+    from .gp_dc import as_gummel_poon, device_at
+
+    assert d.card is not None
+    t25 = device.STOCK_REFERENCE_C + device.CELSIUS_TO_KELVIN
+    nf = float(np.asarray(d.nf))
+    vbe_mid = 0.5 * (np.asarray(d.vbe_min, dtype=float) + np.asarray(d.vbe_max, dtype=float))
+    hfe_nom = np.sqrt(np.asarray(d.hfe_min, dtype=float) * np.asarray(d.hfe_max, dtype=float))
+    params = {**d.card, "br": d.br, "nf": d.nf, "nr": d.nr, "xtb": d.xtb, "xti": d.xti,
+              "eg": d.eg_ev, "vaf": 0.0 if math.isinf(float(np.asarray(d.vaf_v))) else d.vaf_v}
+    if d.is_a is not None:
+        params["is"] = d.is_a
+    is_scale = np.exp((vbe_mid - np.asarray(point.vbe, dtype=float))
+                      / (nf * device.thermal_voltage(t25)))
+    return as_gummel_poon(device_at(params, temp_c), is_scale=is_scale,
+                          bf_scale=np.asarray(point.hfe, dtype=float) / hfe_nom)
 
 
 def _exponential_small_signal(spec: StageSpec, point: StagePoint, op: OperatingPoint,
@@ -393,6 +428,16 @@ def _exponential_small_signal(spec: StageSpec, point: StagePoint, op: OperatingP
     vt = device.thermal_voltage(np.asarray(temp_c, dtype=float) + device.CELSIUS_TO_KELVIN)
     vbe = np.asarray(op.vbe, dtype=float)
     vbc = vbe - np.asarray(op.vce, dtype=float)
+    if gp.full:  # a model card's full equations; the small series resistances left out
+        from .operating_point import _gp_currents
+
+        _, _, dib, dic = _gp_currents(vbe, vbc, gp.is_a, gp.bf, gp.br, gp.nf, gp.nr,
+                                      1.0 / np.asarray(gp.vaf, dtype=float), vt, 0.0,
+                                      gp.extras())
+        g_o = -np.asarray(dic[1], dtype=float)
+        with np.errstate(divide="ignore", over="ignore"):
+            ro = np.asarray(1.0 / g_o, dtype=float)
+        return np.asarray(dic[0] + dic[1], dtype=float), np.asarray(dib[0], dtype=float), ro
     is_a, bf, br = (np.asarray(x, dtype=float) for x in (gp.is_a, gp.bf, gp.br))
     vtf, vtr = np.asarray(gp.nf) * vt, np.asarray(gp.nr) * vt
     with np.errstate(over="ignore"):

@@ -82,10 +82,11 @@ def load(job_path: Path, inventory_path: Path | None) -> tuple[Job, Inventory | 
 
     job = load_job(job_path)
     inv = read_inventory(inventory_path) if inventory_path is not None else None
-    if inv is not None:
+    if inv is not None and job.search.model == "constant_vbe":
         from ..device_data import at_job_currents
 
         # rows with a model card or datasheet points: hFE and VBE at the job's currents
+        # (the exponential model follows the card itself)
         inv = at_job_currents(inv, min(s.target.ic_min for s in job.stages),
                               max(s.target.ic_max for s in job.stages))
     return job, inv

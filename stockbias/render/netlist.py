@@ -77,6 +77,8 @@ def model_card(t: Transistor) -> tuple[dict[str, float], list[str]]:
     notes : list of str
         Where each value came from.
     """
+    if t.card is not None:
+        return _card_as_given(t)
     notes = []
     xtb, xti, eg, nf = t.xtb, t.xti, t.eg_ev, t.nf
     if t.is_a is None:
@@ -102,6 +104,33 @@ def model_card(t: Transistor) -> tuple[dict[str, float], list[str]]:
             n.upper().replace("_V", "").replace("_EV", "") for n in defaulted))
     card = {"is_a": is27, "bf": bf27, "br": br27, "nf": nf, "nr": t.nr, "vaf": t.vaf_v,
             "xtb": xtb, "xti": xti, "eg_ev": eg, "tnom_c": _TNOM_C}
+    return card, notes
+
+
+def _card_as_given(t: Transistor) -> tuple[dict[str, float], list[str]]:
+    """A row with a model card (or fitted datasheet points): the card's parameters as
+    given, its own TNOM kept (ngspice moves them to temperature as the analysis does);
+    the row's own Gummel–Poon columns replace the card's where the row gives them."""
+    from ..analysis.gp_dc import CARD_DEFAULTS
+
+    assert t.card is not None
+    p = {**CARD_DEFAULTS, **t.card.params}
+    row = {"is": t.is_a, "br": t.br, "nf": t.nf, "nr": t.nr, "xtb": t.xtb, "xti": t.xti,
+           "eg": t.eg_ev, "vaf": 0.0 if math.isinf(t.vaf_v) else t.vaf_v}
+    overridden = sorted(k.upper() for k, v in row.items()
+                        if v is not None and k in t.card.params and v != t.card.params[k])
+    p.update({k: v for k, v in row.items() if v is not None})
+    notes = [f"parameters from the {t.card.source}, as given (TNOM {p['tnom']:g} C kept)"]
+    if overridden:
+        notes.append("the stock row's own columns replace the card's " + ", ".join(overridden))
+    notes.append(f"BF is the card's: the nominal point; the stock row's hFE bin "
+                 f"{t.hfe_min:g}..{t.hfe_max:g} is the spread around it")
+    card = {"is_a": p["is"], "bf": p["bf"], "br": p["br"], "nf": p["nf"], "nr": p["nr"],
+            "vaf": p["vaf"] if p["vaf"] else math.inf, "xtb": p["xtb"], "xti": p["xti"],
+            "eg_ev": p["eg"], "tnom_c": p["tnom"]}
+    for key in ("ise", "ne", "isc", "nc", "ikf", "ikr", "var", "rb", "re", "rc"):
+        if p.get(key):
+            card[key] = p[key]
     return card, notes
 
 

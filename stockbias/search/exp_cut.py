@@ -108,12 +108,24 @@ class ExpCorner:
     vcc: float
     vee: float
     temp_c: float
+    #: A model card's further terms (ISE, NE, ISC, NC, 1/IKF, 1/IKR, 1/VAR) or None, and
+    #: its series resistances RB, RE, RC (ohm), which join the loop's R_b and X.
+    extra: tuple | None = None
+    rb: float = 0.0
+    re: float = 0.0
+    rc: float = 0.0
+
+    @property
+    def full(self) -> bool:
+        """A model card with terms beyond the transport model: the gain bounds, which
+        rest on the transport model, are not used (only the pinned currents)."""
+        return self.extra is not None
 
     def currents(self, vbe):
         """IB, IC, IE and their derivatives along the pinned relation, A and A/V."""
         vbc = self.a * vbe + self.b
         ib, ic, dib, dic = _gp_currents(vbe, vbc, self.is_a, self.bf, self.br, self.nf,
-                                        self.nr, self.inv_vaf, self.vt, self.icbo)
+                                        self.nr, self.inv_vaf, self.vt, self.icbo, self.extra)
         d_ib = dib[0] + self.a * dib[1]
         d_ic = dic[0] + self.a * dic[1]
         return ib, ic, ib + ic, d_ib, d_ic
@@ -189,10 +201,26 @@ def exp_corner(job: Job, stage: Stage, q: Transistor, network: str, up: bool,
     else:
         a, b = 1.0, -(cn.vcc_hi + cn.vee_hi)         # VCE ≤ VRAIL_C − VRAIL_E
     icbo = float(device.icbo_at(q.icbo_a, temp_c)) if up else 0.0
+    extra = None
+    if gp.full:
+        extra = tuple(float(np.asarray(x)) for x in gp.extras())
+        # The pinned relation holds for the terminals; the junctions sit inside RB, RE, RC.
+        # IC-max vertex: the internal VCE is lower by RE·IE + RC·IC, at most (2·RE + RC)·
+        # ic_max for a passing design (IC ≤ ic_max there, IB ≤ IC); collector_feedback:
+        # VBC rises by at most RC·ic_max.  IC-min vertex, collector_feedback: the drop on
+        # RB is less than the supply span plus a volt.  Each moves the pinned relation the
+        # sound way (a higher VBC at the IC-max vertex, a lower one at the IC-min vertex).
+        ic_max = stage.target.ic_max
+        if up:
+            b += (2.0 * gp.re + gp.rc) * ic_max if network != "collector_feedback" \
+                else gp.rc * ic_max
+        elif network == "collector_feedback":
+            b -= cn.vcc_hi + cn.vee_hi + 1.0
     return ExpCorner(is_a=float(np.asarray(gp.is_a)), bf=float(np.asarray(gp.bf)),
                      br=float(np.asarray(gp.br)), nf=nf, nr=nr,
                      inv_vaf=float(1.0 / np.asarray(gp.vaf)), vt=vt, icbo=icbo, a=a, b=b,
-                     vcc=rail_c, vee=rail_e, temp_c=temp_c)
+                     vcc=rail_c, vee=rail_e, temp_c=temp_c, extra=extra,
+                     rb=float(gp.rb), re=float(gp.re), rc=float(gp.rc))
 
 
 def need_vce(stage: Stage, q: Transistor) -> float:
@@ -231,8 +259,8 @@ def pinned_ic(cn: ExpCorner, v_d: np.ndarray, r_b: np.ndarray, x_total: np.ndarr
     ohm.
     """
     v_d, r_b, x_total = np.broadcast_arrays(np.asarray(v_d, dtype=float),
-                                            np.asarray(r_b, dtype=float),
-                                            np.asarray(x_total, dtype=float))
+                                            np.asarray(r_b, dtype=float) + cn.rb,
+                                            np.asarray(x_total, dtype=float) + cn.re)
     vtf = cn.nf * cn.vt
 
     def resid(v, k):
@@ -343,7 +371,7 @@ def exp_thresholds(job: Job, stage: Stage, network: str, q: Transistor,
                     continue
                 vbe, ib, ie = state
                 with np.errstate(divide="ignore", invalid="ignore"):
-                    x = (v_d - vbe - r_b * ib) / ie - r_x
+                    x = (v_d - vbe - (r_b + cn.rb) * ib) / ie - r_x - cn.re
                 if up:
                     a_thr = np.maximum(a_thr, x)
                 else:
@@ -438,7 +466,7 @@ def exp_free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor, ca
                     if w > 0:
                         ve = ie * x - cn.vee
                         h = np.minimum(h, np.where(ic > 0, (cn.vcc - ve - w) / ic, np.inf))
-                    if t.gain_max is not None:
+                    if t.gain_max is not None and not cn.full:
                         gm_lb, gm_ub, gpi, go = _gain_bounds(cn, ic, np.full(n, t.ic_max))
                         re = x * unbypassed
                         num = gm_lb - go * gpi * re
@@ -451,6 +479,7 @@ def exp_free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor, ca
     gain_low = t.gain_min is not None and t.gain_min >= 1.0
     if t.swing_pk or gain_low:
         cn = exp_corner(job, stage, q, network, False, cold)
+        gain_low = gain_low and not cn.full
         lo_s: list[dict[str, np.ndarray]] = [{}]
         for role in plan.enumerated:
             c = cands[role]
