@@ -34,6 +34,11 @@ def test_sweep_without_a_transistor_takes_substitutes_pick(folder: Path, tmp_pat
     res = runner.invoke(app, ["sweep", str(folder), "-i", str(shelf), "--without", "QN-LB1",
                               "--json", "--csv", str(out)])
     assert res.exit_code == 0, res.output
+    import jsonschema
+
+    schema = Path(__file__).resolve().parent.parent / "stockbias" / "schemas"
+    jsonschema.validate(json.loads(res.stdout),
+                        json.loads((schema / "sweep.schema.json").read_text()))
     rows = json.loads(res.stdout)["stages"]
     assert [r["stage"] for r in rows] == ["input", "gain", "split", "line_out", "stage"]
     gain = rows[1]

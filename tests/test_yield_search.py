@@ -162,6 +162,10 @@ def test_design_cli_routes_a_yield_job_and_says_what_it_claims(shelves, columns)
                              "--json"])
     assert js.exit_code == 0
     payload = json.loads(js.stdout)
+    import jsonschema
+
+    schema = Path(__file__).resolve().parent.parent / "stockbias" / "schemas"
+    jsonschema.validate(payload, json.loads((schema / "yield_design.schema.json").read_text()))
     assert payload["mode"] == "yield" and payload["samples_per_design"] == 20_000
     assert payload["designs"][0]["yield_evidence"]["final_check"]["stream"] == 3
     assert payload["worst_case_optimum"]["cost"] == pytest.approx(0.134)
