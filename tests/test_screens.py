@@ -244,7 +244,7 @@ def test_stock_check_shows_ids_and_locations_literally(shelf, columns: int) -> N
     path, ids, _, _ = shelf
     result = invoke(["stock", "check", str(path)], columns)
     assert result.exit_code == 0, result.output
-    assert result.output.startswith(f"{path}: valid")
+    assert flat(result.output).startswith(f"{path}: valid")
     assert_literal(result.output, ids, list(ids.values()))
     for location in LOCATIONS:
         assert f" {location} " in result.output

@@ -36,7 +36,7 @@ Root-sum-square
 from __future__ import annotations
 
 from collections.abc import Iterable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -111,6 +111,9 @@ class WorstCase:
     regions_seen: tuple[str, ...]
     non_active_corners: int
     non_active_example: dict[str, dict[str, object]] | None
+    #: region name → how many of the ``n_vertices`` corners are in it (a corner counts as
+    #: saturated or cut off when its ambient or its self-heated solution is)
+    corner_regions: dict[str, int] = field(default_factory=dict)
 
     def to_dict(self) -> dict[str, object]:
         return {q: b.to_dict() for q, b in self.bounds.items()}
@@ -355,9 +358,14 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
     # a corner counts once, whether it leaves the active region at the ambient, self-heated,
     # or both (the self-heated rows repeat the vertices in order)
     n_bad = int(np.unique(bad % n_vertex).size) if n_vertex else int(bad.size)
+    per_corner = region[:n_vertex]
+    if region.size >= 2 * n_vertex:  # the self-heated solutions of the same vertices
+        per_corner = np.where(per_corner != 0, per_corner, region[n_vertex:2 * n_vertex])
+    names_at = region_names(per_corner).tolist()
+    corner_regions = {name: names_at.count(name) for name in sorted(set(names_at))}
     return WorstCase(axes=axes, bounds=bounds, n_vertices=n_vertex, vertex_eval=ev,
                      regions_seen=seen_regions, non_active_corners=n_bad,
-                     non_active_example=example)
+                     non_active_example=example, corner_regions=corner_regions)
 
 
 def rss(spec: StageSpec, quantity: str, rel_step: float = 1e-4) -> tuple[float, float, float]:

@@ -1,19 +1,27 @@
-"""Terminal rendering of a `check` result: failures first, units, corners named."""
+"""Terminal rendering of a `check` result: failures first, units, corners named.
+
+Every table is a list of blocks laid out to the console width (one block per
+constraint, per figure of the stage, per worst-case quantity), so the result reads
+at 80 columns as at 120 and no value, part id or corner entry is ever cut.
+"""
 
 from __future__ import annotations
 
 from rich.console import Console
 from rich.markup import escape
-from rich.table import Table
 
 from ..analysis.check import CheckResult
 from ..analysis.constraints import IC_MARGIN_DEFINITION, ConstraintResult
 from ..inert_text import console_text
 from ..job import Job
 from ..units import format_quantity
+from .blocks import fill, item, print_lines, prose
+from .corners import CORNER_KEY, CORNER_LEGEND, corner_items, corner_text
+from .yield_text import yield_text
 
-__all__ = ["CORNER_LEGEND", "corner_text", "purpose_rows", "render_check", "render_constraints",
-           "render_purpose"]
+__all__ = ["CORNER_LEGEND", "constraint_lines", "corner_lines", "corner_text", "purpose_rows",
+           "region_verdict", "render_check", "render_constraints", "render_purpose",
+           "shown_in_percent"]
 
 _UNITS = {"ic": "A", "ib": "A", "ie": "A", "vb": "V", "vc": "V", "ve": "V", "vce": "V",
           "supply_power": "W", "pd": "W", "tj": "°C", "gain": "", "rin": "ohm"}
@@ -21,7 +29,15 @@ _LABELS = {"ic": "IC", "ib": "IB", "ie": "IE", "vb": "VB", "vc": "VC", "ve": "VE
            "supply_power": "supply power", "pd": "PD (transistor)", "tj": "TJ",
            "gain": "gain (V/V)", "rin": "input resistance"}
 _MODEL_NAMES = {"constant_vbe": "constant-VBE", "exponential": "exponential (Gummel–Poon)"}
-_AXIS_LABELS = {"vcc": "VCC", "vee": "|VEE|", "hfe": "hFE", "vbe": "VBE", "icbo": "ICBO"}
+
+_REGION_WORDS = (("active", "active"), ("saturated", "saturated"), ("cutoff", "cut off"))
+
+#: limits whose worst value must stay at or above the limit (the others: at or below)
+_AT_LEAST = ("ic_min", "vce_min", "swing_saturation", "swing_cutoff", "gain_min", "yield_min",
+             "rin_min", "divider_ratio_min")
+
+#: the indent of a block's second and later lines
+_PAD = "        "
 
 
 def _q(value: float, unit: str) -> str:
@@ -32,50 +48,6 @@ def _q(value: float, unit: str) -> str:
     return format_quantity(value, unit)
 
 
-#: What a corner in the tables means (the drift rule and the rail convention), one line.
-CORNER_LEGEND = (
-    "A corner names each parameter's setting (+ the high end of its range, − the low end, "
-    "~ a value inside) and the value the analysis used there: supplies as set, the negative "
-    "rail by magnitude (|VEE|+ is the largest magnitude); each resistor with its tolerance "
-    "and tempco drift applied (R·(1 ± tol)·(1 + tempco·(T − 25 °C)) at its extreme over the "
-    "ambient range, either sign for an unsigned tempco); β = hFE·(T/298.15 K)^XTB, "
-    "VBE = VBE(25 °C) − 2 mV/°C·(T − 25 °C) (exponential model: the VBE at the hFE test "
-    "current), ICBO doubling every 10 °C, at the device temperature: the ambient, or TJ "
-    "where the junction is self-heated.")
-
-_CORNER_UNITS = {"vcc": "V", "vee": "V", "vbe": "V", "icbo": "A"}
-
-
-def corner_text(corner: dict | None) -> str:
-    """A corner with the values used: ``VCC+ 12.6 V, R1− 9.31 kΩ, hFE+ β 342, 55 °C``.
-
-    The sign after a name is the setting (+ high end, − low end, ~ inside); the value
-    beside it is the one the analysis used at the corner's device temperature
-    (``used``: β(T), VBE(T), ICBO(T); resistors with tolerance and drift).  The
-    negative rail is named by magnitude: ``|VEE|+`` is its largest magnitude.
-    """
-    if not corner:
-        return ""
-    parts = []
-    for axis, item in corner.items():
-        setting, value = item["setting"], float(item["value"])
-        used = float(item.get("used", value))
-        if axis == "junction_c":
-            parts.append(f"TJ {used:.4g} °C self-heated")
-            continue
-        if axis == "ambient_c":
-            parts.append(f"{used:.4g} °C" if setting != "interior" else f"TA~{used:.4g} °C")
-            continue
-        label = _AXIS_LABELS.get(axis, axis)
-        mark = {"max": "+", "min": "−"}.get(setting, "~")
-        if axis == "hfe":
-            parts.append(f"{label}{mark} β {used:.4g}")
-        else:
-            unit = _CORNER_UNITS.get(axis, "ohm")
-            parts.append(f"{label}{mark} {format_quantity(abs(used), unit, digits=4)}")
-    return ", ".join(parts)
-
-
 def shown_in_percent(c: ConstraintResult) -> tuple[float, float, float, str]:
     """A constraint's limit, worst value, margin and unit as the screens show them: the
     yield (a fraction in the result and in JSON) in percent, like every percent key."""
@@ -84,26 +56,66 @@ def shown_in_percent(c: ConstraintResult) -> tuple[float, float, float, str]:
     return c.limit, c.worst, c.margin, c.unit
 
 
+def region_verdict(counts: dict[str, int], n_corners: int) -> str:
+    """Where the transistor is at the corners of the tolerance box, in words.
+
+    ``active at 256 of 256 corners``; ``saturated at 64 of 256 corners, active at 192``
+    (a fault first).
+    """
+    said = [(word, counts[key]) for key, word in _REGION_WORDS if counts.get(key)]
+    said.sort(key=lambda x: x[0] == "active")
+    if not said:
+        return f"{n_corners} corners"
+    (word, k), rest = said[0], said[1:]
+    return ", ".join([f"{word} at {k} of {n_corners} corners",
+                      *(f"{w} at {m}" for w, m in rest)])
+
+
+def corner_lines(corner: dict | None, width: int, indent: str = _PAD,
+                 lead: str = "at ") -> list[str]:
+    """A corner after ``lead``, one parameter per item, wrapped to ``width``."""
+    items = corner_items(corner)
+    if not items:
+        return []
+    items = [f"{x}," for x in items[:-1]] + items[-1:]
+    items[0] = lead + items[0]
+    return fill([item(x) for x in items], width, indent, gap=" ")
+
+
+def constraint_lines(c: ConstraintResult, width: int, regions: dict[str, int] | None = None,
+                     n_corners: int | None = None) -> list[str]:
+    """One constraint as a block of lines of at most ``width`` characters.
+
+    Verdict, name, limit (with ≤ or ≥), worst value and margin; what the limit means;
+    the corner of the worst value.  With ``regions`` and ``n_corners`` the active-region
+    row reads ``active at 256 of 256 corners`` (or where it saturates or cuts off).
+    """
+    mark = ("ok  ", "[green]ok[/green]  ") if c.ok else ("FAIL", "[bold red]FAIL[/bold red]")
+    if c.name == "active_region" and regions and n_corners:
+        text = f"{c.name}: {region_verdict(regions, n_corners)}"
+        lines = fill([(f"{mark[0]}  {text}", f"{mark[1]}  {console_text(text)}")], width, "  ")
+        return lines + ([] if c.ok else corner_lines(c.corner, width, lead="e.g. at "))
+    sign = "≥" if c.name in _AT_LEAST else "≤"
+    lim, wst, mgn, unit = shown_in_percent(c)
+    worst = _q(wst, unit) if wst == wst else "n/a"
+    margin = _q(mgn, unit) if mgn not in (float("inf"), float("-inf")) \
+        else "fails (undefined where not active)"
+    head = [(f"{mark[0]}  {c.name} {sign} {_q(lim, unit)}",
+             f"{mark[1]}  {console_text(c.name)} {sign} {_q(lim, unit)}"),
+            item(f"worst {worst}"), item(f"margin {margin}")]
+    return fill(head, width, "  ", hang=_PAD) + prose(c.description, width, _PAD) \
+        + corner_lines(c.corner, width)
+
+
 def render_constraints(console: Console, constraints: list[ConstraintResult],
-                       title: str = "Constraints (failures first)") -> None:
-    """The pass/fail table of constraints with margins."""
-    table = Table(title=title, title_justify="left")
-    for col in ("", "constraint", "limit", "worst", "margin", "at corner"):
-        table.add_column(col)
-    ordered = sorted(constraints, key=lambda c: (c.ok, c.name))
-    for c in ordered:
-        sign = "≥" if c.name in ("ic_min", "vce_min", "swing_saturation", "swing_cutoff",
-                                 "gain_min", "yield_min", "rin_min",
-                                 "divider_ratio_min") else "≤"
-        mark = "[green]ok[/green]" if c.ok else "[bold red]FAIL[/bold red]"
-        lim, wst, mgn, unit = shown_in_percent(c)
-        limit = f"{sign} {_q(lim, unit)}"
-        worst = _q(wst, unit) if wst == wst else "n/a"
-        margin = _q(mgn, unit) if mgn not in (float("inf"), float("-inf")) \
-            else "fails (undefined where not active)"
-        table.add_row(mark, console_text(f"{c.name}: {c.description}"), limit, worst, margin,
-                      console_text(corner_text(c.corner)))
-    console.print(table)
+                       title: str = "Constraints (failures first)",
+                       regions: dict[str, int] | None = None,
+                       n_corners: int | None = None) -> None:
+    """The constraints, failures first, each a block with its margin and corner."""
+    console.print(f"[bold]{console_text(title)}[/bold]")
+    width = max(console.width, 40)
+    for c in sorted(constraints, key=lambda c: (c.ok, c.name)):
+        print_lines(console, constraint_lines(c, width, regions, n_corners))
 
 
 #: figure → the limits that bound it (constraint names) and the sign each shows
@@ -144,7 +156,7 @@ def purpose_rows(result: CheckResult) -> list[dict[str, str]]:
                 limits.append(f"{sign} {show(c.limit)} {verdict}")
         rows.append({"figure": f.label, "nominal": show(f.nominal), "worst": worst,
                      "limit": ", ".join(limits) or "none set", "unit": f.unit,
-                     "corner": corner_text(f.corner)})
+                     "corner": corner_text(f.corner), "corner_data": f.corner})
     return rows
 
 
@@ -153,16 +165,18 @@ def render_purpose(console: Console, result: CheckResult) -> None:
     p = result.purpose
     if p is None:
         return
-    table = Table(title=f"Stage: what it does (mid-band, {p.conditions}; worst case at the "
-                        "worst corner)", title_justify="left")
-    for col in ("figure", "nominal", "worst case", "limit", "worst corner"):
-        table.add_column(col)
+    width = max(console.width, 40)
+    console.print(f"[bold]Stage: what it does[/bold] (mid-band, {console_text(p.conditions)}; "
+                  "worst case at the worst corner)")
     for r in purpose_rows(result):
         unit = " V/V" if r["unit"] == "V/V" else ""
         nominal = r["nominal"] + (unit if r["nominal"] != "n/a" else "")
         limit = console_text(r["limit"]).replace(" FAIL", " [bold red]FAIL[/bold red]")
-        table.add_row(r["figure"], nominal, r["worst"] + unit, limit, console_text(r["corner"]))
-    console.print(table)
+        items = [(r["figure"], f"[bold]{console_text(r['figure'])}[/bold]"),
+                 item(f"nominal {nominal}"), item(f"worst case {r['worst']}{unit}"),
+                 (f"limit {r['limit']}", f"limit {limit}")]
+        print_lines(console, fill(items, width, "  ", hang=_PAD)
+                    + corner_lines(r["corner_data"], width))
     console.print("  swing = min(VCE − VCE(sat), IC·(RC‖RL)), peak, symmetric; supply current "
                   "= current drawn from the supply (the larger rail current on a split supply)",
                   style="dim")
@@ -170,6 +184,32 @@ def render_purpose(console: Console, result: CheckResult) -> None:
         console.print(escape("  Assumed for gain and input resistance ([small_signal] not "
                              "given): " + ", ".join(p.defaults) + "; set [small_signal] load "
                              "and re_bypassed to state them"))
+
+
+def _worst_case(console: Console, result: CheckResult) -> None:
+    """Each quantity's bounds, its RSS range, and the corner of each bound."""
+    wc = result.worst
+    width = max(console.width, 40)
+    console.print(f"[bold]Worst case over {wc.n_vertices} corners[/bold] (extreme values; "
+                  "maxima of products refined inside the tolerance box)")
+    for q in [*_LABELS, *(f"p_{r}" for r in result.parts)]:
+        b = wc.bounds.get(q)
+        if b is None:
+            continue
+        unit = _UNITS.get(q, "W")
+        rss = result.rss.get(q)
+        items = [(_LABELS.get(q, f"P {q[2:]}"),
+                  f"[bold]{console_text(_LABELS.get(q, f'P {q[2:]}'))}[/bold]"),
+                 item(f"{_q(b.min, unit)} … {_q(b.max, unit)}")]
+        if isinstance(rss, dict):
+            items.append(item(f"RSS {_q(rss['min'], unit)} … {_q(rss['max'], unit)}"))
+        elif q in ("ic", "vce"):
+            items.append(item("RSS n/a"))
+        print_lines(console, fill(items, width, "  ", hang=_PAD)
+                    + corner_lines(b.corner_min, width,
+                                                               lead="min at ")
+                    + corner_lines(b.corner_max, width, lead="max at "))
+    console.print(CORNER_LEGEND, style="dim")
 
 
 def render_check(console: Console, job: Job, result: CheckResult) -> None:
@@ -183,7 +223,7 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
     console.print(f"[bold]Stage '{console_text(result.stage)}'[/bold]: {result.topology}, "
                   f"{t.polarity} {console_text(t.part_id)} (hFE {t.hfe_min:g}–{t.hfe_max:g}), "
                   f"{_MODEL_NAMES.get(result.model, result.model)} model, {supply}, "
-                  f"{env.ambient_min_c:g} to {env.ambient_max_c:g} °C")
+                  f"ambient {env.ambient_min_c:g} to {env.ambient_max_c:g} °C")
     parts = []
     for role, p in result.parts.items():
         ids = [console_text(q.part_id) if q.part_id else "[yellow]NOT IN STOCK[/yellow]"
@@ -205,7 +245,10 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
     else:
         console.print(f"[bold green]PASS[/bold green]: all {n_all} constraints hold at every "
                       "worst-case corner" + flag)
-    render_constraints(console, result.constraints)
+    console.print(CORNER_KEY, style="dim")
+    wc = result.worst
+    render_constraints(console, result.constraints, regions=wc.corner_regions,
+                       n_corners=wc.n_vertices)
     render_purpose(console, result)
 
     console.print(f"IC margin {100 * result.ic_margin:.2f} % of the target "
@@ -215,11 +258,11 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
     region = str(nom["region"])
     beta = "β n/a" if nom.get("beta") is None else \
         f"β {float(nom['beta']):.3g}"  # type: ignore[arg-type]
-    console.print(f"[bold]Nominal Q-point[/bold] ({nom['temperature_c']:g} °C, {beta}, "
+    console.print(f"[bold]Nominal Q-point[/bold] (ambient {nom['temperature_c']:g} °C, {beta}, "
                   f"nominal values and supply): region {region.upper()}")
-    line = "  ".join(f"{_LABELS[k]} {_q(float(nom[k]), _UNITS[k])}"  # type: ignore[arg-type]
-                     for k in ("ic", "ib", "vce", "vb", "vc", "ve", "pd", "supply_power"))
-    console.print("  " + line)
+    items = [item(f"{_LABELS[k]} {_q(float(nom[k]), _UNITS[k])}")  # type: ignore[arg-type]
+             for k in ("ic", "ib", "vce", "vb", "vc", "ve", "pd", "supply_power")]
+    print_lines(console, fill(items, max(console.width, 40), "  "))
     if region == "active":
         console.print(f"  gain {float(nom['gain']):.3g} V/V, input resistance "  # type: ignore[arg-type]
                       f"{_q(float(nom['rin']), 'ohm')}, gm "  # type: ignore[arg-type]
@@ -229,40 +272,19 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
                       "(β, gain, gm, input resistance, RSS spreads, stability factors); the "
                       "voltages and currents above are the real ones.[/yellow]")
 
-    wc = result.worst
-    table = Table(title=f"Worst case over {wc.n_vertices} corners (extreme values; maxima of "
-                        "products refined inside the tolerance box)", title_justify="left")
-    for col in ("quantity", "min", "max", "RSS range", "corner of min", "corner of max"):
-        table.add_column(col)
-    rows = [*_LABELS, *(f"p_{r}" for r in result.parts)]
-    for q in rows:
-        b = wc.bounds.get(q)
-        if b is None:
-            continue
-        unit = _UNITS.get(q, "W")
-        rss = result.rss.get(q)
-        rss_txt = f"{_q(rss['min'], unit)} … {_q(rss['max'], unit)}" \
-            if isinstance(rss, dict) else ("n/a" if q in ("ic", "vce") else "")
-        label = _LABELS.get(q, f"P {q[2:]}")
-        table.add_row(console_text(label), _q(b.min, unit), _q(b.max, unit), rss_txt,
-                      console_text(corner_text(b.corner_min)),
-                      console_text(corner_text(b.corner_max)))
-    console.print(table)
-    console.print(CORNER_LEGEND, style="dim")
+    _worst_case(console, result)
     if wc.non_active_corners:
-        console.print(f"[yellow]{wc.non_active_corners} of {wc.n_vertices} corners are not in "
-                      f"the active region ({', '.join(wc.regions_seen)}); e.g. at "
+        console.print(f"[yellow]{region_verdict(wc.corner_regions, wc.n_vertices)}; e.g. at "
                       f"{console_text(corner_text(wc.non_active_example))}. Gain and input "
                       "resistance are bounded over the active corners only.[/yellow]")
     mc = result.monte_carlo
     if mc is not None:
         y = mc.yield_
         fails = ", ".join(f"{k} {v}" for k, v in mc.failing.items()) or "none"
-        console.print(f"[bold]Monte Carlo[/bold]: {y.samples} boards (seed {mc.seed}), each at "
-                      f"every supply × ambient extreme: yield {100 * y.yield_:.2f} % "
-                      f"(95 % interval {100 * y.low:.2f}–{100 * y.high:.2f} %); failing boards "
-                      f"by constraint: {fails}; IC over boards × corners: median "
-                      f"{_q(mc.ic.percentile(50), 'A')}, 0.135–99.865 % "
+        console.print(f"[bold]Monte Carlo[/bold] (seed {mc.seed}), each board at every "
+                      f"supply × ambient extreme: {yield_text(y.yield_, y.low, y.high, y.samples)}"
+                      f"; failing boards by constraint: {fails}; IC over boards × corners: "
+                      f"median {_q(mc.ic.percentile(50), 'A')}, 0.135–99.865 % "
                       f"{_q(mc.ic.percentile(0.135), 'A')}–{_q(mc.ic.percentile(99.865), 'A')} "
                       f"(from a histogram, ±{_q(mc.ic.resolution, 'A')})")
     st = result.stability
@@ -279,8 +301,9 @@ def render_check(console: Console, job: Job, result: CheckResult) -> None:
         source = "from the stock data" if th["theta_ja_from_data"] else \
             "derived from the PD rating"
         console.print(f"[bold]Thermal[/bold]: θJA {float(th['theta_ja']):.3g} °C/W ({source}); "  # type: ignore[arg-type]
-                      f"at the hottest corner ({float(th['ambient_at_hottest_corner_c']):.3g} °C "  # type: ignore[arg-type]
-                      f"ambient) the self-heated junction settles at "
+                      f"at the hottest corner (ambient "
+                      f"{float(th['ambient_at_hottest_corner_c']):.3g} °C) "  # type: ignore[arg-type]
+                      f"the self-heated junction settles at "
                       f"{float(th['tj_self_heated_c']):.3g} °C; runaway factor ∂PD/∂TJ·θJA = "  # type: ignore[arg-type]
                       f"{float(th['runaway_factor']):.2g} (must stay below 1)")  # type: ignore[arg-type]
     if result.warnings:

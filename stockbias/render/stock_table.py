@@ -125,8 +125,16 @@ def render_stock_summary(console: Console, inv: Inventory, summary: StockSummary
     limit = None if draw else LIST_LIMIT
     delim = ("semicolon-delimited (decimal commas read)" if inv.delimiter == ";"
              else "comma-delimited")
-    console.print(f"[bold]{_text(inv.path)}[/bold]: valid, {summary.counts['resistor']} "
-                  f"resistor lines, {summary.counts['transistor']} transistor lines, {delim}")
+    from .console import keep_together
+
+    said = (f"valid, {summary.counts['resistor']} resistor lines, "
+            f"{summary.counts['transistor']} transistor lines, {delim}")
+    path = f"[bold]{keep_together(_text(inv.path))}[/bold]:"
+    if len(str(inv.path)) + 2 + len(said) <= console.width:
+        console.print(f"{path} {said}")
+    else:  # the file's path on a line of its own, the verdict whole below it
+        console.print(path)
+        console.print(f"  {said}")
     if summary.resistance_min is not None and summary.resistance_max is not None:
         console.print(f"Resistance range: {format_quantity(summary.resistance_min, 'ohm')} to "
                       f"{format_quantity(summary.resistance_max, 'ohm')}")
