@@ -269,7 +269,7 @@ def test_consolidate_table_states_the_rule_and_before_after():
     out = runner.invoke(app, ["consolidate", str(BOARD), "-i", str(DRAWERS),
                               "--keep-purpose", "gain=15,rin=70"], terminal_width=200)
     assert out.exit_code == 0, out.output
-    text = out.stdout
+    text = " ".join(out.stdout.split())  # sentences wrap to the console width
     assert "What each stage does: today → after" in text
     assert ("Each stage keeps its purpose: nominal gain within ±15 %, input resistance ≥ 70 "
             "%, worst-case swing ≥ 90 %, supply current ≤ 125 % of today's") in text

@@ -3,14 +3,16 @@
 from __future__ import annotations
 
 from rich.console import Console
-from rich.table import Table
 
 from ..analysis.constraints import IC_MARGIN_DEFINITION
 from ..inert_text import console_text
 from ..job import Job
 from ..units import format_quantity
+from .blocks import Item, aligned_rows, fill, item, print_lines
+from .corners import CORNER_KEY
+from .purpose_change import purpose_change_lines
 
-__all__ = ["render_board", "render_consolidate"]
+__all__ = ["purpose_lines", "render_board", "render_consolidate"]
 
 _STATUS = {
     "optimal": "[bold green]optimal[/bold green] (proven: no assignment from this stock ranks "
@@ -37,27 +39,8 @@ def _part(p: dict) -> str:
     return f"{format_quantity(p['value_ohm'], 'ohm')} {ids}"
 
 
-def _fill(items: list[tuple[str, str]], width: int, indent: str) -> list[str]:
-    """Items (plain text, the same with markup) three spaces apart in lines of at most
-    ``width`` characters; an item is never split, so a value and its part id stay whole."""
-    lines: list[str] = []
-    line, used = "", 0
-    for plain, shown in items:
-        if line and used + 3 + len(plain) > width:
-            lines.append(line)
-            line, used = "", 0
-        if line:
-            line, used = f"{line}   {shown}", used + 3 + len(plain)
-        else:
-            line, used = f"{indent}{shown}", len(indent) + len(plain)
-    if line:
-        lines.append(line)
-    return lines
-
-
-def _item(text: str, bold: bool = False) -> tuple[str, str]:
-    shown = console_text(text)
-    return text, (f"[bold]{shown}[/bold]" if bold else shown)
+def _item(text: str, bold: bool = False) -> Item:
+    return item(text, "bold" if bold else None)
 
 
 def _stage_blocks(console: Console, title: str, stages: list[dict],
@@ -79,33 +62,39 @@ def _stage_blocks(console: Console, title: str, stages: list[dict],
               _item(f"IC margin {100 * s['ic_margin']:.2f} %")]
         if show_changes:
             dc.append(_item("changed " + (", ".join(s["changed"]) or "none")))
-        for line in (_fill(head, width, "  ") + _fill(parts, width, "    ")
-                     + _fill(dc, width, "    ")):
-            console.print(line, soft_wrap=True, highlight=False)
+        print_lines(console, fill(head, width, "  ") + fill(parts, width, "    ")
+                    + fill(dc, width, "    "))
 
 
-def _bom_table(title: str, bom: list[dict], build: int) -> Table:
-    rows, widths = [], []
+def _bom_lines(title: str, bom: list[dict], build: int, width: int) -> list[str]:
+    """A BOM: one row per stock line in aligned columns, its uses on the line below;
+    as blocks when the columns do not fit ``width`` (part ids and values never cut)."""
+    head = ["line", "value", "tol", "per board", f"for {build}", "in stock", "cost each"]
+    rows: list[list[Item]] = []
     for r in bom:
         value = ("transistor" if r["kind"] == "transistor"
                  else format_quantity(r["value_ohm"], "ohm"))
         tol = "" if r["tolerance_pct"] is None else f"{r['tolerance_pct']:g} %"
         stock = "—" if r["in_stock"] is None else str(r["in_stock"])
-        if r["short"]:
-            stock = f"[red]{stock} (short)[/red]"
-        widths.append([r["part_id"] or "(buy)", value])
-        rows.append([console_text(r["part_id"]) if r["part_id"] else "(buy)", value, tol,
-                     str(r["placements"]), str(r["needed"]), stock, f"{r['unit_cost']:g}",
-                     console_text(", ".join(r["uses"]))])
-    table = Table(title=title, title_justify="left")
-    for i, col in enumerate(("line", "value", "tol", "per board", f"for {build}", "in stock",
-                             "cost each", "where used")):
-        # the part id and the value keep their whole width; other text wraps, never cut
-        widest = max((len(plain[i]) for plain in widths), default=0) if i < 2 else None
-        table.add_column(col, overflow="fold", min_width=widest)
-    for row in rows:
-        table.add_row(*row)
-    return table
+        rows.append([item(r["part_id"] or "(buy)"), item(value), item(tol),
+                     item(str(r["placements"])), item(str(r["needed"])),
+                     item(f"{stock} (short)", "red") if r["short"] else item(stock),
+                     item(f"{r['unit_cost']:g}")])
+    out = [f"[bold]{console_text(title)}[/bold]"]
+    table = aligned_rows(head, rows, width, right=(False, True, True, True, True, True, True))
+    for i, r in enumerate(bom):
+        uses = [f"{u}," for u in r["uses"][:-1]] + list(r["uses"][-1:])
+        if uses:
+            uses[0] = "used in " + uses[0]
+        if table is not None:
+            out.append(table[i + 1])
+        else:
+            labelled = [rows[i][0], rows[i][1]] + [
+                (f"{h} {p}", f"{h} {s}") for h, (p, s) in zip(head[2:], rows[i][2:], strict=True)
+                if p]
+            out += fill(labelled, width, "  ", hang="      ")
+        out += fill([item(u) for u in uses], width, "      ", gap=" ")
+    return out if table is None else [out[0], table[0], *out[1:]]
 
 
 def _totals(t: dict) -> str:
@@ -128,31 +117,22 @@ def _explanation(console: Console, ex: dict | None) -> None:
     if inner.get("message"):
         console.print(console_text(f"Stage '{ex.get('stage')}': binding "
                                    f"{inner.get('binding')}. {inner['message']}"))
+        if inner.get("closest"):
+            console.print(CORNER_KEY, style="dim")
     relax = inner.get("relaxation") or {}
     hint = relax.get("text") or ex.get("suggestion")
     if hint:
         console.print(f"[bold]What would help:[/bold] {console_text(hint)}")
 
 
-def purpose_table(title: str, records: list, show_after: bool = True) -> Table:
+def purpose_lines(title: str, records: list, width: int, show_after: bool = True) -> list[str]:
     """Per stage: each purpose figure today → after, and the limits held from today's."""
-    from ..search.keep_purpose import FIGURE_LABELS, change_text
-
-    table = Table(title=title, title_justify="left")
-    table.add_column("stage", min_width=max((len(h.stage) for h in records), default=0))
-    for label, _unit in FIGURE_LABELS.values():
-        table.add_column(label, overflow="fold")
-    table.add_column("held", overflow="fold")
+    out = [f"[bold]{console_text(title)}[/bold]"]
     for h in records:
-        cells = [console_text(h.stage)]
-        for key, (_label, unit) in FIGURE_LABELS.items():
-            before = h.before.get(key)
-            after = h.after.get(key) if (show_after and h.after) else None
-            cells.append(change_text(before, after, unit) if show_after and h.after
-                         else change_text(before, None, unit).split(" →")[0])
-        cells.append(_held_text(h.limits))
-        table.add_row(*cells)
-    return table
+        after = h.after if (show_after and h.after) else None
+        out += purpose_change_lines(h.stage, h.before, after, width,
+                                    held=_held_text(h.limits))
+    return out
 
 
 def _held_text(limits: dict) -> str:
@@ -195,7 +175,8 @@ def render_board(console: Console, job: Job, result) -> None:
                       False)
     if result.designs:
         best = result.designs[0]
-        console.print(_bom_table("BOM of rank 1", best.bom, job.build.quantity))
+        print_lines(console, _bom_lines("BOM of rank 1", best.bom, job.build.quantity,
+                                        max(console.width, 40)))
         console.print(f"{IC_MARGIN_DEFINITION}, each stage against its own target.")
         console.print("Every stage was re-verified with the same analysis as `stockbias check`.")
         _cautions(console, [s.check for s in best.stages])
@@ -211,7 +192,8 @@ def render_consolidate(console: Console, job: Job, result) -> None:
                   + (f"; kept {console_text(', '.join(result.kept))}" if result.kept else ""))
     _status(console, result.status, result.solve_seconds, result.bound)
     failing = [console_text(n) for n, ok in result.before_ok.items() if not ok]
-    console.print(_bom_table("BOM before", result.before_bom, job.build.quantity))
+    width = max(console.width, 40)
+    print_lines(console, _bom_lines("BOM before", result.before_bom, job.build.quantity, width))
     console.print("Before: " + _totals(result.before)
                   + (f"; [red]fails its targets in {', '.join(failing)}[/red]" if failing
                      else "; every stage meets its targets"))
@@ -222,17 +204,20 @@ def render_consolidate(console: Console, job: Job, result) -> None:
         data = result.after.to_dict()
         _stage_blocks(console, f"After: {result.after.changes} part(s) changed (in bold)",
                       data["stages"], True)
-        console.print(_bom_table("BOM after", result.after.bom, job.build.quantity))
+        print_lines(console, _bom_lines("BOM after", result.after.bom, job.build.quantity,
+                                        width))
         after = bom_totals(result.after.bom)
         saved = result.before["bom_lines"] - after["bom_lines"]
         console.print("After: " + _totals(after) + f" — {saved} BOM line(s) fewer")
         if purpose:
-            console.print(purpose_table("What each stage does: today → after", purpose))
+            print_lines(console, purpose_lines("What each stage does: today → after", purpose,
+                                               width))
         console.print(f"{IC_MARGIN_DEFINITION}, each stage against its own target.")
         console.print("Every stage was re-verified with the same analysis as `stockbias check`.")
         _cautions(console, [s.check for s in result.after.stages])
     elif purpose:
-        console.print(purpose_table("What each stage does today", purpose, show_after=False))
+        print_lines(console, purpose_lines("What each stage does today", purpose, width,
+                                           show_after=False))
     if purpose:
         purpose_notes(console, result.purpose_rule, purpose)
     _explanation(console, result.explanation)

@@ -156,7 +156,7 @@ def purpose_rows(result: CheckResult) -> list[dict[str, str]]:
                 limits.append(f"{sign} {show(c.limit)} {verdict}")
         rows.append({"figure": f.label, "nominal": show(f.nominal), "worst": worst,
                      "limit": ", ".join(limits) or "none set", "unit": f.unit,
-                     "corner": corner_text(f.corner), "corner_data": f.corner})
+                     "corner": corner_text(f.corner)})
     return rows
 
 
@@ -168,7 +168,7 @@ def render_purpose(console: Console, result: CheckResult) -> None:
     width = max(console.width, 40)
     console.print(f"[bold]Stage: what it does[/bold] (mid-band, {console_text(p.conditions)}; "
                   "worst case at the worst corner)")
-    for r in purpose_rows(result):
+    for r, fig in zip(purpose_rows(result), p.figures.values(), strict=True):
         unit = " V/V" if r["unit"] == "V/V" else ""
         nominal = r["nominal"] + (unit if r["nominal"] != "n/a" else "")
         limit = console_text(r["limit"]).replace(" FAIL", " [bold red]FAIL[/bold red]")
@@ -176,7 +176,7 @@ def render_purpose(console: Console, result: CheckResult) -> None:
                  item(f"nominal {nominal}"), item(f"worst case {r['worst']}{unit}"),
                  (f"limit {r['limit']}", f"limit {limit}")]
         print_lines(console, fill(items, width, "  ", hang=_PAD)
-                    + corner_lines(r["corner_data"], width))
+                    + corner_lines(fig.corner, width))
     console.print("  swing = min(VCE − VCE(sat), IC·(RC‖RL)), peak, symmetric; supply current "
                   "= current drawn from the supply (the larger rail current on a split supply)",
                   style="dim")

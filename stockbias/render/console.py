@@ -33,6 +33,7 @@ def keep_together(text: str) -> str:
 _GLUE = re.compile(
     r"(?<=[\d)])[ ](?=(?:[pnµumkMG]?(?:Ω|V/V|V|A|W|Hz|s)|°C|%|ppm|pk)(?![A-Za-z]))"
     r"|(?<=[≤≥±β~])[ ](?=[\d\-−+.])|[ ](?=[≤≥] )"
+    r"|(?<=[A-Za-z0-9|][+−~])[ ](?=[\dβ])"
     r"|(?<=\d)[ ](?=[…–]\s?\d)|(?<=[…–])[ ](?=\d)"
 )
 
@@ -41,7 +42,8 @@ _GLUE = re.compile(
 _PATH = re.compile(r"[^ ]*[/\\][^ ]*")
 
 #: The start of a stockbias command line shown for copying.
-_COMMAND = re.compile(r"(?<![`\w])stockbias (?:demo|stock|check|design|substitute|consolidate|export)\b")
+_COMMAND = re.compile(
+    r"(?<![`\w])stockbias (?:demo|stock|check|design|substitute|consolidate|export)\b")
 
 #: A label this short before a path stays on the path's line ("Report written: /a/b").
 _LABEL_MAX = 24
@@ -67,18 +69,17 @@ def break_points(plain: str, width: int, indent: int) -> list[tuple[int, int]]:
     """
     glued = _glued(plain)
     spans: list[tuple[int, int]] = []
-    start = end = None
+    start, end = -1, -1
     for m in re.finditer(r"[^ ]+", glued):
         room = width if not spans else width - indent
-        if start is None:
-            start, end = (0 if not spans else m.start()), m.end()
-            continue
-        if m.end() - start > room:
+        if start < 0:
+            start, end = 0, m.end()
+        elif m.end() - start > room:
             spans.append((start, end))
             start, end = m.start(), m.end()
         else:
             end = m.end()
-    if start is not None:
+    if start >= 0:
         spans.append((start, end))
     return spans or [(0, 0)]
 
@@ -137,7 +138,7 @@ class WrappingConsole(Console):
         self.quiet = True
         raise BrokenPipeError
 
-    def print(self, *objects: Any, **kwargs: Any) -> None:  # noqa: A003
+    def print(self, *objects: Any, **kwargs: Any) -> None:
         if (kwargs.get("soft_wrap") is not None or not objects
                 or not all(isinstance(o, (str, Text)) for o in objects)
                 or set(kwargs) - {"style", "markup", "highlight", "sep"}):

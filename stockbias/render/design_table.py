@@ -8,6 +8,8 @@ from ..analysis.constraints import IC_MARGIN_DEFINITION
 from ..inert_text import console_text
 from ..job import Job
 from ..units import format_quantity
+from .blocks import fill, print_lines
+from .corners import CORNER_KEY
 
 __all__ = ["design_block", "render_design"]
 
@@ -39,21 +41,6 @@ def _range_text(d: dict) -> str:
             f"{format_quantity(rng['max_ohm'], 'ohm')}, {n} values in stock")
 
 
-def _fill(items: list[str], width: int, indent: str) -> list[str]:
-    """Items joined three spaces apart into lines of at most ``width`` characters; an item
-    is never split (a value with its unit and part id stays whole)."""
-    lines: list[str] = []
-    line = ""
-    for item in items:
-        if line and len(line) + 3 + len(item) > width:
-            lines.append(line)
-            line = ""
-        line = f"{line}   {item}" if line else f"{indent}{item}"
-    if line:
-        lines.append(line)
-    return lines
-
-
 def design_block(d: dict, width: int) -> list[str]:
     """One ranked design as lines of at most ``width`` characters (console-safe text).
 
@@ -78,7 +65,7 @@ def design_block(d: dict, width: int) -> list[str]:
     dc = [f"IC {format_quantity(ic.get('min', 0), 'A')}–{format_quantity(ic.get('max', 0), 'A')}",
           f"VCE ≥ {format_quantity(vce.get('min', 0), 'V')}",
           f"IC margin {100 * d['ic_margin']:.2f} %"]
-    lines = _fill(head, width, "") + _fill(parts, width, "    ") + _fill(dc, width, "    ")
+    lines = fill(head, width, "") + fill(parts, width, "    ") + fill(dc, width, "    ")
     pur = d.get("purpose") or {}
     does = []
     gain = pur.get("gain") or {}
@@ -93,7 +80,7 @@ def design_block(d: dict, width: int) -> list[str]:
             does.append(f"{label} {side} {format_quantity(fig['worst'], unit)}"
                         + (" pk" if key == "swing_pk" else ""))
     if does:
-        lines += _fill(["does:", *does], width, "    ")
+        lines += fill(["does:", *does], width, "    ")
     return [console_text(line) for line in lines]
 
 
@@ -119,8 +106,7 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
         console.print("[bold]Ranked designs[/bold]: each a distinct bias network (the "
                       "transistor and the resistors that set IC)")
         for d in data:
-            for line in design_block(d, console.width):
-                console.print(line, soft_wrap=True, highlight=False)
+            print_lines(console, design_block(d, console.width))
             if show_variants and d.get("free_role"):
                 for v in d["variants"]:
                     if v["representative"]:
@@ -152,6 +138,8 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
         if ex is not None:
             console.print("[bold red]No design.[/bold red] "
                           + console_text(f"Binding: {ex.binding}. {ex.message}"))
+            if ex.closest:
+                console.print(CORNER_KEY, style="dim")
             if ex.closest:
                 parts = ", ".join(f"{r} {format_quantity(p['value_ohm'], 'ohm')}"
                                   for r, p in ex.closest.get("parts", {}).items())

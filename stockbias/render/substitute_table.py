@@ -3,15 +3,19 @@
 from __future__ import annotations
 
 from rich.console import Console
-from rich.table import Table
 
 from ..analysis.constraints import IC_MARGIN_DEFINITION
 from ..inert_text import console_text
 from ..job import Job
 from ..search.substitute import SubstituteResult
 from ..units import format_quantity
+from .blocks import fill, item, print_lines, prose
+from .purpose_change import purpose_change_lines
 
-__all__ = ["render_substitute", "verdict_lines"]
+#: the indent of a block's second and later lines
+_PAD = "     "
+
+__all__ = ["candidate_lines", "render_substitute", "verdict_lines"]
 
 
 def verdict_lines(result: SubstituteResult) -> list[str]:
@@ -36,6 +40,39 @@ def verdict_lines(result: SubstituteResult) -> list[str]:
     return out
 
 
+def candidate_lines(rank: int, c, width: int) -> list[str]:
+    """One stock transistor as a block: rank, part and hFE, verdict, rework, reason."""
+    q = c.transistor
+    head = [item(f"{rank:>2}. {q.part_id} ({q.polarity}, hFE {q.hfe_min:g}–{q.hfe_max:g})")]
+    margin = []
+    if c.check is not None and (c.drop_in or c.changes):
+        margin = [item(f"IC margin {100 * c.check.ic_margin:.2f} %")]
+    fails = ", ".join(x.name for x in c.drop_in_check.failing) if c.drop_in_check else ""
+    rest: list[str] = []
+    if c.ruled_out:
+        head.append(item("ruled out", "red"))
+        rest = prose(c.ruled_out, width, _PAD)
+    elif c.drop_in:
+        head += [item("drop-in", "green"), item("no rework"), *margin]
+        rest = prose("passes every limit as it stands", width, _PAD)
+    elif c.changes:
+        n = len(c.changes)
+        head += [item(f"{n} change{'s' if n > 1 else ''}", "yellow"),
+                 item(f"added cost {c.added_cost:g}/board"), *margin]
+        changes = [f"{role} → {format_quantity(p.value, 'ohm')} ({'+'.join(p.part_ids)})"
+                   for role, p in c.changes.items()]
+        changes = [f"{x}," for x in changes[:-1]] + changes[-1:]
+        changes[0] = "rework: " + changes[0]
+        why = f"as it stands fails {fails}"
+        if not c.proven:
+            why += "; time limit: fewer changes not ruled out"
+        rest = fill([item(x) for x in changes], width, _PAD, gap=" ") + prose(why, width, _PAD)
+    else:
+        head.append(item("no fix", "red"))
+        rest = prose(f"fails {fails}; {c.note}", width, _PAD)
+    return fill(head, width, " ", hang=_PAD) + rest
+
+
 def _purpose(console: Console, result: SubstituteResult) -> None:
     """Today's figures → each fixed transistor's, and the tolerances held."""
     from rich.markup import escape
@@ -45,21 +82,16 @@ def _purpose(console: Console, result: SubstituteResult) -> None:
     held = result.purpose
     if held is None:
         return
-    table = Table(title=f"What the stage does: today ({console_text(result.current.part_id)}, "
-                  "values as "
-                  "they stand) → with each transistor that fits", title_justify="left")
-    table.add_column("transistor")
-    for label, _unit in FIGURE_LABELS.values():
-        table.add_column(label)
-    for c in result.candidates:
-        if not c.fixed or c.check is None:
-            continue
-        after = figures_of(c.check)
-        table.add_row(console_text(c.transistor.part_id),
-                      *(change_text(held.before.get(k), after.get(k), u)
-                        for k, (_l, u) in FIGURE_LABELS.items()))
-    if table.row_count:
-        console.print(table)
+    fitted = [c for c in result.candidates if c.fixed and c.check is not None]
+    width = max(console.width, 40)
+    if fitted:
+        console.print(f"[bold]What the stage does[/bold]: today "
+                      f"({console_text(result.current.part_id)}, values as they stand) → with "
+                      "each transistor that fits")
+        for c in fitted:
+            assert c.check is not None  # fitted holds checked candidates only
+            print_lines(console, purpose_change_lines(c.transistor.part_id, held.before,
+                                                      figures_of(c.check), width))
     else:
         today = ", ".join(f"{label} {change_text(held.before.get(k), None, u).split(' →')[0]}"
                           for k, (label, u) in FIGURE_LABELS.items())
@@ -81,43 +113,10 @@ def render_substitute(console: Console, job: Job, result: SubstituteResult) -> N
                   f"stage '{console_text(result.stage)}' ({result.topology}): {values}; IC "
                   f"{format_quantity(t.ic_min, 'A')}–{format_quantity(t.ic_max, 'A')}, "
                   f"VCE ≥ {format_quantity(t.vce_min, 'V')}, build of {job.build.quantity}")
-    table = Table(title="Stock transistors, best first", title_justify="left")
-    widest_id = max((len(c.transistor.part_id) for c in result.candidates), default=0)
-    for col in ("#", "transistor", "verdict", "least rework from stock", "added cost/board",
-                "IC margin", "why"):
-        # a part id keeps its whole width; other text wraps or folds, never cut with "…"
-        table.add_column(col, overflow="fold",
-                         min_width=widest_id if col == "transistor" else None)
+    console.print("[bold]Stock transistors, best first[/bold]")
+    width = max(console.width, 40)
     for rank, c in enumerate(result.candidates, start=1):
-        q = c.transistor
-        name = console_text(f"{q.part_id} ({q.polarity}, hFE {q.hfe_min:g}–{q.hfe_max:g})")
-        margin = ""
-        if c.check is not None and (c.drop_in or c.changes):
-            margin = f"{100 * c.check.ic_margin:.2f} %"
-        if c.ruled_out:
-            table.add_row(str(rank), name, "[red]ruled out[/red]", "", "", "",
-                          console_text(c.ruled_out))
-        elif c.drop_in:
-            table.add_row(str(rank), name, "[green]drop-in[/green]", "none", "0", margin,
-                          "passes every limit as it stands")
-        elif c.changes:
-            change = console_text(", ".join(f"{role} → {format_quantity(p.value, 'ohm')} "
-                                            f"({'+'.join(p.part_ids)})"
-                                            for role, p in c.changes.items()))
-            fails = ", ".join(x.name for x in c.drop_in_check.failing) \
-                if c.drop_in_check else ""
-            why = f"as it stands fails {fails}"
-            if not c.proven:
-                why += "; time limit: fewer changes not ruled out"
-            table.add_row(str(rank), name, f"[yellow]{len(c.changes)} change"
-                          f"{'s' if len(c.changes) > 1 else ''}[/yellow]", change,
-                          f"{c.added_cost:g}", margin, why)
-        else:
-            fails = ", ".join(x.name for x in c.drop_in_check.failing) \
-                if c.drop_in_check else ""
-            table.add_row(str(rank), name, "[red]no fix[/red]", "", "", "",
-                          console_text(f"fails {fails}; {c.note}"))
-    console.print(table)
+        print_lines(console, candidate_lines(rank, c, width))
     _purpose(console, result)
     console.print(f"{IC_MARGIN_DEFINITION} ({format_quantity(t.ic, 'A')}). Every "
                   "verdict is the full worst-case check (the same as `stockbias check`); a "

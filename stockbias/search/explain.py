@@ -215,10 +215,10 @@ def _miss_text(misses: list[dict[str, object]]) -> str:
         return "the closest design passes the original limits"
     out = []
     for c in misses:
-        corner = c.get("corner") or {}
-        where = ", ".join(f"{k} {v['setting']}" for k, v in corner.items()
-                          if isinstance(v, dict) and v.get("setting") != "interior") \
-            if isinstance(corner, dict) else ""
+        from ..render.corners import corner_text
+
+        corner = c.get("corner")
+        where = corner_text(corner) if isinstance(corner, dict) else ""
         unit = str(c.get("unit", "") or "")
         out.append(f"{c['name']} misses by {_q(abs(float(c['margin'])), unit)} "
                    f"(worst {_q(float(c['worst']), unit)} against {_q(float(c['limit']), unit)}"
