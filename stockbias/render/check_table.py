@@ -45,6 +45,8 @@ def _q(value: float, unit: str) -> str:
         return f"{value:.3g}"
     if unit == "V/V":  # a voltage gain: a plain ratio, no scale prefix
         return f"{value:.3g} V/V"
+    if unit in ("V", "A", "W") and abs(value) < 1e-12:
+        value = 0.0  # rounding residue of a solve (a swing of −4 fV is none)
     return format_quantity(value, unit)
 
 

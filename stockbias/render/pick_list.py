@@ -71,24 +71,32 @@ def write_pick_list(path: str | Path, needs: Sequence[Need]) -> None:
 def render_pick_list(console: Console, needs: Sequence[Need], build_quantity: int,
                      title: str | None = None) -> None:
     """The pick list as a terminal table; short lines in red."""
-    table = Table(title=title or f"Pick list for {build_quantity} board(s), by location",
-                  title_justify="left")
-    for col, justify in (("location", "left"), ("part id", "left"), ("value", "left"),
-                         ("roles", "left"), ("per board", "right"), ("pull", "right"),
-                         ("in stock", "right"), ("left after", "right")):
-        table.add_column(col, justify=justify,  # type: ignore[arg-type]
-                         no_wrap=col in ("location", "part id", "value"))
+    from .blocks import aligned_rows, fill, item, print_lines
+
+    head = ["location", "part id", "value", "roles", "per board", "pull", "in stock",
+            "left after"]
+    rows = []
     for n in pick_order(needs):
         left = "" if n.remaining is None else str(n.remaining)
-        if n.short:
-            left = f"[bold red]{left or 'not in stock'}[/bold red]"
         # location, part id and (for an off-stock value) description are shown, never
         # read as markup or terminal escapes
-        table.add_row(console_text(n.location), console_text(n.part_id) or "-",
-                      console_text(n.description), " ".join(n.roles),
-                      str(n.per_board), str(n.quantity),
-                      "" if n.in_stock is None else str(n.in_stock), left)
-    console.print(table)
+        rows.append([item(n.location), item(n.part_id or "-"), item(n.description),
+                     item(" ".join(n.roles)), item(str(n.per_board)), item(str(n.quantity)),
+                     item("" if n.in_stock is None else str(n.in_stock)),
+                     item(left or "not in stock", "bold red") if n.short else item(left)])
+    width = max(console.width, 40)
+    title = title or f"Pick list for {build_quantity} board(s), by location"
+    console.print(f"[bold]{console_text(title)}[/bold]")
+    lines = aligned_rows(head, rows, width, right=(False,) * 4 + (True,) * 4)
+    if lines is None:  # one block per line of the list: where, what, how many
+        lines = []
+        for r in rows:
+            lines += fill([(f"{r[0][0]}  {r[1][0]}", f"{r[0][1]}  {r[1][1]}"), r[2],
+                           (f"for {r[3][0]}", f"for {r[3][1]}")], width, "  ", hang="      ")
+            lines += fill([(f"{h} {p}", f"{h} {sh}") for h, (p, sh) in zip(head[4:], r[4:],
+                                                                           strict=True) if p],
+                          width, "      ")
+    print_lines(console, lines)
     short = [n for n in needs if n.short]
     if short:
         console.print("[bold red]short[/bold red]: " + "; ".join(
