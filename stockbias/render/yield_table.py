@@ -7,7 +7,8 @@ from rich.console import Console
 
 from ..inert_text import console_text
 from ..job import Job
-from .design_table import _fill, design_block
+from .blocks import fill as _fill
+from .design_table import design_block
 
 __all__ = ["render_yield_design"]
 
