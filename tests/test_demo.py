@@ -23,7 +23,12 @@ runner = CliRunner()
 
 
 def _printed_commands(output: str) -> list[list[str]]:
-    """The stockbias commands the demo prints (Equivalent command, Next, A whole board)."""
+    """The stockbias commands the demo prints (Equivalent command, Next, A whole board).
+
+    A command wider than the terminal is printed on lines of its own joined by shell
+    line continuations (`` \\`` at a line's end); they are read back as one line."""
+    output = re.sub(r" \\\n\s*", " ", output)
+    output = re.sub(r":\n\s+stockbias ", ": stockbias ", output)
     found = re.findall(r"(?:Equivalent command|Next: [^:]*|in spec): (stockbias .*)$", output,
                        flags=re.MULTILINE)
     return [shlex.split(c) for c in found]
