@@ -21,6 +21,7 @@ from ..assign import ResolvedResistor
 from ..inert_text import console_text
 from ..job import Job
 from ..units import format_quantity
+from .yield_text import yield_text
 
 __all__ = ["board_check_payload", "fill_phrases", "limit_sign", "render_board_check"]
 
@@ -134,8 +135,7 @@ def _stage_lines(r: CheckResult, job: Job, width: int) -> list[tuple[str, str]]:
     mc = r.monte_carlo
     if mc is not None:
         y = mc.yield_
-        dc.append(f"Monte Carlo yield {100 * y.yield_:.2f} % of {y.samples} boards "
-                  f"(95 % interval {100 * y.low:.2f}–{100 * y.high:.2f} %)")
+        dc.append(f"Monte Carlo {yield_text(y.yield_, y.low, y.high, y.samples)}")
     lines += [(x, "") for x in fill_phrases(dc, width, "      ", sep=";")]
     for c in sorted(failing, key=lambda c: c.name):
         lines += [(x, "red") for x in fill_phrases(["✗ " + _failure_phrase(c, r)], width,
