@@ -224,7 +224,7 @@ def at_job_currents(inventory, ic_lo: float, ic_hi: float):
     moved = []
     for t in inventory.transistors:
         card = getattr(t, "card", None)
-        if card is None:
+        if card is None or t.device_note:  # no data, or moved already: unchanged
             moved.append(t)
             continue
         s_lo, s_hi, dv_lo, dv_hi = hfe_scale_over(card, t.hfe_test_ic, ic_lo, ic_hi)

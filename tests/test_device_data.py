@@ -112,6 +112,10 @@ def test_bin_moves_along_the_card_to_the_job_window(tmp_path: Path) -> None:
     assert moved.hfe_test_ic == pytest.approx(np.sqrt(30e-3 * 50e-3))
     assert "over IC 30 mA–50 mA" in moved.device_note and "card QA" in moved.device_note
     assert moved.device_note in moved.assumptions()
+    # moving twice changes nothing (a library caller and the command line may both move it)
+    again = at_job_currents(at_job_currents(inv, 30e-3, 50e-3), 30e-3, 50e-3).transistors[0]
+    assert (again.hfe_min, again.hfe_max, again.vbe_min) == (moved.hfe_min, moved.hfe_max,
+                                                              moved.vbe_min)
 
 
 def test_scale_is_one_at_the_test_current() -> None:
