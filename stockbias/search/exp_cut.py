@@ -431,7 +431,7 @@ def exp_free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor, ca
     RC_low from below.  Also returns the largest pinned IC (a lower bound of the design's
     IC at that vertex) for the RC dissipation check.
     """
-    from .prepass import PLANS, corners
+    from .prepass import PLANS, _ends, corners
     from .purpose_bounds import rc_from_conductance
 
     plan = PLANS[network]
@@ -444,57 +444,42 @@ def exp_free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor, ca
     n = idx[plan.interval].size
     h = np.full(n, np.inf)
     ic_top = np.zeros(n)
-    settings: list[dict[str, np.ndarray]] = [{}]
-    for role in plan.enumerated:
-        c = cands[role]
-        lo, hi = c.low[idx[role]], c.high[idx[role]]
-        d = plan.ic_dir[role]
-        settings = [{**s, role: v} for s in settings
-                    for v in ((lo, hi) if d == 0 else ((hi,) if d > 0 else (lo,)))]
-    x_ends = (xc.low[idx[plan.interval]], xc.high[idx[plan.interval]])
+    x_lo, x_hi = xc.low[idx[plan.interval]], xc.high[idx[plan.interval]]
     for vcc in (cn0.vcc_hi, cn0.vcc_lo):
         cn = exp_corner(job, stage, q, network, True, hot, vcc=vcc)
         w = -cn.b if cn.a == 1.0 else 0.0
-        for s in settings:
+        for s in _ends(plan, cands, idx, up=True):
             v_d, r_b, r_x = drive_terms(network, s, cn.vcc, cn.vee)
-            for x in x_ends[:1]:
-                ic, ie, ok = pinned_ic(cn, v_d, r_b, x + r_x)
-                ic = np.where(ok & np.isfinite(ic), ic * (1 - _SLACK), 0.0)
-                ie = np.where(ok & np.isfinite(ie), ie * (1 - _SLACK), 0.0)
-                ic_top = np.maximum(ic_top, ic)
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    if w > 0:
-                        ve = ie * x - cn.vee
-                        h = np.minimum(h, np.where(ic > 0, (cn.vcc - ve - w) / ic, np.inf))
-                    if t.gain_max is not None and not cn.full:
-                        gm_lb, gm_ub, gpi, go = _gain_bounds(cn, ic, np.full(n, t.ic_max))
-                        re = x * unbypassed
-                        num = gm_lb - go * gpi * re
-                        a = 1.0 + (gpi + gm_ub + go) * re
-                        b = go * (1.0 + gpi * re)
-                        g = np.where(num > 0, np.maximum((num / t.gain_max - b) / a, 0.0)
-                                     * (1 - _SLACK), 0.0)
-                        h = np.minimum(h, rc_from_conductance(g, load))
+            ic, ie, ok = pinned_ic(cn, v_d, r_b, x_lo + r_x)
+            ic = np.where(ok & np.isfinite(ic), ic * (1 - _SLACK), 0.0)
+            ie = np.where(ok & np.isfinite(ie), ie * (1 - _SLACK), 0.0)
+            ic_top = np.maximum(ic_top, ic)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                if w > 0:
+                    ve = ie * x_lo - cn.vee
+                    h = np.minimum(h, np.where(ic > 0, (cn.vcc - ve - w) / ic, np.inf))
+                if t.gain_max is not None and not cn.full:
+                    gm_lb, gm_ub, gpi, go = _gain_bounds(cn, ic, np.full(n, t.ic_max))
+                    re = x_lo * unbypassed
+                    num = gm_lb - go * gpi * re
+                    a = 1.0 + (gpi + gm_ub + go) * re
+                    b = go * (1.0 + gpi * re)
+                    g = np.where(num > 0, np.maximum((num / t.gain_max - b) / a, 0.0)
+                                 * (1 - _SLACK), 0.0)
+                    h = np.minimum(h, rc_from_conductance(g, load))
     low_need = np.zeros(n)
     gain_low = t.gain_min is not None and t.gain_min >= 1.0
     if t.swing_pk or gain_low:
         cn = exp_corner(job, stage, q, network, False, cold)
         gain_low = gain_low and not cn.full
-        lo_s: list[dict[str, np.ndarray]] = [{}]
-        for role in plan.enumerated:
-            c = cands[role]
-            lo, hi = c.low[idx[role]], c.high[idx[role]]
-            d = plan.ic_dir[role]
-            lo_s = [{**s, role: v} for s in lo_s
-                    for v in ((lo, hi) if d == 0 else ((lo,) if d > 0 else (hi,)))]
-        for s in lo_s:
+        for s in _ends(plan, cands, idx, up=False):
             v_d, r_b, r_x = drive_terms(network, s, cn.vcc, cn.vee)
-            ic, _ie, ok = pinned_ic(cn, v_d, r_b, x_ends[1] + r_x)
+            ic, _ie, ok = pinned_ic(cn, v_d, r_b, x_hi + r_x)
             ic_ub = np.where(ok & np.isfinite(ic), ic * (1 + _SLACK), np.inf)
             with np.errstate(divide="ignore", invalid="ignore"):
                 if gain_low:
                     _gm_lb, gm_ub, _gpi, _go = _gain_bounds(cn, np.zeros(n), ic_ub)
-                    re = x_ends[1] * unbypassed
+                    re = x_hi * unbypassed
                     g_max = gm_ub / (t.gain_min * (1.0 + gm_ub * re)) * (1 + _SLACK)
                     g_max = np.where(np.isfinite(g_max), g_max, np.inf)
                     low_need = np.maximum(low_need, rc_from_conductance(g_max, load))
