@@ -307,3 +307,25 @@ def test_piped_output_wraps_at_80_without_columns() -> None:
                            env={"TERM": "dumb", "COLUMNS": None})
     assert result.exit_code == 0
     assert max(len(ln) for ln in result.output.splitlines()) <= 80
+
+
+@pytest.mark.parametrize("columns", WIDTHS)
+def test_substitute_rework_block(columns: int) -> None:
+    # tests/data substitute stage: Q-B loses the headroom as it stands and is fixed by one
+    # RC change (tests/test_substitute.py proves that rework least by exhaustive search)
+    data = ROOT / "tests" / "data"
+    args = ["substitute", str(data / "substitute_job.toml"), "-i",
+            str(data / "substitute_shelf.csv"), "-v", "R1=R-47K,R2=R-47K,RC=R-2K7,RE=R-4K7",
+            "-t", "Q-A", "--samples", "0", "--no-keep-purpose"]
+    result = invoke(args, columns)
+    payload = json.loads(invoke([*args, "--json"], columns).stdout)
+    assert result.exit_code == 0, result.output
+    for line in result.output.splitlines():
+        assert len(line) <= columns or _unbreakable(line), line
+    qb = next(c for c in payload["candidates"] if c["part_id"] == "Q-B")
+    change = qb["changes"][0]
+    text = flat(result.output)
+    assert re.search(r"Q-B \(NPN, hFE 150–600\) 1 change added cost [\d.]+/board IC margin "
+                     r"-?[\d.]+ %", text)
+    assert "rework: RC → " in text and f"({change['part_id']})" in text
+    assert "as it stands fails vce_min" in text
