@@ -105,7 +105,12 @@ def test_unstocked_value_is_flagged_on_the_parts_line_json_and_verdict(shelf: Pa
     values = "R1=R47K,R2=R10K,RC=R3K3,RE=1k2"
     text = _check(shelf, values)
     assert text.exit_code in (0, 1), text.output
-    lines = text.stdout.splitlines()
+    lines: list[str] = []  # a line and its indented continuation (lines wrap to the width)
+    for x in text.stdout.splitlines():
+        if x.startswith("  ") and lines:
+            lines[-1] += " " + x.strip()
+        else:
+            lines.append(x)
     parts = next(x for x in lines if x.startswith("Parts:"))
     assert "RE = 1.2 kΩ ±5 % (NOT IN STOCK)" in parts
     verdict = next(x for x in lines if x.startswith(("PASS", "FAIL")))
