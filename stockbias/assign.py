@@ -29,7 +29,7 @@ from dataclasses import dataclass, field
 
 from .analysis.stage import ResistorPiece, ResistorSpec
 from .errors import InputError, NotationError
-from .parts import Inventory, Resistor
+from .parts import Inventory, Resistor, assumed_tempco_ppm
 from .resistor_band import drift_factors, pair_band, pair_rating, pair_tempco, piece_band
 from .units import parse_quantity
 
@@ -93,7 +93,7 @@ class ResolvedResistor:
                 warnings: tuple[str, ...] = (), choice: str = "") -> ResolvedResistor:
         """One role built from one resistor row (``off_stock``: a value not on the shelf)."""
         tol = part.tolerance_pct / 100
-        return cls(role=role, value=part.value_ohm, tol=tol, tempco_ppm=part.tempco_ppm or 0.0,
+        return cls(role=role, value=part.value_ohm, tol=tol, tempco_ppm=part.tempco_used_ppm,
                    rating=part.power_w, parts=() if off_stock else (part,),
                    off_stock=off_stock, warnings=warnings, pieces=(part,),
                    tempco_signed=part.tempco_signed, tol_minus=tol, tol_plus=tol, choice=choice)
@@ -121,7 +121,7 @@ class ResolvedResistor:
 
     def band(self, ambient_min_c: float, ambient_max_c: float) -> tuple[float, float]:
         """Exact (low, high) over tolerance and tempco drift across the ambient range, ohm."""
-        bands = [piece_band(p.value_ohm, p.tolerance_pct / 100, p.tempco_ppm or 0.0,
+        bands = [piece_band(p.value_ohm, p.tolerance_pct / 100, p.tempco_used_ppm,
                             p.tempco_signed, ambient_min_c, ambient_max_c)
                  for p in self._pieces()]
         if self.arrangement == "single" or len(bands) == 1:
@@ -133,10 +133,10 @@ class ResolvedResistor:
     def spec(self, ambient_min_c: float, ambient_max_c: float) -> ResistorSpec:
         """The analysis spec: the exact band, and the pieces Monte Carlo draws."""
         lo, hi = self.band(ambient_min_c, ambient_max_c)
-        pieces = tuple(ResistorPiece(p.value_ohm, p.tolerance_pct / 100, p.tempco_ppm or 0.0,
+        pieces = tuple(ResistorPiece(p.value_ohm, p.tolerance_pct / 100, p.tempco_used_ppm,
                                      p.tempco_signed) for p in self._pieces())
         drift = max((abs(f - 1.0) for p in self._pieces() for f in drift_factors(
-            p.tempco_ppm or 0.0, p.tempco_signed, ambient_min_c, ambient_max_c)), default=0.0)
+            p.tempco_used_ppm, p.tempco_signed, ambient_min_c, ambient_max_c)), default=0.0)
         return ResistorSpec(self.value, self.tol, float(drift), band=(lo, hi), pieces=pieces,
                             arrangement=self.arrangement)
 
@@ -159,18 +159,41 @@ class ResolvedResistor:
                 "in_stock": self.in_stock, "choice": self.choice or None}
 
 
-def tempco_assumption(parts: object) -> str:
-    """The sentence saying how the resistor tempcos were taken (``parts``: role → resolved)."""
+def tempco_assumption(parts: object) -> list[str]:
+    """How the resistor tempcos were taken, one sentence each (``parts``: role → resolved).
+
+    A stated coefficient is used with its sign (or as either sign when bare); a part whose
+    stock row gives none takes :func:`stockbias.parts.assumed_tempco_ppm` for its tolerance,
+    named here with the parts it applies to.
+    """
+    from .units import format_quantity
+
     items = list(parts.values()) if isinstance(parts, dict) else list(parts)  # type: ignore
-    pieces = [p for r in items for p in r._pieces() if p.tempco_ppm]
-    signed = [p for p in pieces if p.tempco_signed]
-    if pieces and len(signed) == len(pieces):
-        return ("resistor tempco taken with its stated sign: R(T) = R·(1 + tc·(T − 25 °C)) "
-                "over the ambient range")
-    if signed:
-        return ("resistor tempco: a signed coefficient with its sign, a bare magnitude or ± as "
-                "either sign, over the ambient range")
-    return "resistor tempco taken as ± its magnitude over the ambient range"
+    pieces = [p for r in items for p in r._pieces()]
+    stated = [p for p in pieces if not p.tempco_assumed and p.tempco_ppm]
+    signed = [p for p in stated if p.tempco_signed]
+    out = []
+    if stated and len(signed) == len(stated):
+        out.append("resistor tempco taken with its stated sign: R(T) = R·(1 + tc·(T − 25 °C)) "
+                   "over the ambient range")
+    elif signed:
+        out.append("resistor tempco: a signed coefficient with its sign, a bare magnitude or ± "
+                   "as either sign, over the ambient range")
+    elif stated:
+        out.append("resistor tempco taken as ± its magnitude over the ambient range")
+    missing: dict[tuple[float, str], list[str]] = {}
+    for p in pieces:
+        if p.tempco_assumed:
+            ppm, why = assumed_tempco_ppm(p.tolerance_pct)
+            name = p.part_id or f"{format_quantity(p.value_ohm, 'ohm')} (not in stock)"
+            names = missing.setdefault((ppm, why), [])
+            if name not in names:
+                names.append(name)
+    for (ppm, why), names in missing.items():
+        out.append(f"no tempco given for {', '.join(names)}: taken as ±{ppm:g} ppm/°C, either "
+                   f"sign ({why}; common practice); set tempco_ppm in the stock file to use "
+                   "the real figure")
+    return out
 
 
 def parse_assignments(text: str | list[str], source: str = "--values") -> dict[str, str]:
@@ -326,12 +349,12 @@ def pair_of(role: str, a: Resistor, b: Resistor, arrangement: str, off: bool = F
     nominal, low, high = pair_bounds(a, b, arrangement)
     rating = float(pair_rating(
         a.power_w, b.power_w,
-        (a.value_ohm, a.tolerance_pct / 100, a.tempco_ppm or 0.0, a.tempco_signed),
-        (b.value_ohm, b.tolerance_pct / 100, b.tempco_ppm or 0.0, b.tempco_signed),
+        (a.value_ohm, a.tolerance_pct / 100, a.tempco_used_ppm, a.tempco_signed),
+        (b.value_ohm, b.tolerance_pct / 100, b.tempco_used_ppm, b.tempco_signed),
         series, *ambient))
     signed = a.tempco_signed and b.tempco_signed
-    tca = (a.tempco_ppm or 0.0) if signed else abs(a.tempco_ppm or 0.0)
-    tcb = (b.tempco_ppm or 0.0) if signed else abs(b.tempco_ppm or 0.0)
+    tca = a.tempco_used_ppm if signed else abs(a.tempco_used_ppm)
+    tcb = b.tempco_used_ppm if signed else abs(b.tempco_used_ppm)
     tempco = float(pair_tempco(a.value_ohm, b.value_ohm, tca, tcb, series))
     t_minus, t_plus = 1 - low / nominal, high / nominal - 1
     parts = tuple(p for p in (a, b) if p.part_id)

@@ -19,11 +19,13 @@ if TYPE_CHECKING:
     from .device_data import DeviceCard
 
 __all__ = [
+    "ASSUMED_TEMPCO_PPM",
     "MODEL_CARD_FIELDS",
     "TRANSISTOR_DEFAULTS",
     "Inventory",
     "Resistor",
     "Transistor",
+    "assumed_tempco_ppm",
     "id_key",
 ]
 
@@ -51,6 +53,38 @@ TRANSISTOR_DEFAULTS: dict[str, tuple[float | None, str]] = {
 
 #: Optional fields used only by the exponential (Gummel-Poon) model.
 MODEL_CARD_FIELDS = frozenset({"is_a", "br", "nf", "nr", "vaf_v", "xti", "eg_ev"})
+
+#: Resistor tempco taken where the stock row gives none, by tolerance class:
+#: (largest tolerance of the class in percent, magnitude in ppm/°C taken as either sign,
+#: why).  The widest typical drift of the technologies parts of that tolerance are made in
+#: (typical ranges, common practice): metal film ±15…±100 and thin film ±25…±100 ppm/°C
+#: for 1 % and better; carbon film −250…−1000 and thick film ±100…±300 ppm/°C for wider
+#: tolerances.  Taken as either sign because the technology is not known.
+ASSUMED_TEMPCO_PPM: tuple[tuple[float, float, str], ...] = (
+    (1.0, 100.0, "1 % or better: metal or thin film, ±15 to ±100 ppm/°C typical"),
+    (math.inf, 1000.0, "wider than 1 %: carbon film reaches −1000 ppm/°C, thick film "
+                       "±300 ppm/°C"),
+)
+
+
+def assumed_tempco_ppm(tolerance_pct: float) -> tuple[float, str]:
+    """The tempco magnitude taken for a resistor whose row gives none, and why.
+
+    Parameters
+    ----------
+    tolerance_pct : float
+        The part's tolerance, percent.
+
+    Returns
+    -------
+    (float, str)
+        Magnitude in ppm/°C (either sign, worst case either way) and the reason in words
+        (see :data:`ASSUMED_TEMPCO_PPM`).
+    """
+    for upper, ppm, why in ASSUMED_TEMPCO_PPM:
+        if tolerance_pct <= upper:
+            return ppm, why
+    raise AssertionError("the last tolerance class is unbounded")  # pragma: no cover
 
 
 @dataclass(frozen=True)
@@ -119,6 +153,19 @@ class Resistor:
             sign = "−" if self.tempco_ppm < 0 else "+"
             return f"{sign}{abs(self.tempco_ppm):g} ppm/°C"
         return f"±{self.tempco_ppm:g} ppm/°C"
+
+    @property
+    def tempco_assumed(self) -> bool:
+        """True when the row gives no tempco and :func:`assumed_tempco_ppm` is taken."""
+        return self.tempco_ppm is None
+
+    @property
+    def tempco_used_ppm(self) -> float:
+        """The coefficient the analysis uses, ppm/°C: the row's (signed when
+        ``tempco_signed``, else a magnitude), or the assumed magnitude where it gives none."""
+        if self.tempco_ppm is None:
+            return assumed_tempco_ppm(self.tolerance_pct)[0]
+        return self.tempco_ppm
 
     @property
     def is_link(self) -> bool:

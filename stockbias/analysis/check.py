@@ -29,7 +29,8 @@ from .thermal import self_heated_point
 from .worst_case import REPORTED, WorstCase, point_at_unit, rss, worst_case
 
 __all__ = ["CheckResult", "analyze", "analyze_stage", "build_spec", "check_roles",
-           "not_active_reason"]
+           "collect_assumptions", "not_active_reason", "small_signal_assumption",
+           "stage_assumptions"]
 
 NOMINAL_KEYS = ("ic", "ib", "ie", "vb", "vc", "ve", "vce", "supply_power", "pd",
                 "supply_current")
@@ -266,7 +267,7 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
             if math.isnan(worst) or (v < worst if lim.kind == "min" else v > worst):
                 worst, corner = v, wc.non_active_example
         results.append(ConstraintResult(lim.name, _scalar(lim.limit), worst, m, m >= 0,
-                                        lim.unit, lim.description, corner))
+                                        lim.unit, lim.description, corner, lim.kind))
     mc = None
     yield_limit = stage.target.yield_min
     if samples > 0:
@@ -280,7 +281,8 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
             y = mc.yield_.yield_
             results.append(ConstraintResult("yield_min", yield_limit, y, y - yield_limit,
                                             y >= yield_limit, "",
-                                            "Monte Carlo yield at least the target"))
+                                            "Monte Carlo yield at least the target",
+                                            kind="min"))
     elif yield_limit is not None:
         raise InputError("the job sets yield_min, so the check needs Monte Carlo samples "
                          "(--samples more than 0)", column="--samples", text=str(samples))
@@ -300,24 +302,59 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
         warnings.append(f"IC ({ic_nom * 1e3:.3g} mA) is more than a decade from the current the "
                         f"hFE range is specified at ({transistor.hfe_test_ic * 1e3:.3g} mA): "
                         "hFE falls off at low and high currents")
-    assumptions = transistor.assumptions()
-    if job.search.model == "constant_vbe":
-        assumptions = [a for a in assumptions if "Gummel" not in a and not a.startswith(
-            ("BR ", "NF ", "NR ", "XTI ", "EG ", "no IS", "no VAF"))]
-    assumptions.append("VBE falls 2 mV/°C at constant IC (common practice)")
-    if transistor.icbo_a > 0:
-        assumptions.append("ICBO doubles every 10 °C (common practice)")
-    if not thermal.get("theta_ja_from_data"):
-        assumptions.append(f"θJA {thermal['theta_ja']:.3g} °C/W derived from the PD rating "
-                           "(linear derating to TJ max)")
-    assumptions.append(tempco_assumption(parts))
+    purpose = stage_purpose(job, nominal, wc)
+    assumptions = stage_assumptions(job, transistor, parts, thermal, purpose)
     return CheckResult(
         stage=stage.name, topology=network.name, model=job.search.model,
         transistor=transistor, parts=dict(parts), nominal=nominal, worst=wc, rss=rss_out,
         monte_carlo=mc, constraints=results, stability=_stability(spec, region),
         thermal=thermal, assumptions=assumptions, warnings=warnings,
         cautions=cautions(job, results, thermal), axes=wc.axes, ic_target=stage.target.ic,
-        purpose=stage_purpose(job, nominal, wc))
+        purpose=purpose)
+
+
+def stage_assumptions(job: Job, transistor: Transistor,
+                      parts: Mapping[str, ResolvedResistor], thermal: Mapping[str, object],
+                      purpose: Purpose | None) -> list[str]:
+    """Everything the analysis of one stage assumed, in words (check, JSON and report).
+
+    Only what the chosen device model uses: the constant-VBE model states its VBE
+    tempco and none of the Gummel–Poon parameters; the exponential model states the
+    Gummel–Poon defaults it filled and no VBE tempco (its VBE follows IS(T)).
+    """
+    from ..parts import MODEL_CARD_FIELDS, TRANSISTOR_DEFAULTS
+
+    exponential = job.search.model == "exponential"
+    # θJA: said below with the figure derived from the PD rating
+    out = [why for name, (_value, why) in TRANSISTOR_DEFAULTS.items()
+           if name in transistor.assumed and name != "theta_ja"
+           and (exponential or name not in MODEL_CARD_FIELDS)]
+    if not exponential:
+        out.append(f"VBE falls {-device.VBE_TEMPCO_DEFAULT * 1e3:g} mV/°C at constant IC "
+                   "(common practice)")
+    if transistor.icbo_a > 0:
+        out.append("ICBO doubles every 10 °C (common practice)")
+    if not thermal.get("theta_ja_from_data"):
+        out.append(f"θJA {thermal['theta_ja']:.3g} °C/W derived from the PD rating "
+                   "(linear derating to TJ max)")
+    out += tempco_assumption(parts)
+    taken = small_signal_assumption(job)
+    if purpose is not None and taken:
+        out.append(taken)
+    return out
+
+
+def small_signal_assumption(job: Job) -> str:
+    """The sentence naming the small-signal conditions taken by default ("" when the job
+    states both ``re_bypassed`` and ``load`` in ``[small_signal]``)."""
+    stated = job.small_signal.stated
+    words = {"re_bypassed": "RE taken as bypassed", "load": "no load"}
+    keys = [k for k in words if k not in stated]
+    if not keys:
+        return ""
+    where = ("small_signal not given in the job" if not stated
+             else f"small_signal in the job gives no {' or '.join(keys)}")
+    return f"gain and input resistance with {', '.join(words[k] for k in keys)} ({where})"
 
 
 def cautions(job: Job, results: list[ConstraintResult], thermal: dict[str, object]) -> list[str]:
@@ -359,6 +396,15 @@ def check_roles(topology: str, values: Mapping[str, str]) -> None:
     if missing:
         raise InputError(f"{topology} needs a value for {', '.join(missing)}",
                          column="--values", text=",".join(f"{k}={v}" for k, v in values.items()))
+
+
+def collect_assumptions(checks: object) -> list[str]:
+    """The assumptions of several checks (an iterable of :class:`CheckResult`), each once,
+    in the order first met."""
+    seen: list[str] = []
+    for c in checks:  # type: ignore[attr-defined]
+        seen += [a for a in c.assumptions if a not in seen]
+    return seen
 
 
 def analyze(job: Job, values: Mapping[str, str], transistor: str,

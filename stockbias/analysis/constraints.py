@@ -91,6 +91,12 @@ class ConstraintResult:
     unit: str
     description: str
     corner: dict | None = None
+    kind: str = ""  # "min": worst ≥ limit passes; "max": worst ≤ limit passes (Limit.kind)
+
+    @property
+    def sign(self) -> str:
+        """The limit's comparison as shown beside it: ``≥`` or ``≤``."""
+        return "≥" if self.kind == "min" else "≤"
 
     def to_dict(self) -> dict[str, object]:
         return {"name": self.name, "limit": self.limit, "worst": self.worst,

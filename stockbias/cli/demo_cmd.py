@@ -48,7 +48,7 @@ def demo(
     console.print(console_text(f"Equivalent command: stockbias design {job_arg} "
                                f"--inventory {shelf_arg}"))
     result = design(job, inv)
-    result.assumptions[:0] = assumed
+    result.assumptions[:0] = [a for a in assumed if a not in result.assumptions]
     render_design(console, job, result)
     if result.designs:
         from ..render.check_table import purpose_rows

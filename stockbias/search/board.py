@@ -27,7 +27,7 @@ from typing import Any
 
 import numpy as np
 
-from ..analysis.check import CheckResult, analyze_stage
+from ..analysis.check import CheckResult, analyze_stage, collect_assumptions
 from ..analysis.constraints import ic_margin
 from ..assign import ResolvedResistor
 from ..job import Job, Stage, stage_key_error
@@ -478,7 +478,8 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
                                 "excluded_transistors": excluded}
     result = BoardResult(status=status, solve_seconds=time.monotonic() - t0,
                          objectives=objectives, designs=designs, bound=bound, stats=stats,
-                         assumptions=notes + _board_notes(job))
+                         assumptions=notes + _board_notes(job)
+                         + collect_assumptions(s.check for d in designs for s in d.stages))
     if rstats.get("prepass_cut"):
         result.assumptions.append(str(rstats["prepass_cut"]))
     if not designs:

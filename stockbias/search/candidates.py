@@ -177,7 +177,7 @@ def build_shelf(job: Job, inventory: Inventory, *, pairs: bool | None = None,
     n = len(lines)
     v = np.array([r.value_ohm for r in lines], dtype=float)
     t = np.array([r.tolerance_pct / 100 for r in lines], dtype=float)
-    tcs = np.array([r.tempco_ppm or 0.0 for r in lines], dtype=float)  # signed where stated
+    tcs = np.array([r.tempco_used_ppm for r in lines], dtype=float)  # signed where stated
     sgn = np.array([r.tempco_signed for r in lines], dtype=bool)
     tc = np.abs(tcs)
     rating = np.array([r.power_w for r in lines], dtype=float)

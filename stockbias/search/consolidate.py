@@ -32,7 +32,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from ..analysis.check import analyze_stage
+from ..analysis.check import analyze_stage, collect_assumptions
 from ..assign import ResolvedResistor
 from ..errors import InputError
 from ..job import OBJECTIVES, Job
@@ -292,7 +292,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
         before_bom=before_bom, before=bom_totals(before_bom), before_ok=before_ok, after=after,
         bound=bound, kept=[f"{r}@{s}" for s, r in sorted(keep)],
         assumptions=[*notes, "transistors stay as they are; stock is shared across stages "
-                     "(uses × build quantity within each line's quantity)"],
+                     "(uses × build quantity within each line's quantity)",
+                     *collect_assumptions(s.check for s in (after.stages if after else []))],
         stats={"options_per_stage": {s.name: sum(g.size for g in s.options) for s in setups},
                **rstats, "resistor_lines": len(shelf.lines), "solver_steps": bm.step_seconds},
         purpose=held, purpose_rule=_purpose_rule(original, keep_purpose, purpose))

@@ -28,6 +28,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 
+from ..analysis.check import small_signal_assumption
 from ..job import Job
 from ..units import format_quantity
 
@@ -54,12 +55,10 @@ def with_design_defaults(job: Job) -> tuple[Job, list[str]]:
         with the stage name on a board).
     """
     stages, notes = [], []
-    taken = [k for k in ("re_bypassed", "load") if k not in job.small_signal.stated]
+    taken = small_signal_assumption(job)
     if taken and any(s.target.gain_min is not None or s.target.gain_max is not None
                      or s.target.rin_min is not None for s in job.stages):
-        words = {"re_bypassed": "RE taken as bypassed", "load": "no load"}
-        notes.append("gain and input resistance with " + ", ".join(words[k] for k in taken)
-                     + " (small_signal not given in the job)")
+        notes.append(taken)
     for stage in job.stages:
         t, lim = stage.target, stage.limits
         who = f"stage '{stage.name}': " if job.is_board else ""

@@ -56,7 +56,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..analysis.check import CheckResult, analyze_stage
+from ..analysis.check import CheckResult, analyze_stage, collect_assumptions
 from ..job import Job
 from ..parts import Inventory
 from .alternatives import design_variants, network_key, rank_networks
@@ -706,14 +706,7 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
 
 
 def _assumptions(job: Job, designs: list[Design]) -> list[str]:
-    out = []
-    if designs:
-        seen: list[str] = []
-        for d in designs:
-            for a in d.check.assumptions:
-                if a not in seen:
-                    seen.append(a)
-        out += seen
+    out = collect_assumptions(d.check for d in designs)
     if job.stage.target.yield_min is not None:
         out.append("the search requires every worst-case corner to pass, which implies the "
                    "yield target; designs that meet the yield only statistically are not "

@@ -220,7 +220,7 @@ class _Screen:
                 rows = cand[role]
                 r_lo, r_hi = piece_band([r.value_ohm for r in rows],
                                         [r.tolerance_pct / 100 for r in rows],
-                                        [r.tempco_ppm or 0.0 for r in rows],
+                                        [r.tempco_used_ppm for r in rows],
                                         [r.tempco_signed for r in rows], *self.ambient)
                 table = np.stack([r_lo, r_hi], axis=1)
                 self.tables[role] = table
