@@ -7,6 +7,7 @@ import sys
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
+import numpy as np
 import pytest
 from typer.testing import CliRunner
 
@@ -17,6 +18,7 @@ from stockbias.job import load_job
 from stockbias.render.plots import (
     design_margin_figure,
     ic_histogram_figure,
+    qpoint_figure,
     write_check_plots,
     write_design_plots,
 )
@@ -106,16 +108,88 @@ def test_importing_the_package_does_not_import_matplotlib() -> None:
     assert out.stdout.strip() == "False"
 
 
+def _label_boxes(fig) -> dict[str, object]:
+    renderer = fig.canvas.get_renderer()
+    return {t.get_text(): t.get_window_extent(renderer) for t in fig.axes[0].texts}
+
+
 def test_design_plot_labels_tied_designs_once() -> None:
-    """Designs at the same cost and margin share one label; equal costs are staggered."""
+    """Designs at the same cost and margin share one label; no two labels overlap."""
     def d(rank: int, cost: float, margin: float) -> dict:
         return {"rank": rank, "cost": cost, "topology": "divider", "ic_margin": margin}
     fig = design_margin_figure([d(1, 0.1, 0.02), d(2, 0.1, 0.02), d(3, 0.1, 0.05),
                                 d(4, 0.2, 0.02)])
-    texts = [t for t in fig.axes[0].texts]
-    assert sorted(t.get_text() for t in texts) == ["#1, #2", "#3", "#4"]
-    offsets = {t.get_text(): t.xyann[1] for t in texts}
-    assert offsets["#1, #2"] != offsets["#3"]           # same cost: staggered
+    boxes = _label_boxes(fig)
+    assert sorted(boxes) == ["#1, #2", "#3", "#4"]
+    names = sorted(boxes)
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            assert not boxes[a].overlaps(boxes[b]), (a, b)
+
+
+@pytest.mark.parametrize("margins", [
+    (0.020, 0.0201, 0.0202, 0.0203),   # four designs at one cost, margins 0.01 % apart
+    (0.050, 0.050, 0.0501, 0.0499),    # two exact ties and two near ones
+])
+def test_design_plot_labels_of_near_ties_do_not_stack(margins) -> None:
+    """Equal costs with nearly equal margins: the labels are moved apart until no two
+    overlap (measured on the laid-out figure), and each still names its ranks."""
+    designs = [{"rank": i + 1, "cost": 0.12, "topology": "divider", "ic_margin": m}
+               for i, m in enumerate(margins)]
+    fig = design_margin_figure(designs)
+    boxes = _label_boxes(fig)
+    shown = sorted(r for text in boxes for r in text.split(", "))
+    assert shown == [f"#{i + 1}" for i in range(len(margins))]  # every rank once
+    names = list(boxes)
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            assert not boxes[a].overlaps(boxes[b]), (a, b)
+    assert len({round(b.y0, 3) for b in boxes.values()}) == len(boxes)  # distinct heights
+
+
+def test_histogram_legend_covers_no_bar(result) -> None:
+    """The legend sits where no bar is: its box meets neither the tallest bar nor the
+    histogram's outline anywhere, measured on the rendered figure."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.patches import StepPatch
+    from matplotlib.transforms import Bbox
+
+    fig = ic_histogram_figure(result, load_job(JOB))
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()
+    renderer = canvas.get_renderer()
+    ax = fig.axes[0]
+    steps = [p for p in ax.patches if isinstance(p, StepPatch)]
+    assert len(steps) == 1, "the histogram is drawn"
+    data = steps[0].get_data()
+    counts, edges = np.asarray(data.values), np.asarray(data.edges)
+    i = int(np.argmax(counts))
+    tallest = Bbox(ax.transData.transform([(edges[i], 0.0), (edges[i + 1], counts[i])]))
+    legends = [*fig.legends, *([ax.get_legend()] if ax.get_legend() else [])]
+    assert len(legends) == 1
+    legend_box = legends[0].get_window_extent(renderer)
+    assert not legend_box.overlaps(tallest)
+    assert not legend_box.overlaps(steps[0].get_window_extent(renderer))
+    texts = [t.get_text() for t in legends[0].get_texts()]
+    assert any("target window" in t for t in texts)
+    assert any(t.startswith("worst-case min") for t in texts)
+
+
+def test_load_lines_at_the_supply_extremes_differ(result) -> None:
+    """Nominal, low and high supply load lines: three styles, one legend entry each."""
+    fig = qpoint_figure(result, load_job(JOB))
+    lines = {ln.get_label(): ln for ln in fig.axes[0].get_lines()
+             if ln.get_label().startswith("DC load line")}
+    by_name = {name: next(ln for lbl, ln in lines.items() if f", {name} supply" in lbl)
+               for name in ("nominal", "low", "high")}
+    styles = {name: ln.get_linestyle() for name, ln in by_name.items()}
+    assert len(set(styles.values())) == 3, styles
+    # 12 V ±5 %: the low line starts at 11.4 V, the high at 12.6 V on the VCE axis (job file)
+    assert by_name["low"].get_xdata()[1] == pytest.approx(11.4)
+    assert by_name["high"].get_xdata()[1] == pytest.approx(12.6)
+    entries = [t.get_text() for t in fig.legends[0].get_texts()]
+    for name in ("nominal", "low", "high"):
+        assert sum(f", {name} supply" in e for e in entries) == 1
 
 
 def test_design_plot_margin_is_percent_of_target() -> None:

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import io
 import math
+import textwrap
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
@@ -130,8 +131,10 @@ def qpoint_figure(result: CheckResult, job: Job) -> Any:
             ax.axvline(tgt.vce_min, color="0.3", ls=":", lw=1.2,
                        label=f"VCE headroom {tgt.vce_min:g} V")
         if r_dc > 0:
+            # one dash style per supply: solid nominal, dashed low, dash-dot high (the dotted
+            # style is the VCE headroom line)
             for v_s, style, name in ((nominal, "-", "nominal"), (lo, "--", "low"),
-                                     (hi, "--", "high")):
+                                     (hi, "-.", "high")):
                 if name != "nominal" and lo == hi:
                     continue
                 ax.plot([0, v_s], [v_s / r_dc * 1e3, 0], color="black", ls=style, lw=1.0,
@@ -197,7 +200,8 @@ def ic_histogram_figure(result: CheckResult, job: Job) -> Any:
                      f"yield over all constraints {100 * y.yield_:.2f} % "
                      f"(95 % interval {100 * y.low:.2f}–{100 * y.high:.2f} %)")
         ax.grid(True, axis="y", color="0.9", lw=0.6)
-        ax.legend(loc="upper right", framealpha=0.9)
+        # below the axes: a legend inside would cover bars wherever the peaks fall
+        fig.legend(loc="outside lower center", ncols=2, frameon=False)
     return fig
 
 
@@ -235,24 +239,58 @@ def design_margin_figure(designs: Sequence[Mapping[str, Any]], title: str = "") 
             ax.scatter([p[2] * 100 for p in sel], [p[1] for p in sel], s=40,
                        marker=markers.get(topo, "o"), facecolor="white", edgecolor="black",
                        lw=1.1, label=topo or "design", zorder=3)
-        # designs at the same point share one label; labels of equal-cost designs are
-        # staggered so that tied costs stay readable
-        spots: dict[tuple[float, float], list[int]] = {}
-        for rank, cost, margin, _ in points:
-            spots.setdefault((round(cost, 9), round(margin * 100, 6)), []).append(rank)
-        per_cost: dict[float, int] = {}
-        for (cost, margin_pct), ranks in sorted(spots.items(), key=lambda kv: kv[1][0]):
-            k = per_cost.get(cost, 0)
-            per_cost[cost] = k + 1
-            ax.annotate(", ".join(f"#{r}" for r in ranks), (margin_pct, cost),
-                        textcoords="offset points", xytext=(5, 4 + 10 * k), fontsize=8)
         ax.axvline(0, color="#b0413e", ls="--", lw=1, label="zero margin (window edge)")
-        ax.set_xlabel(f"worst-case IC margin (% of the target)\n{IC_MARGIN_DEFINITION}")
+        ax.set_xlabel("worst-case IC margin (% of the target)\n"
+                      + textwrap.fill(IC_MARGIN_DEFINITION, 90), fontsize=9)
+        ax.margins(x=0.08, y=0.12)  # room for the rank labels inside the axes
         ax.set_ylabel("cost per board (stock-file currency)")
         ax.set_title(title or f"Cost against worst-case IC margin, top {len(points)} designs")
         ax.grid(True, color="0.9", lw=0.6)
         ax.legend(loc="best", framealpha=0.9)
+        _label_designs(fig, ax, points)
     return fig
+
+
+def _label_designs(fig: Any, ax: Any, points: list[tuple[int, float, float, str]]) -> None:
+    """Rank labels beside the points, never on top of each other.
+
+    Designs whose markers overlap on the figure (the same cost and margin, or margins a
+    hair apart) share one label (``#1, #3``).  Each label starts up and to the right of its
+    point (to the left where it would leave the axes); where it would overlap a label
+    already placed, it moves up one line at a time until it is clear.  Positions are
+    measured on the laid-out figure.
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    if not isinstance(fig.canvas, FigureCanvasAgg):
+        FigureCanvasAgg(fig)
+    fig.draw_without_rendering()  # fix the layout before measuring the labels
+    renderer = fig.canvas.get_renderer()
+    near = fig.dpi * 7 / 72  # one marker's width (s=40 is about 6.3 points across), pixels
+    groups: list[tuple[np.ndarray, float, float, list[int]]] = []
+    for rank, cost, margin, _ in sorted(points):
+        xy = ax.transData.transform((margin * 100, cost))
+        for anchor, _c, _m, ranks in groups:
+            if float(np.hypot(*(xy - anchor))) <= near:
+                ranks.append(rank)
+                break
+        else:
+            groups.append((xy, cost, margin * 100, [rank]))
+    frame = ax.get_window_extent(renderer)
+    placed: list[Any] = []
+    for _xy, cost, margin_pct, ranks in groups:
+        note = ax.annotate(", ".join(f"#{r}" for r in ranks), (margin_pct, cost),
+                           textcoords="offset points", xytext=(5, 4), fontsize=8)
+        note.set_in_layout(False)
+        if note.get_window_extent(renderer).x1 > frame.x1:  # keep it inside the axes
+            note.set_horizontalalignment("right")
+            note.xyann = (-5, 4)
+        for _ in range(60):
+            box = note.get_window_extent(renderer)
+            if not any(box.overlaps(other) for other in placed):
+                break
+            note.xyann = (note.xyann[0], note.xyann[1] + 10.0)
+        placed.append(note.get_window_extent(renderer))
 
 
 def figure_bytes(fig: Any, fmt: str = "png") -> bytes:
