@@ -110,22 +110,11 @@ def consolidate(
 def _stage_report(outs: OutputSet, board_file: Path, job, inv, result) -> None:
     """The HTML report of a consolidation, staged in ``outs``."""
     from ..render.report import render_report
-    from ..search.board import bom_totals
 
-    notes = [f"Status: {result.status}",
-             f"Before: {result.before['bom_lines']} BOM lines, "
-             f"{result.before['distinct_values']} values"]
-    checks = []
-    if result.after is not None:
-        after = bom_totals(result.after.bom)
-        notes.append(f"After: {after['bom_lines']} BOM lines, {after['distinct_values']} "
-                     f"values, {result.after.changes} part(s) changed")
-        for s in result.after.stages:
-            changed = ", ".join(s.changed) or "unchanged"
-            checks.append((f"Stage {s.name} ({changed})", s.check))
-    elif result.explanation:
-        notes.append(f"Explanation: {result.explanation.get('reason')}")
+    checks = [] if result.after is None else [
+        (f"Stage {s.name} after ({', '.join(s.changed) or 'unchanged'})", s.check)
+        for s in result.after.stages]
     with outs.writing("--report") as tmp:
         render_report(tmp, title=f"Consolidation of {board_file.name}", job=job,
-                      inventory=inv, checks=checks, notes=notes,
+                      inventory=inv, checks=checks, consolidation=result,
                       command="stockbias consolidate " + " ".join(sys.argv[2:]))

@@ -76,7 +76,7 @@ def design(
         with search_progress(json_out, "searching the shelf") as progress:
             result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress,
                                 verify_variants=variants)
-        result.assumptions[:0] = assumed
+        result.assumptions[:0] = [a for a in assumed if a not in result.assumptions]
         payload = result.to_dict()
         payload["job"] = str(job_file)
         payload["inventory"] = str(inventory)
@@ -136,6 +136,7 @@ def _stage_outputs(outs: OutputSet, job_file: Path, job, inv, result, payload,
         with outs.writing("--report") as tmp:
             render_report(tmp, title=f"Designs for {job_file.name}", job=job, inventory=inv,
                           checks=checks, designs=designs, notes=notes,
+                          assumptions=result.assumptions,
                           command="stockbias design " + " ".join(sys.argv[2:]))
 
 
@@ -160,4 +161,5 @@ def _board_outputs(outs: OutputSet, job_file: Path, job, inv, result, payload,
         with outs.writing("--report") as tmp:
             render_report(tmp, title=f"Board design for {job_file.name}", job=job,
                           inventory=inv, checks=checks, notes=notes,
+                          assumptions=result.assumptions,
                           command="stockbias design " + " ".join(sys.argv[2:]))

@@ -100,7 +100,6 @@ def substitute(
                      keep_purpose=tolerances, purpose=not no_keep_purpose)
         if report is not None:
             from ..render.report import render_report
-            from ..render.substitute_table import verdict_lines
 
             checks = [(f"{c.transistor.part_id}: "
                        + ("drop-in" if c.drop_in else "with the least rework"), c.check)
@@ -108,7 +107,7 @@ def substitute(
             with outs.writing("--report") as tmp:
                 render_report(tmp, title=f"Substitutes for {transistor} in stage "
                               f"'{result.stage}'", job=job, inventory=inv, checks=checks,
-                              notes=verdict_lines(result),
+                              substitution=result,
                               command="stockbias substitute " + " ".join(sys.argv[2:]))
         rows, notes = [], []
         if changes or schematic:  # the first-ranked other transistor that works

@@ -10,9 +10,7 @@ designs and their own checks).
 
 from __future__ import annotations
 
-import base64
 import dataclasses
-import html
 import math
 from collections.abc import Mapping, Sequence
 from datetime import datetime
@@ -20,14 +18,19 @@ from pathlib import Path
 from typing import Any
 
 from ..analysis.check import CheckResult
-from ..analysis.constraints import IC_MARGIN_DEFINITION
+from ..analysis.constraints import IC_MARGIN_DEFINITION, ConstraintResult
 from ..errors import InputError
 from ..job import Job
 from ..parts import Inventory
 from ..units import format_quantity
 from .check_table import CORNER_LEGEND, corner_text, shown_in_percent
+from .html_blocks import bullet_list as _list
+from .html_blocks import esc as _e
+from .html_blocks import figure as _figure
+from .html_blocks import quantity as _q
+from .html_blocks import table as _table
 
-__all__ = ["CAUTION_FOOTER", "render_report", "render_report_html"]
+__all__ = ["CAUTION_FOOTER", "constraint_cells", "render_report", "render_report_html"]
 
 CAUTION_FOOTER = ("The cautions above are reminders, not a safety review: follow local "
                   "electrical codes and licensed practice wherever power, heat or mains "
@@ -42,7 +45,7 @@ table { border-collapse: collapse; margin: 0.4em 0 1em; }
 th, td { border: 1px solid #bbb; padding: 2px 6px; text-align: left; vertical-align: top; }
 th { background: #eee; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
-.fail { color: #a00; font-weight: bold; } .ok { color: #060; }
+.fail { color: #a00; font-weight: bold; } .ok { color: #060; } .nw { white-space: nowrap; }
 .badge { display: inline-block; padding: 1px 8px; border: 2px solid; font-weight: bold; }
 .caution { border-left: 4px solid #c80; padding: 0.2em 0.6em; background: #fff7e6; }
 .small { color: #555; font-size: 9pt; } img { max-width: 100%; height: auto; }
@@ -67,45 +70,6 @@ def _version() -> str:
         return "(version unknown)"
 
 
-def _e(value: object) -> str:
-    return html.escape(str(value), quote=True)
-
-
-def _q(value: object, unit: str) -> str:
-    if value is None or isinstance(value, bool) or not isinstance(value, (int, float)):
-        return "n/a" if value is None else str(value)
-    if unit in ("", "corners"):
-        return f"{float(value):.4g}"
-    if unit == "V/V":  # a voltage gain: a plain ratio, no scale prefix
-        return f"{float(value):.4g} V/V"
-    return format_quantity(float(value), unit, digits=4)
-
-
-def _table(header: Sequence[str], rows: Sequence[Sequence[str]],
-           numeric: Sequence[int] = ()) -> str:
-    """An HTML table; cells are already escaped HTML."""
-    head = "".join(f"<th>{_e(h)}</th>" for h in header)
-    body = []
-    for row in rows:
-        cells = "".join(f'<td class="num">{c}</td>' if i in numeric else f"<td>{c}</td>"
-                        for i, c in enumerate(row))
-        body.append(f"<tr>{cells}</tr>")
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
-
-
-def _list(items: Sequence[str], cls: str = "") -> str:
-    if not items:
-        return "<p class=\"small\">none</p>"
-    attr = f' class="{cls}"' if cls else ""
-    return "<ul>" + "".join(f"<li{attr}>{_e(i)}</li>" for i in items) + "</ul>"
-
-
-def _figure(png: bytes, caption: str) -> str:
-    data = base64.b64encode(png).decode("ascii")
-    return (f'<figure><img alt="{_e(caption)}" src="data:image/png;base64,{data}">'
-            f"<figcaption>{_e(caption)}</figcaption></figure>")
-
-
 def _value_text(value: object) -> str:
     if isinstance(value, float):
         return "none" if math.isinf(value) else f"{value:.6g}"
@@ -116,7 +80,8 @@ def _value_text(value: object) -> str:
 
 _SETTING_UNITS = {"volts": "V", "negative_volts": "V", "load": "ohm", "ic_min": "A",
                   "ic_max": "A", "vce_min": "V", "swing_pk": "V", "supply_power_max": "W",
-                  "time_limit_s": "s", "rin_min": "ohm", "supply_current_max": "A"}
+                  "time_limit_s": "s", "rin_min": "ohm", "supply_current_max": "A",
+                  "ic_set": "A"}
 
 
 def _setting(key: str, value: object) -> str:
@@ -129,19 +94,33 @@ def _setting(key: str, value: object) -> str:
 
 
 def _job_section(job: Job) -> str:
+    """The job as read, compactly: the shared settings that are set, then one row per stage
+    with the targets and limits any stage sets (empty cells: not set)."""
     rows = []
     for section in ("supply", "environment", "small_signal", "build", "search"):
         for key, value in dataclasses.asdict(getattr(job, section)).items():
+            if value is None or key == "stated":
+                continue
             rows.append([_e(f"[{section}] {key}"), _e(_setting(key, value))])
-    for stage in job.stages:
-        for part in ("target", "limits"):
-            for key, value in dataclasses.asdict(getattr(stage, part)).items():
-                rows.append([_e(f"stage '{stage.name}' {part}.{key}"),
-                             _e(_setting(key, value))])
-        rows.append([_e(f"stage '{stage.name}' topology"), _e(stage.topology)])
-    return (f"<h2>Job</h2><p>File <code>{_e(job.path)}</code>, {len(job.stages)} stage(s). "
-            "Settings as read (°C and percent where the key says so):</p>"
-            + _table(["setting", "value"], rows))
+    columns: list[tuple[str, str]] = []
+    for part in ("target", "limits"):
+        for key in dataclasses.asdict(getattr(job.stages[0], part)):
+            if any(getattr(getattr(st, part), key) is not None for st in job.stages):
+                columns.append((part, key))
+    stage_rows = []
+    for st in job.stages:
+        cells = [_e(st.name), _e(st.topology), _e(st.transistor or "")]
+        for part, key in columns:
+            value = getattr(getattr(st, part), key)
+            cells.append("" if value is None else _e(_setting(key, value)))
+        cells.append(_e(", ".join(f"{r}={v}" for r, v in st.values.items())))
+        stage_rows.append(cells)
+    header = ["stage", "topology", "transistor", *(key for _p, key in columns), "values"]
+    return (f"<h2>Job as read</h2><p>File <code>{_e(job.path)}</code>, {len(job.stages)} "
+            "stage(s). Settings that are set (°C and percent where the key says so; "
+            "limits.tj_max empty: each transistor's own):</p>"
+            + _table(["setting", "value"], rows)
+            + _table(header, stage_rows))
 
 
 def _stock_section(inv: Inventory) -> str:
@@ -207,6 +186,25 @@ def _designs_section(designs: Sequence[Mapping[str, Any]]) -> str:
     return html_out
 
 
+def constraint_cells(c: ConstraintResult, r: CheckResult) -> tuple[str, str, str]:
+    """A constraint's limit (with ≥ or ≤, as the terminal shows it), worst value and margin
+    as plain text; the active-region row in words (corners counted), not as numbers."""
+    if c.name == "active_region":
+        n, bad = r.worst.n_vertices, r.worst.non_active_corners
+        if bad:
+            seen = " or ".join(x.replace("cutoff", "cut off") for x in r.worst.regions_seen
+                               if x != "active") or "not active"
+            worst = (f"{seen} at {bad} of {n} corners" if bad <= n else
+                     f"{seen} at {bad} of the corners and boundary points checked")
+        else:
+            worst = f"active at {n} of {n} corners"
+        return "active at every corner", worst, "" if c.ok else f"{bad} corner(s) outside"
+    lim, wst, mgn, unit = shown_in_percent(c)   # the yield in percent, like the screens
+    worst = _q(wst, unit) if wst == wst else "n/a"
+    margin = _q(mgn, unit) if math.isfinite(mgn) else "fails (undefined where not active)"
+    return f"{c.sign} {_q(lim, unit)}", worst, margin
+
+
 def _purpose_section(r: CheckResult) -> str:
     """The Stage block: gain, input resistance, swing and supply current, nominal and worst."""
     from .check_table import purpose_rows
@@ -220,15 +218,12 @@ def _purpose_section(r: CheckResult) -> str:
             " FAIL", ' <span class="fail">FAIL</span>')
         rows.append([_e(row["figure"]), _e(row["nominal"] + unit), _e(row["worst"] + unit),
                      limit, _e(row["corner"])])
-    defaults = r.purpose.defaults
-    note = ("<p class=\"small\">Assumed for gain and input resistance ([small_signal] not "
-            f"given): {_e(', '.join(defaults))}.</p>" if defaults else "")
     return (f"<h3>Stage: what it does (mid-band, {_e(r.purpose.conditions)})</h3>"
             + _table(["figure", "nominal", "worst case", "limit", "worst corner"], rows,
                      numeric=(1, 2))
             + "<p class=\"small\">swing = min(VCE − VCE(sat), IC·(RC‖RL)), peak, symmetric; "
               "supply current = current drawn from the supply (the larger rail current on a "
-              "split supply).</p>" + note)
+              "split supply).</p>")
 
 
 def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
@@ -275,10 +270,8 @@ def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
     rows = []
     for c in sorted(r.constraints, key=lambda c: (c.ok, c.name)):
         mark = '<span class="ok">ok</span>' if c.ok else '<span class="fail">FAIL</span>'
-        lim, wst, mgn, unit = shown_in_percent(c)
-        margin = _q(mgn, unit) if math.isfinite(mgn) else "fails (undefined where not active)"
-        rows.append([mark, _e(c.name), _e(c.description), _e(_q(lim, unit)),
-                     _e(_q(wst, unit) if wst == wst else "n/a"), _e(margin),
+        limit, worst, margin = constraint_cells(c, r)
+        rows.append([mark, _e(c.name), _e(c.description), _e(limit), _e(worst), _e(margin),
                      _e(corner_text(c.corner))])
     out.append("<h3>Constraints at the worst corner (failures first)</h3>" + _table(
         ["", "constraint", "what", "limit", "worst", "margin", "at corner"], rows,
@@ -333,7 +326,8 @@ def render_report_html(*, title: str, job: Job | None = None,
                        checks: Sequence[tuple[str, CheckResult]] = (),
                        designs: Sequence[Mapping[str, Any]] | None = None,
                        notes: Sequence[str] = (), command: str = "", plots: bool = True,
-                       generated: datetime | None = None) -> str:
+                       generated: datetime | None = None, consolidation: Any = None,
+                       substitution: Any = None, assumptions: Sequence[str] = ()) -> str:
     """The report as one HTML document (see :func:`render_report`)."""
     when = (generated or datetime.now()).strftime("%Y-%m-%d %H:%M")
     body = [f"<h1>{_e(title)}</h1>",
@@ -346,17 +340,29 @@ def render_report_html(*, title: str, job: Job | None = None,
         body.append("<h2>Cautions</h2>" + _list(cautions, "caution"))
     if notes:
         body.append("<h2>Notes</h2>" + _list(list(notes)))
-    if job is not None:
-        body.append(_job_section(job))
-    if inventory is not None:
-        body.append(_stock_section(inventory))
+    if consolidation is not None:
+        from .report_changes import consolidation_section
+
+        if job is None:
+            raise ValueError("a consolidation report needs the job")
+        body.append(consolidation_section(consolidation, job.build.quantity))
+    if substitution is not None:
+        from .report_changes import substitution_section
+
+        body.append(substitution_section(substitution))
     if designs is not None:
         body.append(_designs_section(designs) if designs else
                     "<h2>Ranked designs</h2><p class=\"fail\">No design meets the job.</p>")
+    if assumptions:
+        body.append("<h3>Assumptions of the search</h3>" + _list(list(assumptions)))
     for heading, r in checks:
         if job is None:
             raise ValueError("a report with checks needs the job")
         body.append(_check_section(heading, job, r, plots))
+    if job is not None:
+        body.append(_job_section(job))
+    if inventory is not None:
+        body.append(_stock_section(inventory))
     body.append(f"<hr><p class=\"small\">{_e(CAUTION_FOOTER)}</p>")
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
             f"<title>{_e(title)}</title><style>{_CSS}</style></head><body>"
@@ -367,7 +373,9 @@ def render_report(path: str | Path, *, title: str, job: Job | None = None,
                   inventory: Inventory | None = None,
                   checks: Sequence[tuple[str, CheckResult]] = (),
                   designs: Sequence[Mapping[str, Any]] | None = None,
-                  notes: Sequence[str] = (), command: str = "", plots: bool = True) -> Path:
+                  notes: Sequence[str] = (), command: str = "", plots: bool = True,
+                  consolidation: Any = None, substitution: Any = None,
+                  assumptions: Sequence[str] = ()) -> Path:
     """Write the HTML report.
 
     Parameters
@@ -392,6 +400,14 @@ def render_report(path: str | Path, *, title: str, job: Job | None = None,
         The command line that made the report.
     plots : bool
         Embed the plots of each check.
+    consolidation : ConsolidateResult, optional
+        A consolidation: the BOM before and after, the changes per stage and each
+        stage's purpose today → after (:mod:`stockbias.render.report_changes`).
+    substitution : SubstituteResult, optional
+        A substitution: every stock transistor's verdict, its rework and the stage's
+        purpose with it.
+    assumptions : sequence of str
+        What a search assumed (its defaults and its checks' assumptions, each once).
 
     Returns
     -------
@@ -399,7 +415,9 @@ def render_report(path: str | Path, *, title: str, job: Job | None = None,
         The file written.
     """
     text = render_report_html(title=title, job=job, inventory=inventory, checks=checks,
-                              designs=designs, notes=notes, command=command, plots=plots)
+                              designs=designs, notes=notes, command=command, plots=plots,
+                              consolidation=consolidation, substitution=substitution,
+                              assumptions=assumptions)
     path = Path(path)
     try:
         path.write_text(text, encoding="utf-8")
