@@ -217,6 +217,6 @@ def test_consolidate_report(tmp_path: Path) -> None:
     assert result.exit_code == 0, result.output
     html = out.read_text()
     assert "Consolidation of distribution_amp_board.toml" in html
-    assert "Before: 14 BOM lines, 11 values" in html          # counted from the board file
+    assert "Before: 14 BOM lines (11 resistor lines, 11 values)" in html  # the board file
     for name in ("input", "gain", "split", "line_out"):
         assert f"Stage {name}" in html
