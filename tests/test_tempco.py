@@ -120,11 +120,13 @@ def test_band_over_the_ambient_range_hand_calculation(shelf: Path) -> None:
 
 
 def _stage_parts(re_tempco: float | None, signed: bool):
-    """Divider: R1 47 k, R2 10 k, RC 3.3 k (1 %, no tempco), RE 1 k ±5 % with the tempco."""
+    """Divider: R1 47 k, R2 10 k, RC 3.3 k (1 %, tempco stated as 0, so that only RE
+    drifts; a row without a tempco would take the assumed ±100 ppm/°C), RE 1 k ±5 % with
+    the tempco."""
     rows = (
-        Resistor("R1", 47e3, 1.0, 0.25, qty=10, line=2),
-        Resistor("R2", 10e3, 1.0, 0.25, qty=10, line=3),
-        Resistor("RC", 3.3e3, 1.0, 0.25, qty=10, line=4),
+        Resistor("R1", 47e3, 1.0, 0.25, tempco_ppm=0.0, qty=10, line=2),
+        Resistor("R2", 10e3, 1.0, 0.25, tempco_ppm=0.0, qty=10, line=3),
+        Resistor("RC", 3.3e3, 1.0, 0.25, tempco_ppm=0.0, qty=10, line=4),
         Resistor("RE", 1e3, 5.0, 0.25, tempco_ppm=re_tempco, tempco_signed=signed, qty=10,
                  line=5),
     )
@@ -198,10 +200,12 @@ def test_the_sign_moves_the_bound_the_right_way() -> None:
 
 def _mc_ic_at(tc: float, signed: bool, samples: int = 4000) -> np.ndarray:
     """Monte Carlo IC of boards whose only spread is RE's tempco: tolerances near zero,
-    one hFE, one VBE, T-free device; returns IC (boards × environment corners)."""
+    the other tempcos stated as 0, one hFE, one VBE, T-free device; returns IC (boards ×
+    environment corners)."""
     rows = (
-        Resistor("R1", 47e3, 1e-6, 0.25), Resistor("R2", 10e3, 1e-6, 0.25),
-        Resistor("RC", 3.3e3, 1e-6, 0.25),
+        Resistor("R1", 47e3, 1e-6, 0.25, tempco_ppm=0.0),
+        Resistor("R2", 10e3, 1e-6, 0.25, tempco_ppm=0.0),
+        Resistor("RC", 3.3e3, 1e-6, 0.25, tempco_ppm=0.0),
         Resistor("RE", 1e3, 1e-6, 0.25, tempco_ppm=tc, tempco_signed=signed),
     )
     q = Transistor("Q", "NPN", 200, 200, 40, 0.2, 0.5, vbe_min=0.65, vbe_max=0.65)
