@@ -10,6 +10,14 @@ corners), evaluated with the analysis engine and the same limits, then sorted by
 objectives; it is run only where it finishes in reasonable time, otherwise its time is
 extrapolated from a measured slice (marked "est.").
 
+Fresh process: each case is also run once as ``python -m stockbias design JOB --inventory
+STOCK --json`` in a new process (the shelf and job written as files); its wall clock and
+CPU time include start-up, reading the files and rendering.  The machine is shared, so CPU
+time is given beside wall time.
+
+Sample job: the bundled line-driver job on the bundled E96 reels, pairs off and on, in
+fresh processes, with the ratio of the two (goal: pairs within 3× of no pairs).
+
 Shelves: E12 … E96 over 10 Ω … 1 MΩ (stockbias.eseries.series_values), 5000 pieces per
 line, seeded unit costs; transistors are generated small-signal rows (NPN and PNP).
 Job: one divider stage, 12 V ±5 %, IC 1.5 mA ±12 %, VCE ≥ 3 V, 0…55 °C, build of 10.
@@ -21,6 +29,7 @@ import argparse
 import itertools
 import json
 import os
+import resource
 import subprocess
 import sys
 import tempfile
@@ -76,6 +85,57 @@ def shelf(series: str, n_q: int, lo: float = 10.0, hi: float = 1e6, seed: int = 
                              qty=500, unit_cost=float(rng.choice([0.02, 0.03, 0.05])),
                              line=1000 + j))
     return Inventory(f"<{series}>", rs, tuple(qs))
+
+
+STOCK_HEADER = ("kind,part_id,value,tolerance_pct,power_w,tempco_ppm,qty,unit_cost,polarity,"
+                "hfe_min,hfe_max,vceo_max,ic_max,pd_max_w,vbe_min,vbe_max")
+SAMPLES = Path(__file__).resolve().parent.parent / "inventory_samples"
+
+
+def write_stock(inv: Inventory, path: Path) -> None:
+    """The generated shelf as a stock file (the columns ``stock check`` reads)."""
+    lines = [STOCK_HEADER]
+    for r in inv.resistors:
+        lines.append(f"resistor,{r.part_id},{r.value_ohm:.17g},{r.tolerance_pct:g},"
+                     f"{r.power_w:g},{r.tempco_ppm:g},{r.qty},{r.unit_cost:g},,,,,,,,")
+    for q in inv.transistors:
+        lines.append(f"transistor,{q.part_id},,,,,{q.qty},{q.unit_cost:g},{q.polarity},"
+                     f"{q.hfe_min:g},{q.hfe_max:g},{q.vceo_max:g},{q.ic_max:g},{q.pd_max_w:g},"
+                     f"{q.vbe_min:g},{q.vbe_max:g}")
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+def fresh(job_file: Path, stock: Path) -> tuple[float, float, dict]:
+    """``stockbias design`` in a new process: (wall s, CPU s, the JSON result)."""
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
+    t0 = time.perf_counter()
+    out = subprocess.run([sys.executable, "-m", "stockbias", "design", str(job_file),
+                          "--inventory", str(stock), "--json"], capture_output=True, text=True,
+                         check=False)
+    wall = time.perf_counter() - t0
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+    return wall, cpu, json.loads(out.stdout)
+
+
+def sample_job_rows(folder: Path) -> list[str]:
+    """The bundled line-driver job on the bundled E96 reels, pairs off and on."""
+    text = (SAMPLES / "line_driver_job.toml").read_text(encoding="utf-8")
+    stock = SAMPLES / "stockroom_e96_reels.csv"
+    out, walls = [], {}
+    for pairs in ("false", "true"):
+        job_file = folder / f"line_driver_pairs_{pairs}.toml"
+        job_file.write_text(text.replace("allow_pairs = false", f"allow_pairs = {pairs}"),
+                            encoding="utf-8")
+        wall, cpu, res = fresh(job_file, stock)
+        walls[pairs] = (wall, cpu, res["solve_seconds"])
+        out.append(f"| line-driver job, E96 reels | {'on' if pairs == 'true' else 'off'} | "
+                   f"{res['status']} | {res['solve_seconds']:.2f} | {wall:.2f} ({cpu:.2f}) | "
+                   f"{len(res['designs'])} |")
+    w0, w1 = walls["false"], walls["true"]
+    out.append(f"| ratio pairs on / off | | | {w1[2] / w0[2]:.1f}× | "
+               f"{w1[0] / w0[0]:.1f}× ({w1[1] / w0[1]:.1f}×) | |")
+    return out
 
 
 def naive(job, inv: Inventory, budget_s: float) -> tuple[float, bool]:
@@ -229,17 +289,25 @@ def main() -> None:
     # warm-up: the first search in a process pays the imports (OR-Tools, SciPy), which are
     # not solve time; then each case is timed three times and the median is reported
     design(parse_job(JOB.format(pairs="false")), shelf("E12", 1))
+    tmp = Path(tempfile.mkdtemp(prefix="bench_search_"))
     for series, n_q, pairs in cases[:0] if args.baseline_only else cases:
         inv = shelf(series, n_q)
-        job = parse_job(JOB.format(pairs="true" if pairs else "false"))
+        text = JOB.format(pairs="true" if pairs else "false")
+        job = parse_job(text)
         times = []
         for _ in range(3):
             t0 = time.perf_counter()
             r = design(job, inv)
             times.append(time.perf_counter() - t0)
         el = sorted(times)[1]
+        stock, job_file = tmp / f"{series}_{n_q}.csv", tmp / f"{series}_{n_q}_{pairs}.toml"
+        write_stock(inv, stock)
+        job_file.write_text(text, encoding="utf-8")
+        wall, cpu, res = fresh(job_file, stock)
+        assert res["status"] == r.status, (res["status"], r.status)
         rows.append((series, len(inv.resistors), n_q, "on" if pairs else "off", el, r.status,
-                     r.stats.get("rows", 0), r.stats.get("designs_vertex_checked", 0), None))
+                     r.stats.get("rows", 0), r.stats.get("designs_vertex_checked", 0), None,
+                     (wall, cpu)))
         print(rows[-1], flush=True)
     # the baseline: 12 lines (E12 1k-8k2), 24 lines (E12 100R-8k2), 1 and 20 transistors
     for lo, n_q in ((1e3, 1), (100.0, 1), (100.0, 20)):
@@ -249,18 +317,29 @@ def main() -> None:
         r = design(job, inv)
         el = time.perf_counter() - t0
         base, finished = naive(job, inv, budget_s=60 if not args.quick else 10)
+        stock, job_file = tmp / f"E12_{lo:g}_{n_q}.csv", tmp / f"E12_{lo:g}_{n_q}.toml"
+        write_stock(inv, stock)
+        job_file.write_text(JOB.format(pairs="false"), encoding="utf-8")
+        wall, cpu, _res = fresh(job_file, stock)
         rows.append((f"E12 {lo:g}-8k2", len(inv.resistors), n_q, "off", el, r.status,
                      r.stats.get("rows", 0), r.stats.get("designs_vertex_checked", 0),
-                     (base, finished)))
+                     (base, finished), (wall, cpu)))
         print(rows[-1], flush=True)
-    print("\n| shelf | lines | transistors | pairs | solve time (s) | status | rows | "
-          "designs checked at every vertex | naive baseline (s) | speed-up |")
-    print("|---|---|---|---|---|---|---|---|---|---|")
-    for series, n, q, pr, el, status, nrows, checked, base in rows:
+    print("\n| shelf | lines | transistors | pairs | solve time (s) | fresh process wall (CPU) "
+          "(s) | status | rows | designs checked at every vertex | naive baseline (s) | "
+          "speed-up |")
+    print("|---|---|---|---|---|---|---|---|---|---|---|")
+    for series, n, q, pr, el, status, nrows, checked, base, (wall, cpu) in rows:
         b = "" if base is None else f"{base[0]:.1f}" + ("" if base[1] else " (est.)")
         sp = "" if base is None else f"{base[0] / el:.0f}×"
-        print(f"| {series} | {n} | {q} | {pr} | {el:.2f} | {status} | {nrows} | {checked} | "
-              f"{b} | {sp} |")
+        print(f"| {series} | {n} | {q} | {pr} | {el:.2f} | {wall:.2f} ({cpu:.2f}) | {status} | "
+              f"{nrows} | {checked} | {b} | {sp} |")
+    if not args.baseline_only:
+        print("\n| job | pairs | status | solve time (s) | fresh process wall (CPU) (s) | "
+              "designs |")
+        print("|---|---|---|---|---|---|")
+        for line in sample_job_rows(tmp):
+            print(line, flush=True)
 
 
 if __name__ == "__main__":

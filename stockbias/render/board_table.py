@@ -28,7 +28,8 @@ _STATUS = {
 def _status(console: Console, status: str, seconds: float, bound: dict[str, float]) -> None:
     line = f"Status: {_STATUS.get(status, status)} in {seconds:.2f} s"
     if bound:
-        line += "; best bound " + ", ".join(f"{k} ≥ {v:g}" for k, v in bound.items())
+        line += "; best bound " + ", ".join(
+            f"{k} {'≤' if k == 'ic_margin' else '≥'} {v:g}" for k, v in bound.items())
     console.print(line)
 
 

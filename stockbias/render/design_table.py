@@ -99,7 +99,8 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
                   f"objectives {', '.join(result.objectives)}")
     line = f"Status: {_STATUS.get(result.status, result.status)} in {result.solve_seconds:.2f} s"
     if result.bound:
-        line += "; best bound " + ", ".join(f"{k} ≥ {v:g}" for k, v in result.bound.items())
+        line += "; best bound " + ", ".join(
+            f"{k} {'≤' if k == 'ic_margin' else '≥'} {v:g}" for k, v in result.bound.items())
     console.print(line)
     if result.designs:
         data = [d.to_dict() for d in result.designs]

@@ -32,7 +32,7 @@ from .design_result import DesignVariant
 from .model import ModelDesign
 from .prepass import PLANS, free_role_bounds, free_role_keep, free_role_range, vertex_check
 from .ranking import count_distinct, margin_ppm, objective_key
-from .solve import RankedSolve, solve_one
+from .solve import RankedSolve, fits_stock, pick_one, solve_one
 
 __all__ = ["Variant", "design_variants", "network_key", "network_roles", "rank_networks",
            "variants_of"]
@@ -59,7 +59,9 @@ def rank_networks(designs: list[ModelDesign], groups: list[tuple], objectives: t
                   accept) -> tuple[list[RankedSolve], str, int]:
     """Up to ``top`` designs of distinct networks, in lexicographic order.
 
-    CP-SAT picks the best design not forbidden; ``accept(index)`` re-verifies it.  A
+    CP-SAT picks the best design not forbidden (directly, without the solver, when every
+    design fits the stock on its own: :func:`.solve.pick_one`); ``accept(index)``
+    re-verifies it.  A
     rejected design is forbidden alone (another variant of its network may still pass); an
     accepted one forbids its whole network, so the next solve picks the best variant of
     another network.  Returns (ranked, status, rejected count); status is ``optimal``,
@@ -74,8 +76,12 @@ def rank_networks(designs: list[ModelDesign], groups: list[tuple], objectives: t
     proven = True
     if not designs:
         return [], "infeasible", 0
+    # every design fitting the stock on its own, no stock quantity can bind: the best
+    # design is a lexicographic minimum over the list, taken without a solver
+    direct = all(fits_stock(x, line_qty, build_qty) for x in designs)
     while len(ranked) < top and len(forbidden) < len(designs):
-        got = solve_one(designs, objectives, line_qty, build_qty, forbidden, seed, deadline)
+        got = (pick_one(designs, objectives, line_qty, build_qty, forbidden) if direct else
+               solve_one(designs, objectives, line_qty, build_qty, forbidden, seed, deadline))
         if got == "infeasible":
             break
         if got == "unknown":
@@ -114,13 +120,18 @@ class Variant:
 
 
 def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[str, int],
-                objectives: tuple[str, ...]) -> tuple[str | None, list[Variant]]:
+                objectives: tuple[str, ...], deadline=None) -> tuple[str | None, list[Variant]]:
     """(free role, every variant of the network with core roles ``core``), best key first.
 
     Every candidate of the free role is screened with the same exact-at-a-vertex bounds the
     search uses (:func:`.prepass.free_role_bounds`, either model) and then checked at
     every vertex with :func:`.prepass.vertex_check`; those that pass and fit the stock
     (each line's uses × build quantity ≤ its quantity) are the variants.
+
+    ``deadline`` (optional, a :class:`.deadline.Deadline`): the vertex checks run in
+    blocks in value order and stop once it has expired; the variants are then those of
+    the blocks checked, none when it had expired already (``deadline.hit`` tells the
+    caller the list is cut).
     """
     free = PLANS[network].free
     if free is None or free not in cands:
@@ -134,13 +145,25 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
                            low_need, ic_top)]
     if fj.size == 0:
         return free, []
-    arr = {r: (cands[r], np.full(fj.size, i, dtype=np.int64)) for r, i in core.items()}
-    arr[free] = (fc, fj)
-    chk = vertex_check(job, stage, network, transistor, arr)
-    ok = np.asarray(chk["ok"], dtype=bool)
-    fj = fj[ok]
-    vce = np.asarray(chk["vce_min"])[ok]
-    ic_lo, ic_hi = np.asarray(chk["ic_min"])[ok], np.asarray(chk["ic_max"])[ok]
+    parts: list[dict[str, np.ndarray]] = []
+    block = 512 if deadline is not None else max(fj.size, 1)
+    for a in range(0, fj.size, block):
+        if deadline is not None and deadline.expired():
+            break
+        sub = fj[a:a + block]
+        arr = {r: (cands[r], np.full(sub.size, i, dtype=np.int64)) for r, i in core.items()}
+        arr[free] = (fc, sub)
+        chk = vertex_check(job, stage, network, transistor, arr)
+        parts.append({"fj": sub, "ok": np.asarray(chk["ok"], dtype=bool),
+                      "vce": np.asarray(chk["vce_min"]), "lo": np.asarray(chk["ic_min"]),
+                      "hi": np.asarray(chk["ic_max"])})
+    if not parts:
+        return free, []
+    ok = np.concatenate([p["ok"] for p in parts])
+    fj = np.concatenate([p["fj"] for p in parts])[ok]
+    vce = np.concatenate([p["vce"] for p in parts])[ok]
+    ic_lo = np.concatenate([p["lo"] for p in parts])[ok]
+    ic_hi = np.concatenate([p["hi"] for p in parts])[ok]
     if fj.size == 0:
         return free, []
     # stock: every line's uses over the design's roles × the build quantity
@@ -178,15 +201,17 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
                           float(mppm[k]) / 1e6, int(cost[k])) for k in order]
 
 
-def design_variants(s, k: int, verify: bool) -> tuple[str | None, tuple[DesignVariant, ...]]:
+def design_variants(s, k: int, verify: bool, deadline=None
+                    ) -> tuple[str | None, tuple[DesignVariant, ...]]:
     """The free role's variants of the network of the search ``s``'s pool design ``k``,
     (free role, variants) for :class:`.design_result.Design`; with ``verify`` each is
-    re-checked by ``analyze_stage`` and one that fails is left out."""
+    re-checked by ``analyze_stage`` and one that fails is left out.  ``deadline``: see
+    :func:`variants_of` (the representative is listed whatever the deadline)."""
     b = s.blocks[s.pool.block[k]]
     roles = s.pool.roles[k]
     core = {r: i for r, i in roles.items() if r != PLANS[b.network].free}
     free, found = variants_of(s.job, s.stage, s.shelf, b.network, b.transistor, b.cands, core,
-                              s.objectives)
+                              s.objectives, deadline)
     if free is None:
         return None, ()
     rep = roles.get(free)
@@ -198,7 +223,7 @@ def design_variants(s, k: int, verify: bool) -> tuple[str | None, tuple[DesignVa
         verified: bool | None = None
         if v.index == rep:
             verified = True
-        elif verify:
+        elif verify and (deadline is None or not deadline.expired()):
             trial = {r: p for r, p in s.resolved(k)[1].items() if r != free}
             trial[free] = part
             res = _analyze(s.job, s.stage, trial, b.transistor, samples=0,

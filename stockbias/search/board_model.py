@@ -24,12 +24,14 @@ literals.
 
 from __future__ import annotations
 
+import math
 import time
 from dataclasses import dataclass, field
 
 from ortools.sat.python import cp_model
 
 from .board_options import StageOptions
+from .ranking import bound_in_units
 
 __all__ = ["BoardModel", "LineInfo", "StageSetup"]
 
@@ -326,8 +328,10 @@ class BoardModel:
                 break
             if status != cp_model.OPTIMAL:
                 proven = False
-                bounds["+".join(step) if len(step) > 1 else step[0]] = float(
-                    solver.best_objective_bound)
+                # the weighted sum's bound gives the step's first objective: each weight
+                # exceeds everything after it, so ⌊⌈B⌉ / w⌋ bounds it
+                b = math.floor(math.ceil(solver.best_objective_bound - 1e-9) / weights[0])
+                bounds[step[0]] = bound_in_units(step[0], float(b))
             for n in step:
                 values[n] = round(solver.value(self.objectives[n]))
             choices = self._read(solver)

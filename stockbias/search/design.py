@@ -73,6 +73,7 @@ from .model import ModelDesign
 from .prepass import (
     PLANS,
     ROW_BUDGET,
+    attribute_levels,
     corners,
     free_role_bounds,
     free_role_keep,
@@ -111,15 +112,17 @@ class _Pool:
 
 class _Search(RowScan):
     def __init__(self, job: Job, inventory: Inventory, top: int, deadline: Deadline,
-                 progress: Progress | None, row_budget: int = ROW_BUDGET):
+                 progress: Progress | None, row_budget: int = ROW_BUDGET,
+                 shelf: Shelf | None = None, pairs: bool | None = None):
         self.job, self.inv, self.top, self.deadline = job, inventory, top, deadline
         #: rows built at once (one unit), and rows held at once (one group)
         self.row_budget, self.group_rows = int(row_budget), GROUP_FACTOR * int(row_budget)
         self.progress = progress
         self.stage = job.stage
         self.objectives = tuple(job.search.objectives)
-        self.shelf: Shelf = build_shelf(job, inventory)
-        self.pairs = job.build.allow_pairs and self.shelf.with_pairs is not None
+        self.shelf: Shelf = build_shelf(job, inventory) if shelf is None else shelf
+        self.pairs = (job.build.allow_pairs if pairs is None else pairs) \
+            and self.shelf.with_pairs is not None
         self.transistors, self.excluded = usable_transistors(job, inventory)
         topo = self.stage.topology
         self.networks = stage_networks(job, topo)
@@ -215,7 +218,7 @@ class _Search(RowScan):
     # --- expansion of a chunk of cores into full designs ---------------------------
     def expand(self, b: _Block, sel: np.ndarray, kappa: np.ndarray) -> None:
         """Rows → cores → full designs with exact keys ≤ κ that pass every vertex."""
-        x_attr = x_limit = None
+        x_attr = x_limit = x_levels = None
         first = self.objectives[0]
         if not b.exact and first in ("cost", "part_count") and kappa[0] < _BIG:
             # the first objective is a sum over roles: what is left of κ for the interval role
@@ -229,7 +232,11 @@ class _Search(RowScan):
                 fixed += int(getattr(b.cands[b.free], col).min())
             x_attr = getattr(b.cands[plan.interval], col)
             x_limit = kappa[0] - fixed
-        idx, ic_hi, ic_lo = b.cores(sel, x_attr, x_limit)
+            key = (b.network, "interval_levels", col, id(b.cands[plan.interval]))
+            if key not in self._cache:
+                self._cache[key] = attribute_levels(x_attr)
+            x_levels = self._cache[key]
+        idx, ic_hi, ic_lo = b.cores(sel, x_attr, x_limit, x_levels)
         self.stats["cores"] += int(ic_hi.size)
         if ic_hi.size == 0:
             return
@@ -314,10 +321,7 @@ class _Search(RowScan):
         each group's indices ascending (so sorted by value); None when there are many."""
         key = (b.network, "free_levels", col)
         if key not in self._cache:
-            attr = getattr(b.cands[b.free], col)
-            lv = np.unique(attr)
-            self._cache[key] = None if lv.size > 64 else [
-                (int(v), np.flatnonzero(attr == v)) for v in lv]
+            self._cache[key] = attribute_levels(getattr(b.cands[b.free], col))
         return self._cache[key]
 
     def _divider_power_ok(self, b: _Block, idx: dict[str, np.ndarray]) -> np.ndarray:
@@ -602,7 +606,7 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
         deadline = Deadline(limit)
     # the search leaves a tenth of the limit to rank, re-verify and explain what it found
     s = _Search(job, inventory, top, deadline.share(0.9), progress, row_budget)
-    done, bound = s.run()
+    done, bound = s.run(_single_part_bound(s, inventory, top, deadline, row_budget))
     pool_keys = np.stack(s.pool.keys) if s.pool.keys else np.zeros((0, len(s.objectives)))
     kappa = s.kappa()
     if len(pool_keys):
@@ -664,7 +668,7 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
         vals = {part.value_ohm for p in parts.values() for part in p.parts}
         lines = {part.part_id for p in parts.values() for part in p.parts}
         cost = b.transistor.unit_cost + sum(p.unit_cost for p in parts.values())
-        free_role, variants = design_variants(s, k, verify_variants)
+        free_role, variants = design_variants(s, k, verify_variants, deadline)
         designs.append(Design(
             rank=rank, topology=b.network, transistor=b.transistor, check=res,
             free_role=free_role, variants=variants,
@@ -690,6 +694,10 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
             f"{net_name}: the shelf is too large to cross pairs in {', '.join(plan.enumerated)}; "
             f"pairs were searched for {', '.join(r for r in (plan.interval, plan.free) if r)} "
             "only, and the status holds for that set of designs")
+    if designs and deadline.hit and any(d.free_role for d in designs):
+        result.assumptions.append(
+            "the time limit cut the listing of the free role's working values: each "
+            "network's range covers the values checked before it, in value order")
     stats["pairs_limited_to_cut_roles"] = s.pair_roles_limited
     stats["prepass_cut"] = None
     if done != "complete":
@@ -703,6 +711,30 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
                                      budget_s=max(deadline.remaining(), 0.5))
         result.solve_seconds = time.monotonic() - t0
     return result
+
+
+def _single_part_bound(s: _Search, inventory: Inventory, top: int, deadline: Deadline,
+                       row_budget: int) -> np.ndarray | None:
+    """With pairs on, κ of the same search over single parts: the key of its K-th best
+    re-verified, stock-feasible network (``None`` without pairs or when it found fewer
+    than K networks).
+
+    Every single-part design is also a design of the search with pairs (a single line
+    is one of its candidates), so this κ bounds the K-th best network of the larger set
+    from above: the search with pairs may start from it instead of from ∞.  It is what
+    keeps pairs cheap: with a finite κ on cost or part count, the interval role (RE) is
+    cut to the candidates κ leaves room for before any core is built, where the search
+    from ∞ first expands millions of (R1, R2, RE-pair) cores of the rows whose lower
+    bounds come first.  The single-part search gets at most 40 % of the limit.
+    """
+    if not s.pairs:
+        return None
+    first = _Search(s.job, inventory, top, deadline.share(0.4), None, row_budget,
+                    shelf=s.shelf, pairs=False)
+    first.run()
+    kappa = first.kappa()
+    s.stats["single_part_bound"] = 1
+    return kappa if np.all(kappa < _BIG) else None
 
 
 def _assumptions(job: Job, designs: list[Design]) -> list[str]:

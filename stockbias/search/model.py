@@ -20,8 +20,10 @@ Everything is an integer; no float reaches the solver.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
-from ortools.sat.python import cp_model
+if TYPE_CHECKING:
+    from ortools.sat.python import cp_model
 
 __all__ = ["ModelDesign", "SearchModel", "build_model"]
 
@@ -57,6 +59,8 @@ def build_model(designs: list[ModelDesign], objectives: tuple[str, ...],
                 line_qty: list[int], build_qty: int, forbidden: set[int] = frozenset(),
                 fixed: dict[str, int] | None = None) -> SearchModel:
     """CP-SAT model choosing one design of ``designs``; see the module notes."""
+    from ortools.sat.python import cp_model
+
     m = cp_model.CpModel()
     n = len(designs)
     d = m.NewIntVar(0, max(n - 1, 0), "design")

@@ -375,23 +375,58 @@ def _closed_form_thresholds(t, cn: Corners, network: str, ends_up, ends_lo, m: i
     return a_thr, b_thr
 
 
+def attribute_levels(attr: np.ndarray, most: int = 64) -> list[tuple[int, np.ndarray]] | None:
+    """A candidate table's indices grouped by the value of one integer attribute (cost,
+    part count), levels ascending, each group's indices ascending (so sorted by
+    resistance); None when the attribute takes more than ``most`` values."""
+    lv = np.unique(attr)
+    if lv.size > most:
+        return None
+    return [(int(v), np.flatnonzero(attr == v)) for v in lv]
+
+
+def _runs(starts: np.ndarray, counts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(owner, position): for each k, ``counts[k]`` consecutive positions from
+    ``starts[k]``, owner k."""
+    total = int(counts.sum())
+    owner = np.repeat(np.arange(counts.size), counts)
+    offs = np.arange(total) - np.repeat(np.cumsum(counts) - counts, counts)
+    return owner, np.repeat(starts, counts) + offs
+
+
 def materialise(network: str, q: Transistor, cands: dict[str, RoleCandidates], rows: Rows,
                 sel: np.ndarray | None = None, x_attr: np.ndarray | None = None,
-                x_limit: np.ndarray | None = None) -> Cores:
+                x_limit: np.ndarray | None = None,
+                x_levels: list[tuple[int, np.ndarray]] | None = None) -> Cores:
     """Cores of the selected rows: each row × each interval-role candidate that passes.
 
     ``x_attr``/``x_limit`` (optional): also drop candidates whose attribute exceeds the
     row's limit (the caller's proven objective bound, e.g. the cost left for this role).
+    ``x_levels`` (optional, :func:`attribute_levels` of ``x_attr``): the candidates of
+    each row's cut are then drawn level by level, only from the levels within the row's
+    limit, so the dearer candidates of a wide cut (pairs) are never listed at all.
     """
     plan = PLANS[network]
     sel = np.arange(rows.size) if sel is None else np.asarray(sel)
     xc = cands[plan.interval]
     i0, i1 = rows.i0[sel], rows.i1[sel]
-    counts = i1 - i0
-    total = int(counts.sum())
-    rloc = np.repeat(np.arange(sel.size), counts)
-    offs = np.arange(total) - np.repeat(np.cumsum(counts) - counts, counts)
-    xi = np.repeat(i0, counts) + offs
+    if x_levels is not None and x_attr is not None and x_limit is not None:
+        owners, picks = [], []
+        for level, ind in x_levels:
+            live = np.flatnonzero(level <= x_limit)
+            if live.size == 0:
+                break                                  # levels ascend
+            p0 = np.searchsorted(ind, i0[live], "left")
+            p1 = np.searchsorted(ind, i1[live], "left")
+            own, pos = _runs(p0, np.maximum(p1 - p0, 0))
+            owners.append(live[own])
+            picks.append(ind[pos])
+        rloc = np.concatenate(owners) if owners else np.zeros(0, dtype=np.int64)
+        xi = np.concatenate(picks) if picks else np.zeros(0, dtype=np.int64)
+        order = np.lexsort((xi, rloc))                 # the order of the unlevelled listing
+        rloc, xi = rloc[order], xi[order]
+    else:
+        rloc, xi = _runs(i0, i1 - i0)
     row = sel[rloc]
     x_lo, x_hi = xc.low[xi], xc.high[xi]
     keep = (x_lo >= rows.a_thr[row] * (1 - _REL) - 1e-300) & \

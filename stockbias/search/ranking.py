@@ -11,8 +11,8 @@ import numpy as np
 
 from ..analysis.constraints import ic_margin
 
-__all__ = ["BIG", "composite", "count_distinct", "lex_le", "margin_ppm", "objective_key",
-           "range_query", "sparse_table"]
+__all__ = ["BIG", "bound_in_units", "composite", "count_distinct", "lex_le", "margin_ppm",
+           "objective_key", "range_query", "sparse_table"]
 
 #: "No bound yet" in a key column.
 BIG = np.iinfo(np.int64).max // 4
@@ -25,6 +25,18 @@ def objective_key(objectives: tuple[str, ...], cost: np.ndarray, parts: np.ndarr
             "ic_margin": -margin_ppm, "changes": np.zeros_like(cost)}
     return np.stack([np.asarray(cols[o], dtype=np.int64) for o in objectives], axis=-1) \
         if len(cost) else np.zeros((0, len(objectives)), dtype=np.int64)
+
+
+def bound_in_units(name: str, key_bound: float) -> float:
+    """A lower bound on an objective's key column, in the objective's own units: ``cost``
+    per board in currency (the key is micro-units), ``ic_margin`` as the largest margin
+    any unseen design can have, a fraction of the target (the key is −ppm, minimised), the
+    counts as they are."""
+    if name == "cost":
+        return key_bound / 1e6
+    if name == "ic_margin":
+        return -key_bound / 1e6
+    return key_bound
 
 
 def margin_ppm(ic_lo: np.ndarray, ic_hi: np.ndarray, ic_min: float, ic_max: float,

@@ -26,6 +26,7 @@ from ..topologies import get_network
 from .candidates import RoleCandidates
 from .prepass import PLANS, Rows, materialise, row_cuts, row_slices
 from .ranking import BIG as _BIG
+from .ranking import bound_in_units
 from .ranking import composite as _composite
 from .ranking import lex_le as _lex_le
 
@@ -70,12 +71,13 @@ class Block:
         return self.rows.size if self.rows is not None else int(self.ic_hi.size)
 
     def cores(self, sel: np.ndarray, x_attr: np.ndarray | None = None,
-              x_limit: np.ndarray | None = None
+              x_limit: np.ndarray | None = None,
+              x_levels: list[tuple[int, np.ndarray]] | None = None
               ) -> tuple[dict[str, np.ndarray], np.ndarray, np.ndarray]:
         if self.exact:
             return {r: v[sel] for r, v in self.idx.items()}, self.ic_hi[sel], self.ic_lo[sel]
         c = materialise(self.network, self.transistor, self.cands, self.rows, sel, x_attr,
-                        x_limit)
+                        x_limit, x_levels)
         return c.idx, c.ic_hi, c.ic_lo
 
 
@@ -146,16 +148,21 @@ class RowScan(ABC):
         return b
 
     # --- the whole search ------------------------------------------------------------
-    def run(self) -> tuple[str, dict[str, float]]:
+    def run(self, kappa: np.ndarray | None = None) -> tuple[str, dict[str, float]]:
         """Scan the rows unit by unit and search them in groups of at most ``group_rows``
         kept rows, best-first inside a group, κ carried from group to group.
+
+        ``kappa``, when given, is a key the K-th best network is known not to exceed
+        (the K-th best of a subset of the designs, re-verified); the search starts from
+        it instead of from ∞ and never loosens it.
 
         Exactness: a row is skipped only when its lower-bound key exceeds the κ of that
         moment, and κ (the K-th best re-verified key) never rises, so a skipped row can
         hold no design ranked above the final top K, whatever the grouping.
         """
         m = len(self.objectives)
-        kappa = np.full(m, _BIG, dtype=np.int64)
+        if kappa is None:
+            kappa = np.full(m, _BIG, dtype=np.int64)
         group: list[int] = []
         held = 0
         for net_name, cands, span, qi, q in self.units():
@@ -249,11 +256,13 @@ class RowScan(ABC):
                 if not finite and np.all(new < _BIG):
                     kappa, restart = new, True
                     break
-                kappa = new
+                if _lex_le(new[None, :], kappa)[0]:
+                    kappa = new             # κ only falls (a seeded κ is kept until beaten)
             if not complete:
                 rest = ~done & _lex_le(key, kappa)
                 if rest.any():
-                    bound[self.objectives[0]] = float(key[rest, 0].min())
+                    bound[self.objectives[0]] = bound_in_units(self.objectives[0],
+                                                               float(key[rest, 0].min()))
                 break
             if not restart:
                 done[ids] = True

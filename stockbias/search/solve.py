@@ -5,6 +5,12 @@ optimum, minimise the next, and so on.  The next-best design is found by
 forbidding the designs already ranked (a no-good on the design index) and solving
 again from the first objective.  The solver is deterministic: one worker, a fixed
 seed, a time limit.
+
+One design is picked from a list, so the stock constraint of the model only ever
+concerns the picked design's own lines.  When every design fits the stock on its own
+(the single-stage search hands over only such designs), no stock quantity can bind
+and the model is a lexicographic minimum over a list: :func:`pick_one` takes it
+directly, with the same objective values as the model and without loading OR-Tools.
 """
 
 from __future__ import annotations
@@ -12,11 +18,14 @@ from __future__ import annotations
 import time
 from dataclasses import dataclass
 
-from ortools.sat.python import cp_model
+from typing import TYPE_CHECKING
 
 from .model import ModelDesign, build_model
 
-__all__ = ["RankedSolve", "solve_one"]
+if TYPE_CHECKING:
+    from ortools.sat.python import cp_model
+
+__all__ = ["RankedSolve", "design_objectives", "fits_stock", "pick_one", "solve_one"]
 
 
 @dataclass(frozen=True)
@@ -33,6 +42,8 @@ class RankedSolve:
 
 
 def _solver(seed: int, seconds: float) -> cp_model.CpSolver:
+    from ortools.sat.python import cp_model
+
     s = cp_model.CpSolver()
     s.parameters.num_workers = 1
     s.parameters.catch_sigint_signal = False  # Ctrl-C reaches Python as KeyboardInterrupt
@@ -45,6 +56,8 @@ def solve_one(designs: list[ModelDesign], objectives: tuple[str, ...], line_qty:
               build_qty: int, forbidden: set[int], seed: int, deadline: float
               ) -> RankedSolve | str:
     """The lexicographically best design not forbidden; "infeasible" or "unknown" if none."""
+    from ortools.sat.python import cp_model
+
     fixed: dict[str, int] = {}
     proven = True
     bound: dict[str, float] = {}
@@ -66,3 +79,41 @@ def solve_one(designs: list[ModelDesign], objectives: tuple[str, ...], line_qty:
             proven = False
             bound[name] = float(solver.BestObjectiveBound())
     return RankedSolve(design, fixed, proven, bound)
+
+
+def design_objectives(x: ModelDesign) -> dict[str, int]:
+    """The model's objective values (:func:`.model.build_model`) of one design."""
+    pieces = [line for p in x.pieces.values() for line in p]
+    return {"cost": sum(x.role_cost.values()) + x.transistor_cost,
+            "part_count": len(pieces) + 1,
+            "distinct_values": len({v for vs in x.values.values() for v in vs}),
+            "bom_lines": len(set(pieces)) + 1,
+            "ic_margin": -x.margin_ppm, "changes": 0}
+
+
+def fits_stock(x: ModelDesign, line_qty: list[int], build_qty: int) -> bool:
+    """Every line's pieces in the design × the build quantity ≤ the line's quantity."""
+    count: dict[int, int] = {}
+    for p in x.pieces.values():
+        for line in p:
+            count[line] = count.get(line, 0) + 1
+    return all(n * build_qty <= line_qty[line] for line, n in count.items())
+
+
+def pick_one(designs: list[ModelDesign], objectives: tuple[str, ...], line_qty: list[int],
+             build_qty: int, forbidden: set[int]) -> RankedSolve | str:
+    """What :func:`solve_one` returns, found without a solver: the lexicographically best
+    design not forbidden that fits the stock (ties: the lowest index); "infeasible" if
+    none.  Always proven."""
+    best: tuple[tuple[int, ...], int] | None = None
+    values: dict[str, int] = {}
+    for i, x in enumerate(designs):
+        if i in forbidden or not fits_stock(x, line_qty, build_qty):
+            continue
+        v = design_objectives(x)
+        key = (tuple(v[o] for o in objectives), i)
+        if best is None or key < best:
+            best, values = key, v
+    if best is None:
+        return "infeasible"
+    return RankedSolve(best[1], {o: values[o] for o in objectives}, True, {})

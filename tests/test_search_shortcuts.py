@@ -1,0 +1,144 @@
+"""Shortcuts of the single-stage search that must not change its answer.
+
+* A search with pairs starts from κ of the same search over single parts (every
+  single-part design is a design of the larger set): the designs and status equal those
+  of the search with pairs started from ∞.  Expected values: the run from ∞.
+* The interval role's candidates drawn level by level of an objective attribute give
+  the same cores as listing the whole cut and filtering by the attribute.  Expected
+  values: the unlevelled listing.
+* The ranking of a single stage without a solver (:func:`pick_one`) gives the same
+  objective values as the CP-SAT model, rank by rank.  Expected values: CP-SAT (OR-Tools,
+  the version installed), on randomly generated design lists.
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+import pytest
+
+from stockbias.search import design as design_module
+from stockbias.search.candidates import build_shelf
+from stockbias.search.design import design
+from stockbias.search.model import ModelDesign
+from stockbias.search.prepass import PLANS, attribute_levels, materialise, row_cuts
+from stockbias.search.solve import fits_stock, pick_one, solve_one
+from tests.test_search_bounded import generated_shelf, job_for, signature
+
+
+def _pairs_job(objectives: str):
+    job = job_for(objectives=objectives)
+    from dataclasses import replace
+
+    return replace(job, build=replace(job.build, allow_pairs=True))
+
+
+@pytest.mark.parametrize("objectives", ['["cost", "part_count", "distinct_values", "ic_margin"]',
+                                        '["part_count", "cost", "ic_margin"]',
+                                        '["distinct_values", "cost"]'])
+def test_pairs_started_from_the_single_part_bound_give_the_same_designs(objectives,
+                                                                        monkeypatch):
+    inv = generated_shelf(22, 2, seed=5)
+    job = _pairs_job(objectives)
+    seeded = design(job, inv)
+    assert seeded.stats.get("single_part_bound") == 1
+    monkeypatch.setattr(design_module, "_single_part_bound", lambda *a, **k: None)
+    unseeded = design(job, inv)
+    assert seeded.status == "optimal"
+    assert signature(seeded) == signature(unseeded)
+    assert [len(d.variants) for d in seeded.designs] == [len(d.variants)
+                                                         for d in unseeded.designs]
+
+
+def test_levelled_cut_equals_the_filtered_cut():
+    inv = generated_shelf(40, 1, seed=3)
+    job = _pairs_job('["cost", "part_count"]')
+    shelf = build_shelf(job, inv)
+    cands = {r: shelf.candidates(r == "RE", True) for r in ("R1", "R2", "RC", "RE")}
+    cands["R1"] = cands["R2"] = shelf.candidates(False, False)
+    q = inv.transistors[0]
+    rows = row_cuts(job, job.stage, "divider", q, cands)
+    sel = np.flatnonzero(rows.i1 > rows.i0)
+    assert sel.size > 100
+    attr = cands[PLANS["divider"].interval].cost
+    levels = attribute_levels(attr)
+    assert levels is not None and len(levels) > 2
+    rng = np.random.default_rng(7)
+    limit = rng.choice(np.unique(attr), sel.size).astype(np.int64)
+    plain = materialise("divider", q, cands, rows, sel, attr, limit)
+    levelled = materialise("divider", q, cands, rows, sel, attr, limit, levels)
+    assert plain.row.size > 0
+    for r in plain.idx:
+        np.testing.assert_array_equal(plain.idx[r], levelled.idx[r])
+    np.testing.assert_array_equal(plain.ic_hi, levelled.ic_hi)
+    np.testing.assert_array_equal(plain.ic_lo, levelled.ic_lo)
+
+
+def _random_designs(rng: np.random.Generator, n: int, lines: int) -> list[ModelDesign]:
+    out = []
+    ids: dict[tuple[str, tuple[int, ...]], int] = {}
+    for _ in range(n):
+        roles, pieces, values, cost = {}, {}, {}, {}
+        for role in ("R1", "R2", "RC", "RE"):
+            k = int(rng.integers(1, 3))
+            # a candidate's cost is a function of its lines (the model keys costs by candidate)
+            ls = tuple(int(x) for x in rng.integers(0, lines, k))
+            pieces[role] = ls
+            values[role] = tuple(x % 5 for x in ls)
+            roles[role] = ids.setdefault((role, ls), 1 + len(ids))
+            cost[role] = sum(1000 + 500 * (x % 3) for x in ls)
+        out.append(ModelDesign(0, int(rng.integers(0, 2)), roles, pieces, values,
+                               int(rng.integers(-5, 5)) * 1000, 20_000, cost))
+    return out
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_direct_pick_ranks_like_cp_sat(seed):
+    rng = np.random.default_rng(seed)
+    lines = 8
+    designs = _random_designs(rng, 30, lines)
+    qty = [int(x) for x in rng.choice([10, 20, 40], lines)]
+    objectives = [("cost", "part_count", "distinct_values", "ic_margin"),
+                  ("bom_lines", "cost"), ("ic_margin", "distinct_values", "part_count")][seed % 3]
+    forbidden: set[int] = set()
+    deadline = time.monotonic() + 60
+    for _ in range(6):
+        direct = pick_one(designs, objectives, qty, 10, forbidden)
+        solved = solve_one(designs, objectives, qty, 10, forbidden, 1, deadline)
+        if solved == "infeasible":
+            assert direct == "infeasible"
+            break
+        assert direct.values == solved.values                   # CP-SAT's optimum
+        assert fits_stock(designs[direct.design], qty, 10)
+        forbidden.add(direct.design)
+    assert forbidden
+
+
+def test_a_cut_run_with_pairs_is_honest_and_states_its_bound_in_currency():
+    """A search with pairs that a deadline (counted in checks, no clock) stops: never
+    ``optimal``; designs re-verified and never better than the uncut optimum; a stated
+    bound on cost is per board in currency (the parts here cost 0.001–0.03 each), at most
+    the best design's cost.  Expected values: the uncut run."""
+    from stockbias.search.deadline import Deadline
+
+    inv = generated_shelf(40, 3, seed=8)
+    job = _pairs_job('["cost", "part_count", "distinct_values", "ic_margin"]')
+    full = design(job, inv)
+    assert full.status == "optimal"
+    best = full.designs[0].cost_micro
+    seen, bounds = set(), []
+    for n in (1, 3, 8, 20, 40, 80, 160, 320):
+        r = design(job, inv, deadline=Deadline.after_checks(n))
+        if r.stats["prepass_cut"] is None:
+            assert r.status == "optimal"
+            continue
+        assert r.status in ("feasible", "unknown")
+        assert (r.status == "unknown") == (not r.designs)
+        for d in r.designs:
+            assert d.check.ok and d.cost_micro >= best
+        if "cost" in r.bound:
+            bounds.append(r.bound["cost"])
+            assert 0 < r.bound["cost"] <= full.designs[0].cost + 1e-12
+        seen.add(r.status)
+    assert "feasible" in seen or "unknown" in seen
