@@ -142,3 +142,39 @@ def test_a_cut_run_with_pairs_is_honest_and_states_its_bound_in_currency():
             assert 0 < r.bound["cost"] <= full.designs[0].cost + 1e-12
         seen.add(r.status)
     assert "feasible" in seen or "unknown" in seen
+
+
+def test_a_search_cut_before_any_design_names_where_the_time_went():
+    """The advice of an ``unknown`` run names the phase and the size of the problem
+    (not only 'raise the limit'); a board cut before any option says 'none of N'."""
+    from stockbias.job import parse_job
+    from stockbias.search.board import design_board
+    from stockbias.search.deadline import Deadline
+    from tests.test_search_bounded import BOARD
+
+    inv = generated_shelf(60, 3, seed=4)
+    r = design(job_for(), inv, deadline=Deadline.after_checks(1))
+    assert r.status == "unknown" and r.explanation.binding == "time_limit"
+    assert ("while scanning the rows of the IC-setting resistors (60 resistor lines and 3 "
+            "usable transistors)") in r.explanation.message
+    board, shelf70 = parse_job(BOARD, "<board>"), generated_shelf(70, 2, seed=6)
+    b = design_board(board, shelf70, deadline=Deadline.after_checks(1))
+    assert b.status == "unknown"
+    reason = b.to_dict()["explanation"]["reason"]
+    assert reason == ("the time limit ran out before any board was found, while listing the "
+                      "options of stages 'input', 'driver'")
+    # an option list cut before its first row says so in words
+    from stockbias.search.board import prepass_cut, stage_job
+    from stockbias.search.board_model import StageSetup
+    from stockbias.search.board_options import stage_options
+    from stockbias.search.candidates import build_shelf
+
+    st = board.stages[0]
+    shelf = build_shelf(board, shelf70, pairs=False)
+    cands = {r: shelf.candidates(False, False) for r in ("R1", "R2", "RC", "RE")}
+    cut = stage_options(stage_job(board, st), st, 0, "divider", shelf70.transistors[0], cands,
+                        Deadline.after_checks(1), row_budget=200)
+    assert not cut.complete and cut.rows_done == 0
+    assert prepass_cut([StageSetup("input", [cut])]) == (
+        "the time limit cut the pre-pass, so the status is not a proof: stage 'input' "
+        f"divider with {shelf70.transistors[0].part_id}: none of 70 R1 candidates scanned")

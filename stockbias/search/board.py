@@ -249,9 +249,11 @@ def prepass_cut(setups: list[StageSetup], skipped: dict[str, int] | None = None
         for g in st.options:
             if not g.complete:
                 role = PLANS[g.network].enumerated[0]
+                done = (f"{role} candidates 1–{g.rows_done:,} of {g.rows_total:,} scanned"
+                        if g.rows_done else f"none of {g.rows_total:,} {role} candidates "
+                        "scanned")
                 parts.append(f"stage '{st.name}' {g.network} with {g.transistor.part_id}: "
-                             f"{role} candidates 1–{g.rows_done:,} of {g.rows_total:,} "
-                             "scanned")
+                             + done)
     if not parts:
         return None
     return ("the time limit cut the pre-pass, so the status is not a proof: "
@@ -506,7 +508,13 @@ def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
                   deadline: float, limit_transistors: bool = True) -> dict[str, object]:
     """Why no board was found, and one change that would help."""
     if status == "unknown":
-        return {"reason": "the time limit ran out before any board was found",
+        cut = [st.name for st in setups
+               if not st.options or not all(g.complete for g in st.options)]
+        options = sum(g.size for st in setups for g in st.options)
+        where = (f"while listing the options of stage{'s' if len(cut) > 1 else ''} "
+                 f"{', '.join(repr(n) for n in cut)}" if cut else
+                 f"in the board solver, over {options:,} options for {len(setups)} stages")
+        return {"reason": f"the time limit ran out before any board was found, {where}",
                 "suggestion": "raise [search] time_limit_s or --time-limit"}
     empty = [st.name for st in setups if not any(g.size for g in st.options)]
     if empty:

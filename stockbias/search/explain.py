@@ -69,7 +69,7 @@ def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float
     t0 = time.monotonic()
     if status == "unknown":
         return Explanation("time_limit", "the time limit ran out before any design was found "
-                           "or ruled out; raise --time-limit")
+                           f"or ruled out, {_time_spent_on(search)}; raise --time-limit")
     st = job.stage
     if not search.transistors:
         reasons = "; ".join(f"{q.part_id}: {why}" for q, why in search.excluded) or \
@@ -232,3 +232,15 @@ def _q(value: float, unit: str) -> str:
         return format_quantity(value, unit, digits=4)
     except ValueError:
         return f"{value:.4g} {unit}".rstrip()
+
+
+def _time_spent_on(search) -> str:
+    """Where a cut search spent its time, in the user's terms (the real cause)."""
+    size = (f"{len(search.shelf.lines)} resistor lines and {len(search.transistors)} usable "
+            "transistors")
+    if getattr(search, "pairs", False) and search.shelf.with_pairs is not None:
+        size += f", pairs making {len(search.shelf.with_pairs):,} candidates per role"
+    if search.coverage.scan_complete:
+        return (f"while building designs from the rows that could hold the best one ({size}; "
+                "every row was scanned)")
+    return f"while scanning the rows of the IC-setting resistors ({size})"
