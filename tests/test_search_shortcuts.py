@@ -178,3 +178,22 @@ def test_a_search_cut_before_any_design_names_where_the_time_went():
     assert prepass_cut([StageSetup("input", [cut])]) == (
         "the time limit cut the pre-pass, so the status is not a proof: stage 'input' "
         f"divider with {shelf70.transistors[0].part_id}: none of 70 R1 candidates scanned")
+
+
+def test_a_single_stage_design_does_not_load_the_solver(tmp_path):
+    """A one-stage design ranks without CP-SAT, so OR-Tools (and the pandas it pulls in)
+    is never imported; checked in a fresh interpreter."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    samples = Path(__file__).resolve().parent.parent / "inventory_samples"
+    code = ("import sys\n"
+            "from stockbias import load_inventory, load_job\n"
+            "from stockbias.search.design import design\n"
+            f"r = design(load_job({str(samples / 'line_driver_job.toml')!r}), "
+            f"load_inventory({str(samples / 'workshop_drawers.csv')!r}))\n"
+            "print(r.status, len(r.designs), 'ortools' in sys.modules, 'pandas' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout.split()
+    assert out == ["optimal", "5", "False", "False"]      # five ranked designs, no solver
