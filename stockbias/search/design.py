@@ -733,8 +733,9 @@ def _single_part_bound(s: _Search, inventory: Inventory, top: int, deadline: Dea
                     shelf=s.shelf, pairs=False)
     first.run()
     kappa = first.kappa()
-    s.stats["single_part_bound"] = 1
-    return kappa if np.all(kappa < _BIG) else None
+    found = bool(np.all(kappa < _BIG))
+    s.stats["single_part_bound"] = int(found)      # 1: the search with pairs started from it
+    return kappa if found else None
 
 
 def _assumptions(job: Job, designs: list[Design]) -> list[str]:
