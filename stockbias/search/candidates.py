@@ -22,7 +22,7 @@ enforces the full count, a line used by two roles needing twice.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -113,6 +113,9 @@ class Shelf:
     with_pairs: RoleCandidates | None
     span_c: float
     ambient_c: tuple[float, float] = (25.0, 25.0)
+    #: resolved parts by (role, arrangement, line a, line b): a pair's exact band and
+    #: worst-split rating are worked out once per search, not once per listing
+    _resolved: dict = field(default_factory=dict, compare=False, repr=False)
 
     def candidates(self, optional: bool, pairs: bool) -> RoleCandidates:
         """The candidate table of a role (with an absent entry first when optional)."""
@@ -128,11 +131,14 @@ class Shelf:
         code = int(cand.arrangement[i])
         if code == ABSENT:
             return None
-        a = self.lines[int(cand.line_a[i])]
-        if code == SINGLE:
-            return ResolvedResistor.of_part(role, a)
-        b = self.lines[int(cand.line_b[i])]
-        return pair_of(role, a, b, _ARRANGEMENT[code], ambient=self.ambient_c)
+        key = (role, code, int(cand.line_a[i]), int(cand.line_b[i]))
+        got = self._resolved.get(key)
+        if got is None:
+            a = self.lines[key[2]]
+            got = ResolvedResistor.of_part(role, a) if code == SINGLE else pair_of(
+                role, a, self.lines[key[3]], _ARRANGEMENT[code], ambient=self.ambient_c)
+            self._resolved[key] = got
+        return got
 
 
 def _table(value, tol, tempco, drift, low, high, rating, cost, parts, la, lb, va, vb,

@@ -113,7 +113,8 @@ class _Pool:
 class _Search(RowScan):
     def __init__(self, job: Job, inventory: Inventory, top: int, deadline: Deadline,
                  progress: Progress | None, row_budget: int = ROW_BUDGET,
-                 shelf: Shelf | None = None, pairs: bool | None = None):
+                 shelf: Shelf | None = None, pairs: bool | None = None,
+                 checks: dict[tuple, CheckResult] | None = None):
         self.job, self.inv, self.top, self.deadline = job, inventory, top, deadline
         #: rows built at once (one unit), and rows held at once (one group)
         self.row_budget, self.group_rows = int(row_budget), GROUP_FACTOR * int(row_budget)
@@ -129,6 +130,9 @@ class _Search(RowScan):
         self.blocks: list[_Block] = []
         self.pool = _Pool()
         self.verified: dict[tuple, CheckResult | None] = {}
+        #: full checks by (network, transistor, each role's arrangement and lines), shared
+        #: with another search over the same shelf
+        self.checks: dict[tuple, CheckResult] = {} if checks is None else checks
         self.rejected_on_verification = 0
         self._cache: dict[tuple, object] = {}
         self.pair_roles_limited: list[str] = []
@@ -445,10 +449,19 @@ class _Search(RowScan):
         ck = (self.pool.block[k], tuple(sorted(self.pool.roles[k].items())))
         if ck not in self.verified:
             b, parts = self.resolved(k)
-            samples = 2000 if self.stage.target.yield_min is not None else 0
-            res = analyze_stage(self.job, self.stage, parts, b.transistor, samples=samples,
-                                seed=self.job.search.seed, topology=b.network)
-            self.stats["verified"] += 1
+            # the same parts checked by an earlier search over this shelf (the single-part
+            # search before the one with pairs) are not checked again
+            pk = (b.network, b.transistor.part_id, tuple(sorted(
+                (r, int(b.cands[r].arrangement[i]), int(b.cands[r].line_a[i]),
+                 int(b.cands[r].line_b[i])) for r, i in self.pool.roles[k].items())))
+            res = self.checks.get(pk)
+            if res is None:
+                samples = 2000 if self.stage.target.yield_min is not None else 0
+                res = analyze_stage(self.job, self.stage, parts, b.transistor,
+                                    samples=samples, seed=self.job.search.seed,
+                                    topology=b.network)
+                self.checks[pk] = res
+                self.stats["verified"] += 1
             if not res.ok:
                 self.rejected_on_verification += 1
             self.verified[ck] = res if res.ok else None
@@ -730,9 +743,11 @@ def _single_part_bound(s: _Search, inventory: Inventory, top: int, deadline: Dea
     if not s.pairs:
         return None
     first = _Search(s.job, inventory, top, deadline.share(0.4), None, row_budget,
-                    shelf=s.shelf, pairs=False)
+                    shelf=s.shelf, pairs=False, checks=s.checks)
     first.run()
     kappa = first.kappa()
+    for name in ("cores", "designs_vertex_checked", "verified"):
+        s.stats[name] += first.stats[name]           # the work of both searches
     found = bool(np.all(kappa < _BIG))
     s.stats["single_part_bound"] = int(found)      # 1: the search with pairs started from it
     return kappa if found else None
