@@ -129,9 +129,9 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
     (each line's uses × build quantity ≤ its quantity) are the variants.
 
     ``deadline`` (optional, a :class:`.deadline.Deadline`): the vertex checks run in
-    blocks in value order and stop once it has expired; the variants are then those of
-    the blocks checked, none when it had expired already (``deadline.hit`` tells the
-    caller the list is cut).
+    blocks of 512 candidates in value order, and the blocks after the first stop once it
+    has expired (only a long list, such as pairs on a large shelf, is ever cut); the
+    variants are then those of the blocks checked (``deadline.hit`` tells the caller).
     """
     free = PLANS[network].free
     if free is None or free not in cands:
@@ -148,7 +148,7 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
     parts: list[dict[str, np.ndarray]] = []
     block = 512 if deadline is not None else max(fj.size, 1)
     for a in range(0, fj.size, block):
-        if deadline is not None and deadline.expired():
+        if deadline is not None and parts and deadline.expired():
             break
         sub = fj[a:a + block]
         arr = {r: (cands[r], np.full(sub.size, i, dtype=np.int64)) for r, i in core.items()}
@@ -157,8 +157,6 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
         parts.append({"fj": sub, "ok": np.asarray(chk["ok"], dtype=bool),
                       "vce": np.asarray(chk["vce_min"]), "lo": np.asarray(chk["ic_min"]),
                       "hi": np.asarray(chk["ic_max"])})
-    if not parts:
-        return free, []
     ok = np.concatenate([p["ok"] for p in parts])
     fj = np.concatenate([p["fj"] for p in parts])[ok]
     vce = np.concatenate([p["vce"] for p in parts])[ok]
@@ -223,7 +221,7 @@ def design_variants(s, k: int, verify: bool, deadline=None
         verified: bool | None = None
         if v.index == rep:
             verified = True
-        elif verify and (deadline is None or not deadline.expired()):
+        elif verify:
             trial = {r: p for r, p in s.resolved(k)[1].items() if r != free}
             trial[free] = part
             res = _analyze(s.job, s.stage, trial, b.transistor, samples=0,
