@@ -87,22 +87,7 @@ def shelf(series: str, n_q: int, lo: float = 10.0, hi: float = 1e6, seed: int = 
     return Inventory(f"<{series}>", rs, tuple(qs))
 
 
-STOCK_HEADER = ("kind,part_id,value,tolerance_pct,power_w,tempco_ppm,qty,unit_cost,polarity,"
-                "hfe_min,hfe_max,vceo_max,ic_max,pd_max_w,vbe_min,vbe_max")
 SAMPLES = Path(__file__).resolve().parent.parent / "inventory_samples"
-
-
-def write_stock(inv: Inventory, path: Path) -> None:
-    """The generated shelf as a stock file (the columns ``stock check`` reads)."""
-    lines = [STOCK_HEADER]
-    for r in inv.resistors:
-        lines.append(f"resistor,{r.part_id},{r.value_ohm:.17g},{r.tolerance_pct:g},"
-                     f"{r.power_w:g},{r.tempco_ppm:g},{r.qty},{r.unit_cost:g},,,,,,,,")
-    for q in inv.transistors:
-        lines.append(f"transistor,{q.part_id},,,,,{q.qty},{q.unit_cost:g},{q.polarity},"
-                     f"{q.hfe_min:g},{q.hfe_max:g},{q.vceo_max:g},{q.ic_max:g},{q.pd_max_w:g},"
-                     f"{q.vbe_min:g},{q.vbe_max:g}")
-    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
 
 
 def fresh(job_file: Path, stock: Path) -> tuple[float, float, dict]:
@@ -190,7 +175,6 @@ def naive(job, inv: Inventory, budget_s: float) -> tuple[float, bool]:
     return time.perf_counter() - t0, True
 
 
-SAMPLES = Path(__file__).resolve().parent.parent / "inventory_samples"
 
 
 def _shelf_csv(inv: Inventory, path: Path) -> None:
@@ -313,7 +297,7 @@ def main() -> None:
             cpus.append(time.process_time() - c0)
         el, el_cpu = sorted(times)[1], sorted(cpus)[1]
         stock, job_file = tmp / f"{series}_{n_q}.csv", tmp / f"{series}_{n_q}_{pairs}.toml"
-        write_stock(inv, stock)
+        _shelf_csv(inv, stock)
         job_file.write_text(text, encoding="utf-8")
         wall, cpu, res = fresh(job_file, stock)
         assert res["status"] == r.status, (res["status"], r.status)
@@ -330,7 +314,7 @@ def main() -> None:
         el, el_cpu = time.perf_counter() - t0, time.process_time() - c0
         base, finished = naive(job, inv, budget_s=60 if not args.quick else 10)
         stock, job_file = tmp / f"E12_{lo:g}_{n_q}.csv", tmp / f"E12_{lo:g}_{n_q}.toml"
-        write_stock(inv, stock)
+        _shelf_csv(inv, stock)
         job_file.write_text(JOB.format(pairs="false"), encoding="utf-8")
         wall, cpu, _res = fresh(job_file, stock)
         rows.append((f"E12 {lo:g}-8k2", len(inv.resistors), n_q, "off", el, el_cpu, r.status,

@@ -56,10 +56,10 @@ time_limit_s = 60
 def write_problem(folder: Path) -> tuple[Path, Path]:
     """The stock file and job file of the problem (the shelf of ``bench_search.shelf``)."""
     sys.path.insert(0, str(Path(__file__).parent))
-    from bench_search import shelf, write_stock
+    from bench_search import _shelf_csv, shelf
 
     stock, job = folder / "small_shelf.csv", folder / "small_job.toml"
-    write_stock(shelf("E12", 4, lo=100.0, hi=8.2e3), stock)
+    _shelf_csv(shelf("E12", 4, lo=100.0, hi=8.2e3), stock)
     job.write_text(JOB, encoding="utf-8")
     return stock, job
 
