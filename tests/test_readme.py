@@ -160,6 +160,8 @@ def _run(step: Step, folder: Path, monkeypatch: pytest.MonkeyPatch) -> tuple[int
     if words[0] == "cp" and len(words) == 3:
         shutil.copyfile(folder / words[1], folder / words[2])
         return 0, ""
+    if words[0] == "cat" and len(words) == 2:
+        return 0, (folder / words[1]).read_text()
     if words[0] == "ngspice":
         if shutil.which("ngspice") is None:
             pytest.skip("ngspice is not installed")
