@@ -300,9 +300,10 @@ def main() -> None:
         _shelf_csv(inv, stock)
         job_file.write_text(text, encoding="utf-8")
         wall, cpu, res = fresh(job_file, stock)
-        assert res["status"] == r.status, (res["status"], r.status)
+        # a busy machine can cut one run and not the other: then both statuses are shown
+        status = r.status if res["status"] == r.status else f"{r.status} / {res['status']}"
         rows.append((series, len(inv.resistors), n_q, "on" if pairs else "off", el, el_cpu,
-                     r.status, r.stats.get("rows", 0), r.stats.get("designs_vertex_checked", 0),
+                     status, r.stats.get("rows", 0), r.stats.get("designs_vertex_checked", 0),
                      None, (wall, cpu)))
         print(rows[-1], flush=True)
     # the baseline: 12 lines (E12 1k-8k2), 24 lines (E12 100R-8k2), 1 and 20 transistors
