@@ -443,3 +443,14 @@ def test_plots_draw_the_window_of_the_stage_checked() -> None:
                   for h in ax.get_legend_handles_labels()[0]]
         assert any("target" in x and "1.8–4.2 mA" in x for x in labels), labels
         assert not any("0.3–0.7 mA" in x for x in labels), labels
+
+
+def test_board_check_schema_holds_the_check_schema_unchanged() -> None:
+    # the board schema embeds check.schema.json as $defs.check (its $defs lifted to the
+    # root); a change to the check schema must be made in both
+    check, board = schema("check"), schema("board_check")
+    body = {k: v for k, v in check.items()
+            if k not in ("$schema", "title", "description", "$defs")}
+    assert board["$defs"]["check"] == body
+    for name, definition in check["$defs"].items():
+        assert board["$defs"][name] == definition
