@@ -125,7 +125,8 @@ def wrap_plain(text: str, width: int, indent: int = 2) -> list[str]:
 class WrappingConsole(Console):
     """A console whose plain lines wrap to its width without cutting a value.
 
-    ``print`` of strings (markup allowed) wraps them between words (see
+    ``print`` of strings (markup allowed; a ``Text`` is taken as laid out) wraps them
+    between words (see
     :func:`break_points`), continuation lines indented two spaces beyond the line's
     own indent; anything else (tables, or a call with ``soft_wrap`` given) is printed
     by rich unchanged.
@@ -140,14 +141,13 @@ class WrappingConsole(Console):
 
     def print(self, *objects: Any, **kwargs: Any) -> None:
         if (kwargs.get("soft_wrap") is not None or not objects
-                or not all(isinstance(o, (str, Text)) for o in objects)
+                or not all(isinstance(o, str) for o in objects)
                 or set(kwargs) - {"style", "markup", "highlight", "sep"}):
             super().print(*objects, **kwargs)
             return
         markup = kwargs.get("markup")
         sep = kwargs.get("sep", " ")
-        parts = [o if isinstance(o, Text) else
-                 self.render_str(o, markup=markup, highlight=False) for o in objects]
+        parts = [self.render_str(o, markup=markup, highlight=False) for o in objects]
         text = Text(sep).join(parts)
         style = kwargs.get("style")
         width = max(self.width, 20)
