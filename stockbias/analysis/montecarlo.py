@@ -41,8 +41,14 @@ from .stage import (
 )
 from .statistics import YieldResult, draw_resistor_factors, draw_uniform, yield_from_counts
 
-__all__ = ["HISTOGRAM_BINS", "STREAM_BLOCK", "MonteCarloResult", "board_values",
-           "block_rng", "monte_carlo"]
+__all__ = [
+    "HISTOGRAM_BINS",
+    "STREAM_BLOCK",
+    "MonteCarloResult",
+    "block_rng",
+    "board_values",
+    "monte_carlo",
+]
 
 #: Boards per random stream: the fixed grid a result is reproducible on.  Changing it
 #: changes every result; it is part of what a seed means.

@@ -50,7 +50,8 @@ def curve_figure(t: Transistor) -> Any:
     ax_h.axvspan(lo * 1e3, hi * 1e3, color="0.93", zorder=0, label="where the data hold")
     ax_h.set_ylabel("hFE (IC/IB)")
     ax_v.set_ylabel("VBE, V")
-    ax_v.set_xlabel(f"collector current IC, mA (VCE {points.vce[0] if points is not None else _VCE_V:g} V)")
+    vce = points.vce[0] if points is not None else _VCE_V
+    ax_v.set_xlabel(f"collector current IC, mA (VCE {vce:g} V)")
     ax_h.set_title(f"{t.part_id}: {card.source}", fontsize=9)
     ax_h.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=7)  # beside the axes
     for ax in (ax_h, ax_v):

@@ -195,10 +195,12 @@ def ic_histogram_figure(result: CheckResult, job: Job) -> Any:
         inside = mc.ic_window_boards / y.samples
         ax.set_xlabel("collector current IC (mA)")
         ax.set_ylabel("count (board × corner)")
+        from .yield_text import interval_text, percent_text
+
         ax.set_title(f"IC spread, {result.topology} with {result.transistor.part_id}\n"
                      f"boards inside the IC window at every corner {100 * inside:.2f} %\n"
-                     f"yield over all constraints {100 * y.yield_:.2f} % "
-                     f"(95 % interval {100 * y.low:.2f}–{100 * y.high:.2f} %)")
+                     f"yield over all constraints {percent_text(y.yield_)} % "
+                     f"({interval_text(y.low, y.high)})")
         ax.grid(True, axis="y", color="0.9", lw=0.6)
         # below the axes: a legend inside would cover bars wherever the peaks fall
         fig.legend(loc="outside lower center", ncols=2, frameon=False)

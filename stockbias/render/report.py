@@ -29,6 +29,7 @@ from .html_blocks import esc as _e
 from .html_blocks import figure as _figure
 from .html_blocks import quantity as _q
 from .html_blocks import table as _table
+from .yield_text import interval_text, percent_text
 
 __all__ = ["CAUTION_FOOTER", "constraint_cells", "render_report", "render_report_html"]
 
@@ -302,8 +303,8 @@ def _check_section(heading: str, job: Job, r: CheckResult, plots: bool) -> str:
         y = mc.yield_
         fails = ", ".join(f"{k} {v}" for k, v in mc.failing.items()) or "none"
         out.append(f"<h3>Monte Carlo</h3><p>{y.samples} boards (seed {mc.seed}), each at every "
-                   f"supply × ambient extreme: yield <b>{100 * y.yield_:.2f} %</b> (95 % "
-                   f"interval {100 * y.low:.2f}–{100 * y.high:.2f} %); failing boards by "
+                   f"supply × ambient extreme: yield <b>{percent_text(y.yield_)} %</b> "
+                   f"({interval_text(y.low, y.high)}); failing boards by "
                    f"constraint: {_e(fails)}</p>")
     if plots:
         from .plots import figure_bytes, ic_histogram_figure, qpoint_figure

@@ -9,12 +9,18 @@ from ..inert_text import console_text
 from ..job import Job
 from .blocks import fill as _fill
 from .design_table import design_block
+from .yield_text import lower_percent, percent_text
 
 __all__ = ["render_yield_design"]
 
 
 def _pct(x: float) -> str:
-    return f"{100 * x:.3f} %"
+    return f"{percent_text(x, 3)} %"
+
+
+def _low(x: float) -> str:
+    """A lower bound, rounded down: it never claims more than the counts support."""
+    return f"{lower_percent(x)} %"
 
 
 def render_yield_design(console: Console, job: Job, result) -> None:
@@ -62,14 +68,14 @@ def render_yield_design(console: Console, job: Job, result) -> None:
         if d.evidence == "worst case":
             items.append("yield 1: passes every worst-case corner")
         elif d.evidence == "sub-box":
-            items.append(f"yield ≥ {_pct(d.box_mass)}: passes the sub-box that holds that "
+            items.append(f"yield ≥ {_low(d.box_mass)}: passes the sub-box that holds that "
                          "share of boards")
         else:
             j = d.judged
             items.append(f"judged {_pct(j.yield_)} of {j.samples:,} boards (≥ "
-                         f"{_pct(d.judged_low)})")
+                         f"{_low(d.judged_low)})")
         items.append(f"final check {_pct(mc.yield_.yield_)} of {mc.yield_.samples:,} fresh "
-                     f"boards (≥ {_pct(d.check_low)})")
+                     f"boards (≥ {_low(d.check_low)})")
         fails = [c.name for c in d.check.constraints if not c.ok and c.name != "yield_min"]
         if fails:
             items.append("worst case fails " + ", ".join(fails))

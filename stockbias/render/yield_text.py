@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["interval_text", "percent_text", "yield_text"]
+__all__ = ["interval_text", "lower_percent", "percent_text", "yield_text"]
 
 _MAX_DIGITS = 8
 
@@ -74,6 +74,11 @@ def interval_text(low: float, high: float, confidence: str = "95 %", digits: int
         if float(b) < 100.0 and float(a) > 0.0 and a != b:
             return f"{confidence} interval {a}–{b} %"
     return f"{confidence} interval {_down(lo, _MAX_DIGITS)}–{_up(hi, _MAX_DIGITS)} %"
+
+
+def lower_percent(fraction: float, digits: int = 3) -> str:
+    """A lower bound on a fraction as a percentage, rounded down (never claims more)."""
+    return _down(100.0 * fraction, digits)
 
 
 def yield_text(yield_: float, low: float, high: float, samples: int) -> str:

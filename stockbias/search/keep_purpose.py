@@ -280,5 +280,7 @@ def change_text(before: float | None, after: float | None, unit: str) -> str:
 
     text = f"{one(before)} → {one(after)}{' V/V' if unit == 'V/V' else ''}"
     if before is not None and after is not None and before != 0:
-        text += f" ({100 * (after / before - 1):+.0f} %)"
+        change = 100 * (after / before - 1)
+        text += f" ({change:+.0f} %)" if round(change) != 0 else " (±0 %)" if change == 0 \
+            else f" ({change:+.1g} %)"
     return text

@@ -17,7 +17,6 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass
-
 from typing import TYPE_CHECKING
 
 from .model import ModelDesign, build_model
