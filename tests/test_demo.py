@@ -28,9 +28,9 @@ def _printed_commands(output: str) -> list[list[str]]:
     A command wider than the terminal is printed on lines of its own joined by shell
     line continuations (`` \\`` at a line's end); they are read back as one line."""
     output = re.sub(r" \\\n\s*", " ", output)
-    output = re.sub(r":\n\s+stockbias ", ": stockbias ", output)
-    found = re.findall(r"(?:Equivalent command|Next: [^:]*|in spec): (stockbias .*)$", output,
-                       flags=re.MULTILINE)
+    output = re.sub(r":\n\s+(\S*stockbias) ", r": \1 ", output)
+    found = re.findall(r"(?:Equivalent command|Next: [^:]*|in spec): ((?:\S*/)?stockbias .*)$",
+                       output, flags=re.MULTILINE)
     return [shlex.split(c) for c in found]
 
 
@@ -146,6 +146,8 @@ def test_an_installed_wheel_runs_the_demo_from_any_folder(tmp_path: Path) -> Non
     assert "Status: optimal" in demo.stdout
     commands = _printed_commands(demo.stdout)
     assert len(commands) == 3
+    # `stockbias` is not on the PATH here: the commands name the program as it was started
+    assert all(Path(words[0]) == env_dir / "bin" / "stockbias" for words in commands)
     for words in commands:
         assert all(Path(w).is_relative_to(env_dir) for w in words if w.endswith(".csv"))
     check = subprocess.run([str(env_dir / "bin" / "stockbias"), *commands[1][1:]], cwd=where,

@@ -45,7 +45,8 @@ def demo(
         console.print(console_text(f"Sample files copied to {shown_path(folder)}"))
     console.print(f"Shelf: {shelf.name} ({len(inv.resistors)} resistor lines, "
                   f"{len(inv.transistors)} transistors); job: {job_path.name}")
-    console.print(console_text(f"Equivalent command: stockbias design {job_arg} "
+    prog = _program()
+    console.print(console_text(f"Equivalent command: {prog} design {job_arg} "
                                f"--inventory {shelf_arg}"))
     result = design(job, inv)
     result.assumptions[:0] = [a for a in assumed if a not in result.assumptions]
@@ -65,13 +66,32 @@ def demo(
         best = from_design(result.designs[0].to_dict(), "demo rank 1")
         console.print(console_text(
             "Next: the full worst-case report of the best design: "
-            f"stockbias check {job_arg} --inventory {shelf_arg} "
+            f"{prog} check {job_arg} --inventory {shelf_arg} "
             f"--values {best.assignment_text()} --transistor {best.transistor_id}"))
     console.print(console_text(
         "A whole board: the bundled four-stage board onto fewer drawer lines, every stage "
-        f"still in spec: stockbias consolidate {board_arg} --inventory {shelf_arg}"))
+        f"still in spec: {prog} consolidate {board_arg} --inventory {shelf_arg}"))
     if folder is None:
-        console.print("Your own copies of these files: stockbias demo --copy-to FOLDER")
+        console.print(console_text(f"Your own copies of these files: {prog} demo --copy-to "
+                                   "FOLDER"))
+
+
+def _program() -> str:
+    """How the user runs stockbias from here: ``stockbias`` when that name on the PATH is
+    this program, else the path it was started by (``.venv/bin/stockbias`` straight after
+    the Quick start, before the environment is activated)."""
+    import shutil
+    import sys
+
+    from ..samples import shown_path
+
+    started = Path(sys.argv[0])
+    if started.name != "stockbias":
+        return "stockbias"  # python -m stockbias, or a test runner
+    found = shutil.which("stockbias")
+    if found is not None and Path(found).resolve() == started.resolve():
+        return "stockbias"
+    return shown_path(started)
 
 
 def _copy_samples(folder: Path, force: bool) -> Path:

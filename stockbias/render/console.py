@@ -43,7 +43,8 @@ _PATH = re.compile(r"[^ ]*[/\\][^ ]*")
 
 #: The start of a stockbias command line shown for copying.
 _COMMAND = re.compile(
-    r"(?<![`\w])stockbias (?:demo|stock|check|design|substitute|consolidate|export)\b")
+    r"(?<![`\w./-])(?:[\w.-]*/)*stockbias "
+    r"(?:demo|stock|check|design|substitute|consolidate|export|board|sweep)\b")
 
 #: A label this short before a path stays on the path's line ("Report written: /a/b").
 _LABEL_MAX = 24
