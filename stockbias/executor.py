@@ -14,6 +14,7 @@ imported only when a cluster address is given.
 from __future__ import annotations
 
 import os
+from abc import ABC, abstractmethod
 from collections import deque
 from collections.abc import Callable, Iterator, Sequence
 from typing import Any, Protocol, TypeVar
@@ -45,11 +46,12 @@ def cpu_count() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-class _Base:
+class _Base(ABC):
     """``map`` from ``imap``."""
 
+    @abstractmethod
     def imap(self, fn: Callable[[Any], R], tasks: Sequence[Any]) -> Iterator[R]:
-        raise NotImplementedError
+        """Results in task order."""
 
     def map(self, fn: Callable[[Any], R], tasks: Sequence[Any]) -> list[R]:
         """Every result, in task order."""
