@@ -481,13 +481,7 @@ def free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor,
     h = np.full(n, np.inf)
     ic_top = np.zeros(n)
     xc = cands[plan.interval]
-    settings: list[dict[str, np.ndarray]] = [{}]
-    for role in plan.enumerated:
-        c = cands[role]
-        lo, hi = c.low[idx[role]], c.high[idx[role]]
-        d = plan.ic_dir[role]
-        settings = [{**s, role: v} for s in settings
-                    for v in ((lo, hi) if d == 0 else ((hi,) if d > 0 else (lo,)))]
+    settings = _ends(plan, cands, idx, up=True)
     alpha = cn.beta_hi / (cn.beta_hi + 1)
     for s in settings:
         for vcc in (cn.vcc_hi, cn.vcc_lo):
