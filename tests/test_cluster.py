@@ -16,11 +16,11 @@ import pytest
 
 pytest.importorskip("distributed")
 
-from stockbias.analysis.montecarlo import STREAM_BLOCK, monte_carlo  # noqa: E402
-from stockbias.executor import DaskCluster, InProcess  # noqa: E402
+from test_montecarlo_stream import LIMITS, _same
+from test_worst_case import make_spec
 
-from test_montecarlo_stream import LIMITS, _same  # noqa: E402
-from test_worst_case import make_spec  # noqa: E402
+from stockbias.analysis.montecarlo import STREAM_BLOCK, monte_carlo
+from stockbias.executor import DaskCluster, InProcess
 
 DASK = str(Path(sys.executable).with_name("dask"))
 
@@ -37,7 +37,8 @@ def cluster(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
     address = f"tcp://127.0.0.1:{port}"
     logs = tmp_path_factory.mktemp("dask")
     env = {**os.environ, "PYTHONWARNINGS": "ignore"}
-    files = [open(logs / f"{name}.log", "w") for name in ("scheduler", "worker0", "worker1")]
+    files = [open(logs / f"{name}.log", "w")  # noqa: SIM115 - closed with the processes
+             for name in ("scheduler", "worker0", "worker1")]
     procs = [subprocess.Popen([DASK, "scheduler", "--host", "127.0.0.1", "--port", str(port),
                                "--no-dashboard"], stdout=subprocess.DEVNULL,
                               stderr=files[0], env=env)]

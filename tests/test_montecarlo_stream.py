@@ -5,13 +5,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from test_worst_case import make_spec
 
 from stockbias.analysis.constraints import Limit
 from stockbias.analysis.histogram import Histogram
 from stockbias.analysis.montecarlo import STREAM_BLOCK, board_values, monte_carlo
 from stockbias.executor import InProcess, LocalProcesses, make_executor
-
-from test_worst_case import make_spec
 
 LIMITS = [Limit("ic_min", "ic", "min", 1.05e-3, "A", ""),
           Limit("ic_max", "ic", "max", 1.45e-3, "A", ""),

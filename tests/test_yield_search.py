@@ -216,7 +216,8 @@ def test_candidates_sampled_together_count_what_each_run_alone_counts(shelves) -
         specs.append(spec)
         limits.append(stage_limits(job, job.stage, spec, {r: p.rating for r, p in parts.items()}))
         tempcos.append({r: p.tempco_ppm for r, p in parts.items()})
-    assert len({group_key(s, lim, t) for s, lim, t in zip(specs, limits, tempcos)}) == 1
+    keys = {group_key(s, lim, t) for s, lim, t in zip(specs, limits, tempcos, strict=True)}
+    assert len(keys) == 1
     n = 3 * 1024 + 100
     together = passing_counts(specs, limits, tempcos, n, seed=5, stream=1)
     alone = [monte_carlo(s, lim, n, 5, tempco_ppm=t, stream=1).yield_.passed

@@ -16,6 +16,7 @@ No traceback reaches the user.
 
 from __future__ import annotations
 
+import contextlib
 import sys
 from collections.abc import Sequence
 from typing import Annotated, Any
@@ -58,10 +59,8 @@ def _interrupted() -> None:
 
 def _say(line: str) -> None:
     """One line on stderr; a closed stderr has nobody to tell, and the exit code stands."""
-    try:
+    with contextlib.suppress(BrokenPipeError):
         typer.echo(line, err=True)
-    except BrokenPipeError:
-        pass
 
 
 class _Command(typer.core.TyperCommand):

@@ -10,6 +10,7 @@ interrupt until it returns.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import platform
 import signal
@@ -135,10 +136,8 @@ def output_closed() -> None:
     buffered for stdout goes to the null device, so that the interpreter's last
     flush is quiet too, and the command ends with exit 0 (the caller exits).
     """
-    try:
+    with contextlib.suppress(OSError, ValueError):
         sys.stdout.flush()
-    except (OSError, ValueError):
-        pass
     try:
         fd = sys.stdout.fileno()
     except (AttributeError, OSError, ValueError):  # not a real file (a test runner's)
