@@ -314,3 +314,15 @@ def test_consolidate_shows_ids_and_stage_names_literally(shelf, columns: int) ->
     assert result.exit_code in (0, 1), result.output
     assert "[red]input" in result.output
     assert_literal(result.output, ids, [])
+
+
+@pytest.mark.parametrize(("name", "kind", "sign"), [
+    ("gain_nominal_min", "min", "≥"), ("gain_nominal_max", "max", "≤"),
+    ("supply_current_max", "max", "≤"), ("rin_min", "min", "≥")])
+def test_every_limit_shows_the_comparison_its_kind_says(name: str, kind: str, sign: str) -> None:
+    """The sign beside a limit comes from the limit's own kind (a kept stage's nominal gain
+    band has a lower and an upper end), not from a list of names kept beside the renderer."""
+    from stockbias.analysis.constraints import ConstraintResult
+    from stockbias.render.check_table import constraint_lines
+    c = ConstraintResult(name, 10.0, 12.0, 2.0, True, "V/V", "a limit", None, kind)
+    assert f"ok[/green]    {name} {sign} 10 V/V   worst 12 V/V" in constraint_lines(c, 80)[0]

@@ -32,10 +32,6 @@ _MODEL_NAMES = {"constant_vbe": "constant-VBE", "exponential": "exponential (Gum
 
 _REGION_WORDS = (("active", "active"), ("saturated", "saturated"), ("cutoff", "cut off"))
 
-#: limits whose worst value must stay at or above the limit (the others: at or below)
-_AT_LEAST = ("ic_min", "vce_min", "swing_saturation", "swing_cutoff", "gain_min", "yield_min",
-             "rin_min", "divider_ratio_min")
-
 #: the indent of a block's second and later lines
 _PAD = "        "
 
@@ -97,7 +93,7 @@ def constraint_lines(c: ConstraintResult, width: int, regions: dict[str, int] | 
         text = f"{c.name}: {region_verdict(regions, n_corners)}"
         lines = fill([(f"{mark[0]}  {text}", f"{mark[1]}  {console_text(text)}")], width, "  ")
         return lines + ([] if c.ok else corner_lines(c.corner, width, lead="e.g. at "))
-    sign = "≥" if c.name in _AT_LEAST else "≤"
+    sign = c.sign
     lim, wst, mgn, unit = shown_in_percent(c)
     worst = _q(wst, unit) if wst == wst else "n/a"
     margin = _q(mgn, unit) if mgn not in (float("inf"), float("-inf")) \
