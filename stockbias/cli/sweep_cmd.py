@@ -34,6 +34,7 @@ def sweep(
     from ..executor import make_executor
     from ..inert_text import console_text, spreadsheet_row
     from ..outputs import OutputSet
+    from ..render.blocks import print_lines, prose
     from ..render.console import make_console
     from ..render.json_out import dumps
     from ..search.sweep import stage_tasks, sweep_stage
@@ -93,7 +94,7 @@ def sweep(
                 head += f", added cost {r.added_cost:.4g}/board"
             if r.note:
                 head += f" — {r.note}"
-            console.print(console_text(head), soft_wrap=False, highlight=False)
+            print_lines(console, prose(head, console.width))
         s = _summary(rows)
         console.print(", ".join(f"{v} {k}" for k, v in s.items()) + f" ({len(rows)} stages)")
     if "--csv" in written:
