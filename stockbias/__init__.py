@@ -15,7 +15,7 @@ _API = {
     "load_inventory": ("stockbias.stock_io", "load_inventory"),
     "load_job": ("stockbias.job", "load_job"),
     "analyze": ("stockbias.analysis.check", "analyze"),
-    "design": ("stockbias.search.design", "design"),
+    "design": ("stockbias.search.route", "design"),
     "substitute": ("stockbias.search.substitute", "substitute"),
     "consolidate": ("stockbias.search.consolidate", "consolidate"),
 }

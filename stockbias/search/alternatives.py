@@ -28,7 +28,7 @@ import numpy as np
 
 from ..analysis.check import analyze_stage as _analyze
 from .candidates import micro
-from .design_result import DesignVariant
+from .design_result import VERIFY_SAMPLES, DesignVariant
 from .model import ModelDesign
 from .prepass import PLANS, free_role_bounds, free_role_keep, free_role_range, vertex_check
 from .ranking import count_distinct, margin_ppm, objective_key
@@ -224,7 +224,8 @@ def design_variants(s, k: int, verify: bool, deadline=None
         elif verify:
             trial = {r: p for r, p in s.resolved(k)[1].items() if r != free}
             trial[free] = part
-            res = _analyze(s.job, s.stage, trial, b.transistor, samples=0,
+            samples = VERIFY_SAMPLES if s.stage.target.yield_min is not None else 0
+            res = _analyze(s.job, s.stage, trial, b.transistor, samples=samples,
                            seed=s.job.search.seed, topology=b.network)
             verified = bool(res.ok)
             if not verified:

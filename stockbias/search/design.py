@@ -68,7 +68,7 @@ from .candidates import (
     usable_transistors,
 )
 from .deadline import Deadline
-from .design_result import Design, DesignResult
+from .design_result import VERIFY_SAMPLES, Design, DesignResult
 from .model import ModelDesign
 from .prepass import (
     PLANS,
@@ -456,7 +456,7 @@ class _Search(RowScan):
                  int(b.cands[r].line_b[i])) for r, i in self.pool.roles[k].items())))
             res = self.checks.get(pk)
             if res is None:
-                samples = 2000 if self.stage.target.yield_min is not None else 0
+                samples = VERIFY_SAMPLES if self.stage.target.yield_min is not None else 0
                 res = analyze_stage(self.job, self.stage, parts, b.transistor,
                                     samples=samples, seed=self.job.search.seed,
                                     topology=b.network)

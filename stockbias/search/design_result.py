@@ -9,7 +9,11 @@ from ..assign import ResolvedResistor
 from ..parts import Transistor
 from ..topologies import get_network
 
-__all__ = ["Design", "DesignResult", "DesignVariant"]
+__all__ = ["VERIFY_SAMPLES", "Design", "DesignResult", "DesignVariant"]
+
+#: Monte Carlo boards the worst-case search checks a design with when the job also sets
+#: ``yield_min`` (the point yield is one more limit there; explanations judge alike).
+VERIFY_SAMPLES = 2000
 
 
 @dataclass(frozen=True)

@@ -19,6 +19,7 @@ from dataclasses import dataclass, field, replace
 from ..job import Job
 from ..parts import Inventory
 from ..units import format_quantity
+from .design_result import VERIFY_SAMPLES
 
 __all__ = ["Explanation", "explain"]
 
@@ -42,10 +43,12 @@ class Explanation:
 
 
 def _closest(job: Job, found) -> tuple[dict[str, object], list[dict[str, object]]]:
-    """The found design analysed against the original job."""
+    """The found design analysed against the original job (a job with a yield target is
+    judged with the Monte Carlo boards the search verifies its designs with)."""
     from ..analysis.check import analyze_stage
 
-    res = analyze_stage(job, job.stage, found.check.parts, found.transistor, samples=0,
+    samples = VERIFY_SAMPLES if job.stage.target.yield_min is not None else 0
+    res = analyze_stage(job, job.stage, found.check.parts, found.transistor, samples=samples,
                         seed=job.search.seed, topology=found.topology)
     misses = [c.to_dict() for c in res.constraints if not c.ok]
     closest = {"topology": found.topology, "transistor": found.transistor.part_id,

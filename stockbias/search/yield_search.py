@@ -47,14 +47,25 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 
-from ..analysis.check import CheckResult, analyze_stage, build_spec
-from ..analysis.constraints import stage_limits
-from ..analysis.statistics import TRUNCATION_SIGMAS, YieldResult, one_sided_bounds
+from ..analysis.check import CheckResult
+from ..analysis.statistics import TRUNCATION_SIGMAS, YieldResult
 from ..assign import ResolvedResistor, resolve_resistor
 from ..job import Job
 from ..parts import Inventory, Transistor
 from .design import design
 from .design_result import Design, DesignResult
+from .yield_evidence import (
+    SCREEN_SAMPLES,
+    STREAM_CHECK,
+    YIELD_SAMPLES,
+    Trial,
+    clopper,
+    final_check,
+    judge,
+    plain_job,
+    screen_counts,
+    upper_screen,
+)
 
 __all__ = ["LEVELS", "SCREEN_SAMPLES", "YIELD_SAMPLES", "YieldDesign", "YieldDesignResult",
            "box_mass", "shrunk_inventory", "yield_design"]
@@ -62,11 +73,6 @@ __all__ = ["LEVELS", "SCREEN_SAMPLES", "YIELD_SAMPLES", "YieldDesign", "YieldDes
 #: (resistor tolerance factor k, hFE/VBE range fraction f) of each box searched; the first
 #: is the job's own box.
 LEVELS: tuple[tuple[float, float], ...] = ((1.0, 1.0), (2.0 / 3, 0.99), (1.5 / 3, 0.97))
-#: Boards per candidate in the screening pass (stream 1).
-SCREEN_SAMPLES = 2_000
-#: Boards per candidate when it is judged (stream 2) and in the final check (stream 3).
-YIELD_SAMPLES = 20_000
-STREAM_SCREEN, STREAM_JUDGE, STREAM_CHECK = 1, 2, 3
 #: Designs asked of each box's worst-case search at least (--top asks more).
 PER_LEVEL = 5
 
@@ -119,6 +125,10 @@ class _Candidate:
     screen_high: float | None = None
     judged: YieldResult | None = None
     judged_low: float | None = None
+
+    @property
+    def trial(self) -> Trial:
+        return Trial(self.parts, self.transistor, self.design.topology)
 
 
 @dataclass
@@ -204,57 +214,6 @@ def _network(d: Design) -> tuple[object, ...]:
             tuple(sorted((r, _text(p)) for r, p in d.check.parts.items() if r != d.free_role)))
 
 
-def _sample_task(task: tuple) -> tuple[int, int]:
-    """Monte Carlo of one candidate (module level: it runs in worker processes too)."""
-    from ..analysis.montecarlo import monte_carlo
-
-    spec, limits, tempcos, n, seed, stream, ranges = task
-    mc = monte_carlo(spec, limits, n, seed, tempco_ppm=tempcos, stream=stream, ranges=ranges)
-    return mc.yield_.passed, mc.yield_.samples
-
-
-def _group_task(task: tuple) -> list[int]:
-    """Pass counts of one group of candidates on common boards (runs in workers too)."""
-    from ..analysis.mc_candidates import passing_counts
-
-    specs, limits, tempcos, n, seed, stream = task
-    return passing_counts(specs, limits, tempcos, n, seed, stream)
-
-
-def _screen(ex: object, job: Job, cands: list[_Candidate]) -> list[tuple[int, int]]:
-    """(passed, samples) of every candidate on the screening boards: candidates that share
-    network, transistor and piece structure vectorised together (candidates × boards ×
-    corners), one executor task per group."""
-    from ..analysis.mc_candidates import group_key
-
-    tasks = _tasks(job, cands, SCREEN_SAMPLES, STREAM_SCREEN)
-    groups: dict[object, list[int]] = {}
-    for i, (spec, limits, tempcos, *_rest) in enumerate(tasks):
-        key = group_key(spec, limits, tempcos)
-        groups.setdefault(("alone", i) if key is None else key, []).append(i)
-    members = list(groups.values())
-    work = [([tasks[i][0] for i in g], [tasks[i][1] for i in g], [tasks[i][2] for i in g],
-             SCREEN_SAMPLES, job.search.seed, STREAM_SCREEN) for g in members]
-    out: list[tuple[int, int]] = [(0, 0)] * len(cands)
-    for g, counts in zip(members, ex.map(_group_task, work), strict=True):  # type: ignore[attr-defined]
-        for i, k in zip(g, counts, strict=True):
-            out[i] = (k, SCREEN_SAMPLES)
-    return out
-
-
-def _tasks(job: Job, cands: list[_Candidate], n: int, stream: int) -> list[tuple]:
-    stage = job.stage
-    out = []
-    vcc = job.supply.volts * (1 + job.supply.tolerance_pct / 100)
-    ranges = {"ic": (0.0, 2 * stage.target.ic_max), "vce": (0.0, vcc)}
-    for c in cands:
-        spec = build_spec(job, stage, c.parts, c.transistor, c.design.topology)
-        limits = stage_limits(job, stage, spec, {r: p.rating for r, p in c.parts.items()})
-        tempcos = {r: p.tempco_ppm for r, p in c.parts.items()}
-        out.append((spec, limits, tempcos, n, job.search.seed, stream, ranges))
-    return out
-
-
 def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
                  time_limit_s: float | None = None, samples: int = YIELD_SAMPLES,
                  executor: object | None = None, progress: Progress | None = None,
@@ -288,7 +247,7 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
     limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
     ex = executor if executor is not None else InProcess()
     # the box searches judge the worst case on their box; the yield is judged here
-    plain = replace(job, stages=(replace(stage, target=replace(target, yield_min=None)),))
+    plain = plain_job(job)
     per_level = max(PER_LEVEL, top)
     cands: dict[tuple[object, ...], _Candidate] = {}
     worst: DesignResult | None = None
@@ -331,10 +290,11 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
         if progress is not None:
             progress(f"screening {m} candidates × {SCREEN_SAMPLES:,} boards",
                      len(levels) / (len(levels) + 2))
-        counts = _screen(ex, job, sampled)
-        for c, (k_pass, n) in zip(sampled, counts, strict=True):
+        counts = screen_counts(ex, job, [c.trial for c in sampled])
+        highs, _each = upper_screen(counts, conf)
+        for c, (k_pass, n), high in zip(sampled, counts, highs, strict=True):
             c.screen = YieldResult(n, k_pass, k_pass / n, *clopper(k_pass, n))
-            c.screen_high = one_sided_bounds(k_pass, n, 1.0 - alpha / m)[1]
+            c.screen_high = high
             if c.screen_high < y_min:
                 screened_out += 1
     alive = [c for c in order if c.mass >= y_min or
@@ -355,21 +315,15 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
                 progress(f"judging candidate {i + 1} of {len(alive)} on {samples:,} boards",
                          (len(levels) + i / max(len(alive), 1)) / (len(levels) + 2))
             judged += 1
-            (k_pass, n), = ex.map(_sample_task, _tasks(job, [c], samples, STREAM_JUDGE))  # type: ignore[attr-defined]
-            low = one_sided_bounds(k_pass, n, conf)[0]
-            c.judged = YieldResult(n, k_pass, k_pass / n, *clopper(k_pass, n))
-            c.judged_low = low
-            if low < y_min:
+            c.judged, c.judged_low = judge(ex, job, c.trial, samples, conf)
+            if c.judged_low < y_min:
                 continue
         if progress is not None:
             progress(f"final check of design {len(chosen) + 1} on fresh boards",
                      (len(levels) + 1) / (len(levels) + 2))
-        check = analyze_stage(job, stage, c.parts, c.transistor, samples=samples,
-                              seed=job.search.seed, topology=c.design.topology,
-                              stream=STREAM_CHECK)
+        check, check_low = final_check(job, c.trial, samples, conf)
         mc = check.monte_carlo
         assert mc is not None
-        check_low = one_sided_bounds(mc.yield_.passed, mc.yield_.samples, conf)[0]
         if check_low < y_min:
             dropped_final.append(f"{c.design.topology} {c.transistor.part_id} "
                                  f"{', '.join(f'{r}={_text(p)}' for r, p in c.parts.items())}: "
@@ -406,13 +360,6 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
             f"{screened_out} screened out, {judged} judged on {samples:,} boards"
             + ("; " + "; ".join(dropped_final) if dropped_final else ""))
     return result
-
-
-def clopper(k: int, n: int) -> tuple[float, float]:
-    """Two-sided 95 % Clopper–Pearson interval (what ``check`` reports)."""
-    from ..analysis.statistics import clopper_pearson
-
-    return clopper_pearson(k, n, 0.95)
 
 
 def _assumptions(worst: DesignResult, chosen: list[YieldDesign]) -> list[str]:
