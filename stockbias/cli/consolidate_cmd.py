@@ -11,7 +11,16 @@ import typer
 from ..errors import InputError
 from . import changes_opts
 from .changes_opts import ChangesOpt, SchematicOpt, SchematicOutOpt
-from .common import BoardArg, ForceOpt, InventoryOpt, JsonOpt, load, search_progress
+from .common import (
+    BoardArg,
+    ClusterOpt,
+    ForceOpt,
+    InventoryOpt,
+    JsonOpt,
+    WorkersOpt,
+    load,
+    search_progress,
+)
 
 if TYPE_CHECKING:  # loaded by the command when it runs
     from ..outputs import OutputSet
@@ -47,6 +56,8 @@ def consolidate(
     schematic: SchematicOpt = None,
     schematic_out: SchematicOutOpt = None,
     force: ForceOpt = False,
+    workers: WorkersOpt = 0,
+    cluster: ClusterOpt = None,
 ) -> None:
     """Merge a board's resistor values onto fewer stock lines, every stage still meeting its
     worst-case targets and keeping its purpose (gain, input resistance, swing, supply
@@ -77,10 +88,19 @@ def consolidate(
         if no_keep_purpose and tolerances:
             raise InputError("--keep-purpose and --no-keep-purpose contradict each other",
                              column="--no-keep-purpose", text=keep_purpose)
+        to_yield = any(s.target.yield_min is not None for s in job.stages)
         with search_progress(json_out, "consolidating") as progress:
-            result = run(job, inv, keep=kept, objectives=order, time_limit_s=time_limit,
-                         progress=progress, keep_purpose=tolerances,
-                         purpose=not no_keep_purpose)
+            if to_yield:   # the stages with yield_min are judged by Monte Carlo
+                from .yield_design import run_yield_consolidate
+
+                result = run_yield_consolidate(
+                    job, inv, keep=kept, objectives=order, time_limit=time_limit,
+                    keep_purpose=tolerances, purpose=not no_keep_purpose, workers=workers,
+                    cluster=cluster, progress=progress)
+            else:
+                result = run(job, inv, keep=kept, objectives=order, time_limit_s=time_limit,
+                             progress=progress, keep_purpose=tolerances,
+                             purpose=not no_keep_purpose)
         if report is not None:
             _stage_report(outs, board_file, job, inv, result)
         rows, notes = [], []
@@ -95,6 +115,10 @@ def consolidate(
         payload["board"] = str(board_file)
         payload["inventory"] = str(inventory)
         typer.echo(dumps(payload))
+    elif to_yield:
+        from ..render.yield_board import render_yield_board
+
+        render_yield_board(make_console(), job, result)
     else:
         from ..render.board_table import render_consolidate
 

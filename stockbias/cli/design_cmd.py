@@ -73,6 +73,13 @@ def design(
                              time_limit=time_limit, json_out=json_out, save=save,
                              workers=workers, cluster=cluster, assumed=assumed)
             return
+        if job.is_board and any(s.target.yield_min is not None for s in job.stages):
+            from .yield_design import run_yield_board
+
+            run_yield_board(outs, job, inv, job_file, inventory, top=top,
+                            time_limit=time_limit, json_out=json_out, save=save,
+                            report=report, workers=workers, cluster=cluster, assumed=assumed)
+            return
         with search_progress(json_out, "searching the shelf") as progress:
             result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress,
                                 verify_variants=variants)

@@ -190,6 +190,13 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
     -------
     ConsolidateResult
     """
+    if any(s.target.yield_min is not None for s in job.stages):
+        # stages with a yield target are judged by Monte Carlo (a YieldBoardResult)
+        from .yield_board import yield_consolidate
+
+        return yield_consolidate(job, inventory, keep=keep, objectives=objectives,  # type: ignore[return-value]
+                                 time_limit_s=time_limit_s, keep_purpose=keep_purpose,
+                                 purpose=purpose, progress=progress)
     t0 = time.monotonic()
     objectives = tuple(objectives or CONSOLIDATE_OBJECTIVES)
     bad = [o for o in objectives if o not in OBJECTIVES or o == "ic_margin"]

@@ -1,9 +1,10 @@
 """``stockbias.design``: the search a job asks for, as the ``design`` command picks it.
 
 A single stage with ``[target] yield_min`` goes to the yield search
-(:func:`.yield_search.yield_design`, a :class:`.yield_search.YieldDesignResult`); every other
-job, boards included, to the worst-case search (:func:`.design.design`, a
-:class:`.design_result.DesignResult`).
+(:func:`.yield_search.yield_design`, a :class:`.yield_search.YieldDesignResult`), a board
+with ``yield_min`` in any stage to the yield board search (:func:`.yield_board.yield_board`,
+a :class:`.yield_board_result.YieldBoardResult`); every other job, boards included, to the
+worst-case search (:func:`.design.design`, a :class:`.design_result.DesignResult`).
 """
 
 from __future__ import annotations
@@ -32,6 +33,10 @@ def design(job: Job, inventory: Inventory, **options: Any) -> Any:
         from .yield_search import yield_design
 
         return yield_design(job, inventory, **options)
+    if job.is_board and any(s.target.yield_min is not None for s in job.stages):
+        from .yield_board import yield_board
+
+        return yield_board(job, inventory, **options)
     from .design import design as worst_case_design
 
     return worst_case_design(job, inventory, **options)
