@@ -3,6 +3,8 @@ per core, and the speed-up from one to two local worker processes.
 
 Run:  python benchmarks/bench_montecarlo.py [--memory 1e5,1e6,1e7] [--rate 1e6] [--workers 2]
       python benchmarks/bench_montecarlo.py --design   (yield design against worst-case design)
+      python benchmarks/bench_montecarlo.py --board    (the same for a board: every stage's
+                                                        yield_min against the worst-case board)
 
 Each measurement runs ``stockbias check`` on the bundled line-driver job (workshop drawers;
 R1 MF-47K5, R2 MF-10K0, RE CF-1K0, RC CF-3K3, QN-LB2) in a fresh process, so its peak
@@ -75,6 +77,53 @@ print(json.dumps({"wall": wall, "cpu": cpu, "cost": None if best is None else be
 """
 
 
+BOARD_CHILD = r"""
+import json, resource, sys, time
+from stockbias.job import parse_job
+from stockbias.samples import sample_path
+from stockbias.search.board import design_board
+from stockbias.search.defaults import with_design_defaults
+from stockbias.search.yield_board import yield_board
+from stockbias.stock_io import read_inventory
+mode, board, shelf = sys.argv[1], sys.argv[2], sys.argv[3]
+text = sample_path(board).read_text()
+if mode == "yield":
+    text = text.replace("[stage.target]\n", "[stage.target]\nyield_min = 99.7\n")
+job, _ = with_design_defaults(parse_job(text, board))
+inv = read_inventory(sample_path(shelf))
+t0, c0 = time.perf_counter(), time.process_time()
+res = yield_board(job, inv) if mode == "yield" else design_board(job, inv)
+wall, cpu = time.perf_counter() - t0, time.process_time() - c0
+best = (res.designs[0].board if mode == "yield" else res.designs[0]) if res.designs else None
+keep = ("candidate_boards", "stage_designs", "proven_without_sampling",
+        "sampled_stage_designs", "screened_out", "judged")
+print(json.dumps({"wall": wall, "cpu": cpu, "cost": None if best is None else best.cost,
+                  "status": res.status,
+                  "boxes": [b["status"] for b in res.stats.get("boxes", [])],
+                  "stats": {k: v for k, v in res.stats.items() if k in keep}}))
+"""
+
+
+def board_bench() -> None:
+    """A board to a yield target (yield_min 99.7 % in every stage) against the worst-case
+    board design of the same board (the bundled distribution amplifier, four stages)."""
+    print("| board, shelf | worst case: CPU (s), wall (s), cost | yield: CPU (s), wall (s), "
+          "cost | CPU ratio | boxes | yield candidates |")
+    print("| --- | --- | --- | --- | --- | --- |")
+    for shelf in ("workshop_drawers.csv", "stockroom_e96_reels.csv"):
+        r = {}
+        for mode in ("worst", "yield"):
+            out = subprocess.run([sys.executable, "-c", BOARD_CHILD, mode,
+                                  "distribution_amp_board.toml", shelf],
+                                 capture_output=True, text=True, check=True)
+            r[mode] = json.loads(out.stdout.strip().splitlines()[-1])
+        w, y = r["worst"], r["yield"]
+        print(f"| distribution_amp_board, {shelf} | {w['cpu']:.2f}, {w['wall']:.1f}, "
+              f"{w['cost']} ({w['status']}) | {y['cpu']:.2f}, {y['wall']:.1f}, {y['cost']} | "
+              f"{y['cpu'] / w['cpu']:.1f}× | {', '.join(y['boxes'])} | {y['stats']} |",
+              flush=True)
+
+
 def design_bench() -> None:
     """Yield design (yield_min 99.7 %) against the worst-case design of the line-driver job."""
     print("| shelf | worst case: CPU (s), cost | yield: CPU (s), cost | CPU ratio | "
@@ -97,9 +146,13 @@ def main() -> None:
     ap.add_argument("--rate", type=float, default=1e6)
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--design", action="store_true")
+    ap.add_argument("--board", action="store_true")
     a = ap.parse_args()
     if a.design:
         design_bench()
+        return
+    if a.board:
+        board_bench()
         return
     print(f"# streamed Monte Carlo, {time.strftime('%Y-%m-%d %H:%M')}")
     print("| boards | workers | wall (s) | CPU (s) | peak RSS, main (MiB) | "
