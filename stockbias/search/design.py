@@ -138,6 +138,10 @@ class _Search(RowScan):
         self.pair_roles_limited: list[str] = []
         self.timed_out = False
         self.coverage = Coverage(len(self.transistors))
+        #: the longest full check so far, s (a cut run starts no check it cannot finish)
+        self.verify_s = 0.0
+        #: networks a cut run left unchecked for want of time (after the search)
+        self.unverified_networks = 0
         self._seen = self._mark = 0.0     # fractions of the row order loaded / searched
         self.stats: dict[str, int] = {"cores": 0, "designs_vertex_checked": 0,
                                       "designs_kept": 0, "verified": 0, "row_units": 0,
@@ -457,11 +461,13 @@ class _Search(RowScan):
             res = self.checks.get(pk)
             if res is None:
                 samples = VERIFY_SAMPLES if self.stage.target.yield_min is not None else 0
+                t0 = time.monotonic()
                 res = analyze_stage(self.job, self.stage, parts, b.transistor,
                                     samples=samples, seed=self.job.search.seed,
                                     topology=b.network)
                 self.checks[pk] = res
                 self.stats["verified"] += 1
+                self.verify_s = max(self.verify_s, time.monotonic() - t0)
             if not res.ok:
                 self.rejected_on_verification += 1
             self.verified[ck] = res if res.ok else None
@@ -541,10 +547,17 @@ class _Search(RowScan):
         ck = (self.pool.block[k], tuple(sorted(self.pool.roles[k].items())))
         return (ck in self.verified and self.verified[ck] is None) or not self.stock_ok(k)
 
-    def representatives(self, ids: np.ndarray, kappa: np.ndarray) -> np.ndarray:
+    def representatives(self, ids: np.ndarray, kappa: np.ndarray,
+                        cut: Deadline | None = None) -> np.ndarray:
         """Of the pool designs ``ids``, per network the best (in key order, key ≤ κ) that
         passes every vertex, fits the stock and passes the full check: the only design of
-        its network that can rank (a single stage's stock holds for each design alone)."""
+        its network that can rank (a single stage's stock holds for each design alone).
+
+        ``cut``: the command's deadline, given when the time limit cut the search (κ is
+        then not a proof and the pool may hold thousands of networks): only the best
+        ``top`` networks are looked for, and no full check starts that the time left
+        (by the longest check so far) cannot finish; the networks left unchecked are
+        counted in ``unverified_networks``."""
         ids_l = [int(k) for k in ids]
         while True:
             keys = np.stack(self.pool.keys)
@@ -566,12 +579,24 @@ class _Search(RowScan):
                     continue
                 if net in pending:
                     continue            # an unchecked design ahead of it is checked first
+                if cut is not None and (len(out) >= self.top or not self._time_to_verify(k, cut)):
+                    if len(out) < self.top:
+                        self.unverified_networks = len({self.network(j) for j in ids_l}
+                                                       - settled)
+                    return np.asarray(out, dtype=np.int64)
                 if self.stock_ok(k) and self.verify(k) is not None:
                     out.append(k)
                     settled.add(net)
-            if not todo or self.deadline.expired():
+            if not todo or self.deadline.expired() or (cut is not None and cut.expired()):
                 return np.asarray(out, dtype=np.int64)
-            self.vertex_verify(todo)
+            self.vertex_verify(todo if cut is None else todo[:64])
+
+    def _time_to_verify(self, k: int, cut: Deadline) -> bool:
+        """Design ``k``'s full check is done already, or the time left can hold one."""
+        ck = (self.pool.block[k], tuple(sorted(self.pool.roles[k].items())))
+        if ck in self.verified:
+            return True
+        return not cut.expired() and cut.remaining() > self.verify_s
 
 
 def design(job: Job, inventory: Inventory, *, top: int | None = None,
@@ -633,7 +658,8 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
              is not None for k in range(len(s.pool.keys))])
         if not np.all(kappa < _BIG):
             tied = _lex_le(pool_keys, kappa)
-        keep = s.representatives(np.flatnonzero(below | tied), kappa)
+        keep = s.representatives(np.flatnonzero(below | tied), kappa,
+                                 None if done == "complete" else deadline)
     else:
         keep = np.zeros(0, dtype=np.int64)
     mdesigns: list[ModelDesign] = []
@@ -716,6 +742,12 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     if done != "complete":
         stats["prepass_cut"] = s.coverage.message(s.networks)
         result.assumptions.append(stats["prepass_cut"])
+        if s.unverified_networks:
+            result.assumptions.append(
+                f"the time limit also ended the full checks after the search: "
+                f"{s.unverified_networks:,} more networks that pass at every vertex were "
+                "not checked, so fewer designs are shown than asked for")
+    stats["unverified_networks"] = s.unverified_networks
     if not designs and _explain:
         from .explain import explain
 
