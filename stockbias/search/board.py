@@ -172,7 +172,7 @@ def board_objectives(job: Job) -> tuple[tuple[str, ...], list[str]]:
 
 
 def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe: Universe,
-              objectives: tuple[str, ...], top: int, deadline: float,
+              objectives: tuple[str, ...], top: int, deadline: float | Deadline,
               progress: Progress | None = None, stock: bool = True,
               limit_transistors: bool = True, skipped: dict[str, int] | None = None
               ) -> tuple[str, list[list[Choice]], list[dict[str, int]], dict[str, float],
@@ -184,7 +184,14 @@ def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe
     transistor) option sets the time limit left unbuilt.  When options are missing, the
     status is at most ``feasible`` (``unknown`` without a board) and
     ``stats["prepass_cut"]`` says what was left out.
+
+    ``deadline`` (a :func:`time.monotonic` value or a :class:`.deadline.Deadline`) bounds
+    the solves and the full checks together: each solve leaves time for checking one
+    board (by the longest check so far), and no check starts that the time left cannot
+    finish; a board whose stages are not all checked is not returned, and
+    ``stats["verify_cut"]`` says how far the checks of the board in hand went.
     """
+    clock = deadline if isinstance(deadline, Deadline) else Deadline.until(deadline)
     tq: dict[str, int | None] = {q.part_id: q.qty if limit_transistors else None
                                  for q in inventory.transistors}
     info = LineInfo([universe.value_id.get(r.value_ohm, -1) for r in universe.lines],
@@ -192,17 +199,20 @@ def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe
     bm = BoardModel(setups, info, stock=stock)
     verified: dict[tuple, CheckResult | None] = {}
     stats: dict[str, Any] = {"reverify_rounds": 0, "stage_designs_verified": 0,
-                             "stage_designs_forbidden": 0}
+                             "stage_designs_forbidden": 0, "verify_cut": None}
+    check_s = 0.02      # the longest full check so far, s (a guess until one is timed)
     ranked: list[list[Choice]] = []
     values_out: list[dict[str, int]] = []
     bound: dict[str, float] = {}
     status = "optimal"
     seed = job.search.seed
     while len(ranked) < top:
-        if time.monotonic() > deadline:
+        if clock.expired():
             status = "feasible" if ranked else "unknown"
             break
-        st, choices, vals, bnd = bm.solve_lex(objectives, seed, deadline)
+        # the solve leaves time to check the board it finds (at most 30 % of what is left)
+        reserve = min(0.3 * clock.remaining(), len(setups) * check_s)
+        st, choices, vals, bnd = bm.solve_lex(objectives, seed, clock.monotonic_at() - reserve)
         if choices is None:
             if not ranked:
                 status = st
@@ -210,10 +220,26 @@ def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe
         if progress is not None:
             progress("verifying", min(1.0, (len(ranked) + 0.5) / top))
         all_ok = True
-        for ch in choices:
-            if _verify(job, bm.groups[ch.group], ch, universe.lines, verified, stats) is None:
+        for i, ch in enumerate(choices):
+            g = bm.groups[ch.group]
+            if _design_key(g, ch) not in verified and (clock.expired()
+                                                       or clock.remaining() < check_s):
+                stats["verify_cut"] = (
+                    f"the time limit ended the full check of the {'next ' if ranked else ''}"
+                    f"board found after {i} of {len(choices)} stages (each check "
+                    f"{_seconds(check_s)}), so it is not shown")
+                all_ok = False
+                break
+            t_check = clock.clock()
+            ok = _verify(job, g, ch, universe.lines, verified, stats) is not None
+            check_s = max(check_s, clock.clock() - t_check)
+            if not ok:
                 all_ok = False
                 _forbid_failing(job, bm, ch, stats)
+        if stats["verify_cut"] is not None:
+            status = "feasible" if ranked else "unknown"
+            bound.update(bnd)
+            break
         if not all_ok:
             stats["reverify_rounds"] += 1
             if stats["reverify_rounds"] > MAX_REVERIFY_ROUNDS:
@@ -236,6 +262,11 @@ def run_board(job: Job, inventory: Inventory, setups: list[StageSetup], universe
         status = {"optimal": "feasible", "infeasible": "unknown"}.get(status, status)
         bound = {}
     return status, ranked, values_out, bound, bm, verified, stats
+
+
+def _seconds(s: float) -> str:
+    """A check's duration in words (s)."""
+    return f"{s:.2g} s" if s < 10 else f"{s:.0f} s"
 
 
 def prepass_cut(setups: list[StageSetup], skipped: dict[str, int] | None = None
@@ -462,7 +493,7 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
                     skipped[stage.name] = skipped.get(stage.name, 0) + 1
                     continue
                 opts = stage_options(sj, stage, si, net_name, q, cands, prepass)
-                if held_from_reference(stage):
+                if held_from_reference(stage) and not prepass.expired():
                     opts = screen_options(sj, stage, opts)
                 groups.append(opts)
         n_opts[stage.name] = sum(g.size for g in groups)
@@ -470,7 +501,7 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
         if progress is not None:
             progress("pre-pass", (si + 1) / len(job.stages))
     status, ranked, values, bound, bm, verified, rstats = run_board(
-        job, inventory, setups, universe, objectives, top, clock.monotonic_at(), progress,
+        job, inventory, setups, universe, objectives, top, clock, progress,
         skipped=skipped)
     designs = build_board(job, inventory, setups, universe, status, ranked, values, bm,
                           verified)
@@ -484,9 +515,11 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
                          + collect_assumptions(s.check for d in designs for s in d.stages))
     if rstats.get("prepass_cut"):
         result.assumptions.append(str(rstats["prepass_cut"]))
+    if rstats.get("verify_cut"):
+        result.assumptions.append(str(rstats["verify_cut"]))
     if not designs:
         result.explanation = explain_board(job, inventory, setups, universe, objectives,
-                                           status, clock.monotonic_at())
+                                           status, clock, verify_cut=rstats.get("verify_cut"))
     result.solve_seconds = time.monotonic() - t0
     return result
 
@@ -505,25 +538,35 @@ def _board_notes(job: Job) -> list[str]:
 
 def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
                   universe: Universe, objectives: tuple[str, ...], status: str,
-                  deadline: float, limit_transistors: bool = True) -> dict[str, object]:
-    """Why no board was found, and one change that would help."""
+                  deadline: float | Deadline, limit_transistors: bool = True,
+                  verify_cut: str | None = None) -> dict[str, object]:
+    """Why no board was found, and one change that would help, within the time left of
+    ``deadline`` (what the time limit cut short is said, never searched past it)."""
+    clock = deadline if isinstance(deadline, Deadline) else Deadline.until(deadline)
     if status == "unknown":
         cut = [st.name for st in setups
                if not st.options or not all(g.complete for g in st.options)]
         options = sum(g.size for st in setups for g in st.options)
         where = (f"while listing the options of stage{'s' if len(cut) > 1 else ''} "
                  f"{', '.join(repr(n) for n in cut)}" if cut else
+                 verify_cut.replace("the time limit ended the", "during the")
+                 if verify_cut else
                  f"in the board solver, over {options:,} options for {len(setups)} stages")
         return {"reason": f"the time limit ran out before any board was found, {where}",
                 "suggestion": "raise [search] time_limit_s or --time-limit"}
+    if clock.expired() or clock.remaining() < 0.05:
+        return {"reason": "no board meets every stage from this stock (the search was "
+                          "complete); the time limit left no time to find which stage or "
+                          "stock line is the cause, so that search was skipped",
+                "suggestion": "raise [search] time_limit_s or --time-limit to have the cause "
+                              "found, or run `stockbias design` on each stage alone"}
     empty = [st.name for st in setups if not any(g.size for g in st.options)]
     if empty:
         name = empty[0]
         stage = next(s for s in job.stages if s.name == name)
         from .design import design
 
-        one = design(stage_job(job, stage), inventory, top=1,
-                     time_limit_s=max(0.5, deadline - time.monotonic()))
+        one = design(stage_job(job, stage), inventory, top=1, deadline=clock)
         ex: Any = one.explanation
         text = ex.to_dict() if ex is not None else {}
         return {"reason": f"stage '{name}' cannot be met from this stock on its own",
@@ -531,8 +574,7 @@ def explain_board(job: Job, inventory: Inventory, setups: list[StageSetup],
                 "suggestion": text.get("suggestion", "see the stage explanation")}
     # every stage has options: either the full check rules them out, or stock is shared
     status2, ranked, _v, _b, bm, _ver, _st = run_board(
-        job, inventory, setups, universe, objectives, 1,
-        max(deadline, time.monotonic() + 0.5), stock=False,
+        job, inventory, setups, universe, objectives, 1, clock, stock=False,
         limit_transistors=limit_transistors)
     if not ranked and status2 == "unknown":
         return {"reason": "the time limit ran out before the cause was found",

@@ -115,6 +115,29 @@ class ConsolidateResult:
         }
 
 
+def _cut_before_search(job: Job, inventory: Inventory, current, objectives, keep, notes,
+                       before_ok: dict[str, bool], held: list[HeldPurpose], checked: int,
+                       check_s: float, t0: float, rule: str) -> ConsolidateResult:
+    """The result of a run whose time limit ended while today's board was being checked
+    (``checked`` stages done): nothing searched, status ``unknown``."""
+    before_bom = bom_of([(st.name, q, parts) for st, (q, parts) in zip(job.stages, current,
+                                                                      strict=True)],
+                        job.build.quantity, inventory)
+    each = f", each about {check_s:.2g} s" if check_s else ""
+    why = (f"the time limit ran out while today's board was being checked ({checked} of "
+           f"{len(job.stages)} stages{each}); its figures are what every stage must keep, "
+           "so no consolidation was searched")
+    return ConsolidateResult(
+        status="unknown", solve_seconds=time.monotonic() - t0, objectives=objectives,
+        before_bom=before_bom, before=bom_totals(before_bom), before_ok=before_ok,
+        after=None, kept=[f"{r}@{s}" for s, r in sorted(keep)],
+        assumptions=notes,
+        explanation={"reason": why, "suggestion": "raise [search] time_limit_s or "
+                     "--time-limit"},
+        stats={"prepass_cut": why, "current_checked": checked},
+        purpose=held, purpose_rule=rule)
+
+
 def parse_keep(text: str | Iterable[str] | None, job: Job) -> list[tuple[str, str]]:
     """``"RC@input,RE@driver"`` → [(stage, role)], each checked against the board."""
     if not text:
@@ -205,7 +228,6 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                          "distinct_values or part_count", column="--objectives", text=bad[0])
     limit = job.search.time_limit_s if time_limit_s is None else float(time_limit_s)
     clock = Deadline(limit)                      # one deadline for the whole command
-    deadline = clock.monotonic_at()
     keep = set(keep)
     current = _current(job, inventory)
     shelf = build_shelf(job, inventory, pairs=False)
@@ -216,13 +238,22 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
     before_ok: dict[str, bool] = {}
     notes: list[str] = []
     held_stages, held = [], []
-    for st, (q, parts) in zip(job.stages, current, strict=True):
+    check_s = 0.0                # the longest check of a current stage so far, s
+    for i, (st, (q, parts)) in enumerate(zip(job.stages, current, strict=True)):
+        if clock.expired() or clock.remaining() < check_s:
+            # today's figures are what every stage must keep: without them, no search
+            return _cut_before_search(job, inventory, current, objectives, keep, notes,
+                                      before_ok, held, i, check_s, t0,
+                                      _purpose_rule(job, keep_purpose, purpose))
+        t_check = clock.clock()
         res = analyze_stage(stage_job(job, st), st, parts, q, samples=0, seed=job.search.seed)
+        check_s = max(check_s, clock.clock() - t_check)
         before_ok[st.name] = res.ok
         st2, record = hold_purpose(st, res, effective_keep(st, keep_purpose, not purpose))
         held_stages.append(st2)
         held.append(record)
     original, job = job, replace(job, stages=tuple(held_stages))
+    prepass = clock.share(0.7)                   # options leave time for the board model
     for si, (st, (q, parts)) in enumerate(zip(job.stages, current, strict=True)):
         sj = stage_job(job, st)
         net = get_network(st.topology)
@@ -275,8 +306,9 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                     idx = 0
             cands[role.name] = table
             cur[role.name] = idx
-        opts = stage_options(sj, st, si, st.topology, q, cands, clock.share(0.7))
-        if held[si].limits:
+        opts = stage_options(sj, st, si, st.topology, q, cands, prepass)
+        # the screen only spares the board search rounds (it is sound to skip when late)
+        if held[si].limits and not prepass.expired():
             opts = screen_options(sj, st, opts)
         setups.append(StageSetup(st.name, [opts], st.topology, cur))
         if progress is not None:
@@ -286,7 +318,7 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                         job.build.quantity, inventory)
     # transistors stay: not limited by the model (the BOM flags a short line)
     status, ranked, values, bound, bm, verified, rstats = run_board(
-        job, inventory, setups, universe, objectives, 1, deadline, progress,
+        job, inventory, setups, universe, objectives, 1, clock, progress,
         limit_transistors=False)
     designs = build_board(job, inventory, setups, universe, status, ranked, values, bm,
                           verified)
@@ -306,6 +338,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
         purpose=held, purpose_rule=_purpose_rule(original, keep_purpose, purpose))
     if rstats.get("prepass_cut"):
         result.assumptions.append(str(rstats["prepass_cut"]))
+    if rstats.get("verify_cut"):
+        result.assumptions.append(str(rstats["verify_cut"]))
     failing = [n for n, ok in before_ok.items() if not ok]
     if failing:
         result.assumptions.append("the current board fails its targets in "
@@ -313,7 +347,8 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
                                   + ("; the consolidated one meets them" if after else ""))
     if after is None:
         result.explanation = explain_board(job, inventory, setups, universe, objectives,
-                                           status, deadline, limit_transistors=False)
+                                           status, clock, limit_transistors=False,
+                                           verify_cut=rstats.get("verify_cut"))
         if any(h.limits for h in held) and status == "infeasible":
             result.explanation["purpose"] = (
                 "every stage must also keep its purpose (" + result.purpose_rule + "); "

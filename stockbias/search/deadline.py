@@ -40,6 +40,15 @@ class Deadline:
         self.hit = False
 
     @classmethod
+    def until(cls, at: float) -> Deadline:
+        """A deadline at the :func:`time.monotonic` value ``at`` (for callers that hold the
+        end of the command as a number)."""
+        d = cls(0.0)
+        d.limit = at - d.start
+        d.at = at
+        return d
+
+    @classmethod
     def after_checks(cls, n: int) -> Deadline:
         """A deadline that expires at the ``n``-th call of :meth:`expired` (n ≥ 1) and
         stays expired; :meth:`remaining` is 0 once it has expired, else 3600 s."""
