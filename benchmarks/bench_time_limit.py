@@ -46,7 +46,7 @@ sys.path.insert(0, str(HERE))
 from bench_board import board, shelf  # noqa: E402
 from bench_search import _shelf_csv  # noqa: E402
 
-SAMPLES = HERE.parent / "stockbias" / "samples"
+from stockbias.samples import SAMPLES_DIR as SAMPLES  # noqa: E402
 E96 = SAMPLES / "stockroom_e96_reels.csv"
 LINE = (SAMPLES / "line_driver_job.toml").read_text(encoding="utf-8")
 EXE = [sys.executable, "-m", "stockbias"]

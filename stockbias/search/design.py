@@ -580,16 +580,23 @@ class _Search(RowScan):
                 if net in pending:
                     continue            # an unchecked design ahead of it is checked first
                 if cut is not None and (len(out) >= self.top or not self._time_to_verify(k, cut)):
-                    if len(out) < self.top:
-                        self.unverified_networks = len({self.network(j) for j in ids_l}
-                                                       - settled)
-                    return np.asarray(out, dtype=np.int64)
+                    return self._cut_short(out, ids_l, settled)
                 if self.stock_ok(k) and self.verify(k) is not None:
                     out.append(k)
                     settled.add(net)
-            if not todo or self.deadline.expired() or (cut is not None and cut.expired()):
+            if cut is not None and cut.expired():
+                return self._cut_short(out, ids_l, settled)
+            if not todo or self.deadline.expired():
                 return np.asarray(out, dtype=np.int64)
             self.vertex_verify(todo if cut is None else todo[:64])
+
+    def _cut_short(self, out: list[int], ids: list[int], settled: set[tuple]) -> np.ndarray:
+        """The representatives found when the time limit stops their checks; the networks
+        of ``ids`` neither settled nor known to fail are counted as left unchecked."""
+        if len(out) < self.top:
+            self.unverified_networks = len({self.network(j) for j in ids
+                                            if not self.failed(j)} - settled)
+        return np.asarray(out, dtype=np.int64)
 
     def _time_to_verify(self, k: int, cut: Deadline) -> bool:
         """Design ``k``'s full check is done already, or the time left can hold one."""

@@ -1,0 +1,137 @@
+"""The time limit is a promise: a run cut at each stage of a search ends there and says so.
+
+No timing: every test drives an injected clock (:class:`Deadline` with ``clock=``) that
+stands still except where the test moves it.  The clock is moved by each full check
+(``analyze_stage``, wrapped here), so the deadline passes at a chosen full check: inside
+the single-stage search's final checks, inside a board's re-verification, while today's
+board is checked before a consolidation.  Each test asserts the status (``feasible``
+with designs, ``unknown`` without), that no design is offered unchecked, the bound in the
+objective's own units and the words that name the stage of the search that was cut.
+
+Source of the expected values: the uncut run of the same job (its proven optimum and its
+count of full checks), and the rules of the result as stated in DESIGN §3 (a status
+``feasible`` never with fewer designs shown than verified ones, ``unknown`` only without
+designs).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from test_search_bounded import BOARD, generated_shelf, job_for
+
+from stockbias.job import load_job, parse_job
+from stockbias.search.deadline import Deadline
+from stockbias.stock_io import read_inventory
+
+SAMPLES = Path(__file__).resolve().parent.parent / "inventory_samples"
+
+
+class FakeClock:
+    """Seconds that pass only when a full check runs (``step`` each)."""
+
+    def __init__(self, step: float):
+        self.now, self.step, self.checks = 0.0, step, 0
+
+    def __call__(self) -> float:
+        return self.now
+
+    def wrap(self, fn):
+        def checked(*args, **kwargs):
+            self.checks += 1
+            self.now += self.step
+            return fn(*args, **kwargs)
+        return checked
+
+
+def test_design_cut_during_the_final_checks_shows_only_checked_designs(monkeypatch):
+    import stockbias.search.design as design_module
+    from stockbias.search.design import design
+
+    inv = generated_shelf(120, 6, seed=3)
+    job = job_for()
+    full = design(job, inv)
+    assert full.status == "optimal" and len(full.designs) == 3
+    clock = FakeClock(step=2.0)
+    monkeypatch.setattr(design_module, "analyze_stage", clock.wrap(design_module.analyze_stage))
+    # 10 s, each full check 2 s, five designs asked for: the search (9 s) is cut by its
+    # fifth check (8 → 10 s), with networks that pass every vertex still unchecked; no
+    # check starts after that (before the fix, two more ran past the limit)
+    r = design(job, inv, top=5, deadline=Deadline(10.0, clock=clock))
+    assert clock.checks == 5
+    assert r.status == "feasible" and 1 <= len(r.designs) < 5
+    for d in r.designs:
+        assert d.check.ok                                          # every one checked
+        assert d.cost_micro >= full.designs[0].cost_micro           # never above optimal
+    cut = r.stats["prepass_cut"]
+    assert cut is not None and cut in r.assumptions
+    if r.bound:                      # a lower bound on cost, per board, in currency
+        assert set(r.bound) == {"cost"}
+        assert 0 < r.bound["cost"] <= full.designs[0].cost + 1e-12
+    assert r.stats["unverified_networks"] > 0
+    assert any("ended the full checks after the search" in a and
+               "fewer designs are shown than asked for" in a for a in r.assumptions)
+
+
+def test_board_cut_during_reverification_shows_no_unchecked_board(monkeypatch):
+    import stockbias.search.board as board_module
+    from stockbias.search.board import design_board
+
+    inv = generated_shelf(70, 2, seed=6)
+    job = parse_job(BOARD, "<board>")
+    full = design_board(job, inv)
+    assert full.status == "optimal" and full.designs
+    # the first stage's check takes 6 s of 10: the second cannot start
+    original = board_module.analyze_stage
+    clock = FakeClock(step=6.0)
+    monkeypatch.setattr(board_module, "analyze_stage", clock.wrap(original))
+    r = design_board(job, inv, deadline=Deadline(10.0, clock=clock))
+    assert clock.checks == 1
+    assert r.status == "unknown" and not r.designs
+    assert r.stats["verify_cut"] == ("the time limit ended the full check of the board found "
+                                     "after 1 of 2 stages (each check 6 s), so it is not "
+                                     "shown")
+    assert r.stats["verify_cut"] in r.assumptions
+    assert r.explanation["reason"] == (
+        "the time limit ran out before any board was found, during the full check of the "
+        "board found after 1 of 2 stages (each check 6 s), so it is not shown")
+    # time for both stages (12 s of 20): the board is shown, as the uncut run found it
+    clock = FakeClock(step=6.0)
+    monkeypatch.setattr(board_module, "analyze_stage", clock.wrap(original))
+    r = design_board(job, inv, deadline=Deadline(20.0, clock=clock))
+    assert r.designs and r.stats["verify_cut"] is None
+    assert r.designs[0].cost == full.designs[0].cost
+
+
+def test_explanation_after_a_complete_search_keeps_to_the_time_left():
+    from stockbias.search.board import explain_board
+
+    now = [0.0]
+    clock = Deadline(5.0, clock=lambda: now[0])
+    now[0] = 5.5                                  # the search used all of it
+    job = parse_job(BOARD, "<board>")
+    inv = generated_shelf(20, 1, seed=1)
+    ex = explain_board(job, inv, [], None, ("cost",), "infeasible", clock)
+    assert ex["reason"].startswith("no board meets every stage from this stock (the search "
+                                   "was complete); the time limit left no time")
+    assert "skipped" in ex["reason"]
+
+
+def test_consolidate_cut_while_todays_board_is_checked(monkeypatch):
+    import stockbias.search.consolidate as cons_module
+    from stockbias.search.consolidate import consolidate
+
+    job = load_job(SAMPLES / "distribution_amp_board.toml")
+    inv = read_inventory(SAMPLES / "workshop_drawers.csv")
+    clock = FakeClock(step=6.0)
+    monkeypatch.setattr(cons_module, "analyze_stage", clock.wrap(cons_module.analyze_stage))
+    monkeypatch.setattr(cons_module, "Deadline", lambda limit: Deadline(10.0, clock=clock))
+    r = consolidate(job, inv)
+    assert clock.checks == 1                      # the second check could not finish
+    assert r.status == "unknown" and r.after is None
+    assert r.explanation["reason"] == (
+        "the time limit ran out while today's board was being checked (1 of 4 stages, each "
+        "about 6 s); its figures are what every stage must keep, so no consolidation was "
+        "searched")
+    d = r.to_dict()
+    assert d["bom_lines_before"] > 0 and d["bom_lines_after"] is None
