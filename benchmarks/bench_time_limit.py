@@ -6,10 +6,12 @@ Each case is a job too hard to finish in a few seconds, run in a fresh process w
 ``--time-limit`` 1, 2 and 5 s.  Measured per run: wall clock and CPU (user + system of
 the child), the command's own ``solve_seconds`` where its JSON reports one, the status
 and how many designs it returned.  Start-up is measured in the same run, alternately:
-``stockbias --help`` (the CLI alone) and ``stockbias stock check STOCK --json`` (the CLI,
-the imports and reading the case's stock: the loading every search command does before
-its clock starts).  The overrun is ``wall − limit − load``, where ``load`` is that
-stock-check time; the promise (issue 13, goal 4) is ``overrun ≤ 0.1 × limit``.
+``stockbias --help`` (the CLI alone) and a process that imports the CLI, the search
+modules and CP-SAT and reads the case's stock (``LOAD``: the loading every search command
+does before its clock starts).  The overrun is ``wall − limit − load``, where ``load`` is that
+loading time; the promise (issue 13, goal 4) is ``overrun ≤ 0.1 × limit``.  On a shared
+machine the wall clock waits for the cores, so the same is shown in CPU seconds (the
+searches run on one core: alone, their wall time would be their CPU time).
 
 Cases (every one searched with the time limit, never enough to finish):
 
@@ -50,6 +52,14 @@ from stockbias.samples import SAMPLES_DIR as SAMPLES  # noqa: E402
 E96 = SAMPLES / "stockroom_e96_reels.csv"
 LINE = (SAMPLES / "line_driver_job.toml").read_text(encoding="utf-8")
 EXE = [sys.executable, "-m", "stockbias"]
+
+
+#: what every search command loads before its clock starts: the CLI, the search modules,
+#: CP-SAT and the stock file
+LOAD = ("import sys; import stockbias.cli.app; import stockbias.search.design, "
+        "stockbias.search.board, stockbias.search.consolidate, stockbias.search.substitute, "
+        "stockbias.search.yield_search; from ortools.sat.python import cp_model; "
+        "from stockbias.stock_io import read_inventory; read_inventory(sys.argv[1])")
 
 
 def _child(cmd: list[str]) -> tuple[float, float, subprocess.CompletedProcess]:
@@ -185,21 +195,23 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         todo = cases(folder, set(args.cases) if args.cases else None)
-        print("\n| case | limit s | wall s (CPU s) | load s | overrun s | over 10 %? | "
-              "in-process s | status | designs |")
+        print("\n| case | limit s | wall s (CPU s) | load s wall (CPU) | overrun s wall (CPU) | "
+              "over 10 %? wall (CPU) | in-process s | status | designs |")
         print("| --- | --- | --- | --- | --- | --- | --- | --- | --- |")
         helps = []
         for name, cmd, stock in todo:
             for limit in args.limits:
                 hw, _hc, _ = _child(EXE + ["--help"])
-                lw, _lc, _ = _child(EXE + ["stock", "check", str(stock), "--json"])
+                lw, lc, _ = _child([sys.executable, "-c", LOAD, str(stock)])
                 helps.append(hw)
                 wall, cpu, p = _child(cmd + ["--time-limit", f"{limit:g}"])
                 status, n, secs = _summary(p)
-                over = wall - limit - lw
+                over, over_cpu = wall - limit - lw, cpu - limit - lc
                 flag = "yes" if over > 0.1 * limit else "no"
-                print(f"| {name} | {limit:g} | {wall:.2f} ({cpu:.2f}) | {lw:.2f} | {over:+.2f} | "
-                      f"{flag} | {secs} | {status} | {n} |", flush=True)
+                flag_cpu = "yes" if over_cpu > 0.1 * limit else "no"
+                print(f"| {name} | {limit:g} | {wall:.2f} ({cpu:.2f}) | {lw:.2f} ({lc:.2f}) | "
+                      f"{over:+.2f} ({over_cpu:+.2f}) | {flag} ({flag_cpu}) | {secs} | "
+                      f"{status} | {n} |", flush=True)
         print(f"\n`stockbias --help`: median {statistics.median(helps):.2f} s wall over "
               f"{len(helps)} runs; load average at end {os.getloadavg()[0]:.1f}")
 

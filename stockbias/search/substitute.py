@@ -361,7 +361,9 @@ def _least_rework(job: Job, base: dict[str, ResolvedResistor], q: Transistor,
                     best = (cost, m, {r: parts[r] for r in roles}, res)
         if best is not None:
             cost, _m, changes, res = best
-            if samples > 0:
+            # the rework passes every worst-case limit already; its Monte Carlo figures
+            # are left out when the time limit has passed
+            if samples > 0 and time.monotonic() < deadline:
                 res = analyze_stage(job, job.stage, {**base, **changes}, q, samples=samples,
                                     seed=seed)
             return changes, res, cost / 1e6, not timed_out
@@ -424,12 +426,20 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
     limit = job.search.time_limit_s if time_limit_s is None else time_limit_s
     deadline = t0 + limit       # one limit for the whole command, shared by every transistor
     out: list[SubstituteCandidate] = []
+    check_s = 0.0               # the longest drop-in check so far, s
     for q in inventory.transistors:
         reason = _ruled_out(job, q, cur.polarity)
         if reason is not None:
             out.append(SubstituteCandidate(q, False, reason))
             continue
+        if time.monotonic() + check_s > deadline:
+            # no check starts that the time left cannot finish
+            out.append(SubstituteCandidate(q, False, None, proven=False, note=(
+                "not judged: the time limit ran out before its drop-in check")))
+            continue
+        t_check = time.monotonic()
         res = analyze_stage(job, stage, base, q, samples=samples, seed=seed)
+        check_s = max(check_s, time.monotonic() - t_check)
         if res.ok:
             out.append(SubstituteCandidate(q, True, None, check=res, drop_in_check=res))
             continue
