@@ -135,3 +135,55 @@ def test_consolidate_cut_while_todays_board_is_checked(monkeypatch):
         "searched")
     d = r.to_dict()
     assert d["bom_lines_before"] > 0 and d["bom_lines_after"] is None
+
+
+def test_sweep_stage_reached_after_the_limit_is_not_judged(tmp_path):
+    import time
+
+    from stockbias.search.sweep import sweep_stage
+
+    board = SAMPLES / "distribution_amp_board.toml"
+    shelf = str(SAMPLES / "workshop_drawers.csv")
+    row = sweep_stage((str(board), "input", shelf, "QN-LB2", 0, 0, time.time() - 1.0))
+    assert (row.verdict, row.current) == ("not judged", "QN-LB2")
+    assert row.note == "the sweep's time limit ran out before this stage"
+    # without an end (or before it) the stage is judged as before
+    assert sweep_stage((str(board), "gain", shelf, "QN-LB2", 0, 0)).verdict == "unaffected"
+    assert sweep_stage((str(board), "gain", shelf, "QN-LB2", 0, 0,
+                        time.time() + 600)).verdict == "unaffected"
+
+
+def test_substitute_starts_no_drop_in_check_past_the_limit(monkeypatch):
+    import stockbias.search.substitute as sub_module
+    from stockbias.search.substitute import substitute
+
+    job = load_job(SAMPLES / "distribution_amp_board.toml")
+    inv = read_inventory(SAMPLES / "workshop_drawers.csv")
+    from stockbias.search.board import stage_job
+
+    stage = job.stages[0]
+    now = [0.0]
+
+    class Clock:                       # stands still except in each full check (+6 s)
+        @staticmethod
+        def monotonic() -> float:
+            return now[0]
+
+    original = sub_module.analyze_stage
+
+    def checked(*args, **kwargs):
+        now[0] += 6.0
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(sub_module, "time", Clock)
+    monkeypatch.setattr(sub_module, "analyze_stage", checked)
+    r = substitute(stage_job(job, stage), dict(stage.values), stage.transistor, inv,
+                   samples=0, time_limit_s=10.0)
+    # today's check (0 → 6 s), the first drop-in check (6 → 12 s); then none starts
+    assert now[0] == 12.0
+    judged = [c for c in r.candidates if c.ruled_out is None and c.check is not None]
+    skipped = [c for c in r.candidates if c.note.startswith("not judged")]
+    assert len(judged) == 1 and skipped
+    for c in skipped:
+        assert not c.proven and not c.fixed and c.check is None
+        assert c.note == "not judged: the time limit ran out before its drop-in check"

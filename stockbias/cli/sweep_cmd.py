@@ -21,14 +21,20 @@ def sweep(
     json_out: JsonOpt = False,
     csv_out: Annotated[Path | None, typer.Option(
         "--csv", dir_okay=False, help="Also write the summary as CSV to FILE.")] = None,
+    time_limit: Annotated[float | None, typer.Option(
+        "--time-limit", metavar="SECONDS", min=0.1, max=86400.0,
+        help="Seconds for the whole sweep: each substitute search gets what is left, and "
+        "stages reached after it are listed as not judged.")] = None,
     workers: WorkersOpt = 1,
     cluster: ClusterOpt = None,
     force: ForceOpt = False,
 ) -> None:
     """Run every stage of every job and board in a folder on one executor; one summary.
-    Exit 1 when a stage has no substitute (--without) or fails its check."""
+    Exit 1 when a stage has no substitute (--without), fails its check or was not judged
+    within --time-limit."""
     import csv
     import io
+    import time
 
     from ..errors import InputError
     from ..executor import make_executor
@@ -49,7 +55,8 @@ def sweep(
             raise InputError(f"no transistor with that part id in {inv.path}; transistors: "
                              f"{ids}", column="--without", text=without)
         stages = stage_tasks(folder)
-        tasks = [(job, name, str(inventory), without, 2000, 0) for job, name in stages]
+        end = None if time_limit is None else time.time() + time_limit
+        tasks = [(job, name, str(inventory), without, 2000, 0, end) for job, name in stages]
         executor = make_executor(workers or None, cluster)
         rows = []
         try:
@@ -74,7 +81,7 @@ def sweep(
                 w.writerow(spreadsheet_row([d[k] for k in keys]))
             outs.write_text("--csv", buf.getvalue())
         written = outs.commit()
-    bad = [r for r in rows if r.verdict in ("none", "fails")]
+    bad = [r for r in rows if r.verdict in ("none", "fails", "not judged")]
     if json_out:
         typer.echo(dumps({"folder": str(folder), "without": without,
                           "stages": [r.to_dict() for r in rows],

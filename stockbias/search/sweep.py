@@ -21,7 +21,7 @@ __all__ = ["SweepRow", "stage_tasks", "sweep_stage"]
 @dataclass(frozen=True)
 class SweepRow:
     """One stage's outcome.  ``verdict``: drop-in, rework, none, passes, fails, not built,
-    unaffected."""
+    unaffected, not judged (the sweep's time limit ran out first)."""
 
     file: str
     stage: str
@@ -52,20 +52,31 @@ def stage_tasks(folder: Path) -> list[tuple[str, str]]:
     return out
 
 
-def sweep_stage(task: tuple[str, str, str, str | None, int, int]) -> SweepRow:
-    """One stage of the sweep (module level: it runs in worker processes too)."""
+def sweep_stage(task: tuple) -> SweepRow:
+    """One stage of the sweep (module level: it runs in worker processes too).
+
+    ``task``: (job file, stage, stock file, struck part or None, samples, seed[, end]);
+    ``end``, when given, is the sweep's time limit as a :func:`time.time` value (shared by
+    worker processes and cluster machines): a stage reached after it is not judged, and a
+    substitute search gets what is left of it."""
+    import time
+
     from ..assign import resolve_resistor
     from ..job import load_job
     from ..stock_io import read_inventory
     from .board import stage_job
     from .substitute import substitute
 
-    job_path, stage_name, inv_path, without, samples, seed = task
+    job_path, stage_name, inv_path, without, samples, seed = task[:6]
+    end = task[6] if len(task) > 6 else None
     job = load_job(job_path)
     inv = read_inventory(inv_path)
     stage = next(s for s in job.stages if s.name == stage_name)
     name = Path(job_path).name
     current = stage.transistor or ""
+    if end is not None and time.time() >= end:
+        return SweepRow(name, stage_name, current, "not judged",
+                        note="the sweep's time limit ran out before this stage")
     if not stage.values or not current:
         return SweepRow(name, stage_name, current, "not built",
                         note="the stage names no parts ([stage.values] and transistor)")
@@ -73,7 +84,9 @@ def sweep_stage(task: tuple[str, str, str, str | None, int, int]) -> SweepRow:
     if without is not None:
         if current != without:
             return SweepRow(name, stage_name, current, "unaffected")
-        res = substitute(one, dict(stage.values), current, inv, samples=samples, seed=seed)
+        left = None if end is None else max(end - time.time(), 0.1)
+        res = substitute(one, dict(stage.values), current, inv, samples=samples, seed=seed,
+                         time_limit_s=left)
         for c in res.candidates:
             if c.transistor.part_id == without or not c.fixed:
                 continue
