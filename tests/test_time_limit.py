@@ -187,3 +187,16 @@ def test_substitute_starts_no_drop_in_check_past_the_limit(monkeypatch):
     for c in skipped:
         assert not c.proven and not c.fixed and c.check is None
         assert c.note == "not judged: the time limit ran out before its drop-in check"
+
+
+def test_yield_search_names_the_time_limit_as_the_cause():
+    from stockbias.search.yield_search import _time_limit_cause
+
+    boxes = [{"status": "unknown", "designs": 0}, {"status": "feasible", "designs": 2}]
+    assert _time_limit_cause(boxes, 3, 4) == (
+        "the time limit cut the worst-case search of boxes 1, 2 of 3; 1 of 3 boxes were not "
+        "searched; 4 candidates were not sampled (raise [search] time_limit_s or "
+        "--time-limit)")
+    # every box searched to the end and every candidate sampled: not the time limit
+    done = [{"status": "optimal", "designs": 5}, {"status": "infeasible", "designs": 0}]
+    assert _time_limit_cause(done, 2, 0) == ""

@@ -286,11 +286,18 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
     m = len(sampled)
     alpha = 1.0 - conf
     screened_out = 0
-    if m:
+    # Monte Carlo time per candidate and board, s (from the screen; a guess before it)
+    per_board = 2e-6
+    not_screened = 0
+    if m and time.monotonic() - t0 > limit:
+        not_screened = m            # the box searches used the time: nothing is sampled
+    elif m:
         if progress is not None:
             progress(f"screening {m} candidates × {SCREEN_SAMPLES:,} boards",
                      len(levels) / (len(levels) + 2))
+        t_screen = time.monotonic()
         counts = screen_counts(ex, job, [c.trial for c in sampled])
+        per_board = max(per_board, (time.monotonic() - t_screen) / (m * SCREEN_SAMPLES))
         highs, _each = upper_screen(counts, conf)
         for c, (k_pass, n), high in zip(sampled, counts, highs, strict=True):
             c.screen = YieldResult(n, k_pass, k_pass / n, *clopper(k_pass, n))
@@ -307,9 +314,13 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
     for i, c in enumerate(alive):
         if len(chosen) >= top:
             break
-        if time.monotonic() - t0 > limit:
-            cut = len(alive) - i      # the time limit holds: the rest is not judged
+        # the time limit holds: the rest is not judged, and no judgement or final check
+        # starts that the time left (by the Monte Carlo rate so far) cannot finish
+        runs = 1 if c.mass >= y_min else 2
+        if limit - (time.monotonic() - t0) < runs * per_board * samples:
+            cut = len(alive) - i
             break
+        t_mc = time.monotonic()
         if c.mass < y_min:
             if progress is not None:
                 progress(f"judging candidate {i + 1} of {len(alive)} on {samples:,} boards",
@@ -322,6 +333,7 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
             progress(f"final check of design {len(chosen) + 1} on fresh boards",
                      (len(levels) + 1) / (len(levels) + 2))
         check, check_low = final_check(job, c.trial, samples, conf)
+        per_board = max(per_board, (time.monotonic() - t_mc) / (runs * samples))
         mc = check.monte_carlo
         assert mc is not None
         if check_low < y_min:
@@ -344,7 +356,7 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
         "sampled_candidates": m, "screened_out": screened_out,
         "screen_confidence_each": None if not m else 1.0 - alpha / m,
         "judged": judged, "dropped_on_final_check": dropped_final,
-        "not_judged_time_limit": cut,
+        "not_judged_time_limit": cut, "not_screened_time_limit": not_screened,
         "executor": getattr(ex, "name", "this process"),
     }
     result = YieldDesignResult(status, chosen, plain.search.objectives, y_min, conf, samples,
@@ -353,13 +365,37 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
     if cut:
         result.assumptions.append(f"time limit reached: {cut} candidates were not judged; a "
                                   "longer --time-limit may find cheaper designs")
+    if not_screened:
+        result.assumptions.append(f"time limit reached: {not_screened} candidates that need "
+                                  "sampling were neither screened nor judged")
     if not chosen:
         result.explanation = (
             f"no candidate was shown to reach {100 * y_min:g} % at {100 * conf:g} % "
             f"confidence: {len(order)} candidates from {len(levels_run)} boxes, "
             f"{screened_out} screened out, {judged} judged on {samples:,} boards"
             + ("; " + "; ".join(dropped_final) if dropped_final else ""))
+        timed = _time_limit_cause(levels_run, len(levels), cut + not_screened)
+        if timed:
+            result.explanation = timed + "; " + result.explanation
     return result
+
+
+def _time_limit_cause(levels_run: list[dict[str, object]], n_levels: int,
+                      not_judged: int) -> str:
+    """What the time limit cut in a yield search that found no design ("" when nothing)."""
+    cut = [i + 1 for i, b in enumerate(levels_run) if b["status"] in ("unknown", "feasible")]
+    parts = []
+    if cut:
+        parts.append(f"the time limit cut the worst-case search of box"
+                     f"{'es' if len(cut) > 1 else ''} {', '.join(map(str, cut))} of "
+                     f"{n_levels}")
+    if len(levels_run) < n_levels:
+        parts.append(f"{n_levels - len(levels_run)} of {n_levels} boxes were not searched")
+    if not_judged:
+        parts.append(f"{not_judged} candidates were not sampled")
+    if not parts:
+        return ""
+    return ("; ".join(parts) + " (raise [search] time_limit_s or --time-limit)")
 
 
 def _assumptions(worst: DesignResult, chosen: list[YieldDesign]) -> list[str]:
