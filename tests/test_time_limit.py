@@ -200,3 +200,16 @@ def test_yield_search_names_the_time_limit_as_the_cause():
     # every box searched to the end and every candidate sampled: not the time limit
     done = [{"status": "optimal", "designs": 5}, {"status": "infeasible", "designs": 0}]
     assert _time_limit_cause(done, 2, 0) == ""
+
+
+def test_explanation_of_a_stage_keeps_to_the_time_left():
+    from stockbias.search.design import _Search
+    from stockbias.search.explain import explain
+
+    inv = generated_shelf(30, 2, seed=2)
+    job = job_for()
+    search = _Search(job, inv, 3, Deadline(600.0), None)
+    ex = explain(job, inv, search, "infeasible", budget_s=0.0)
+    assert ex.binding == "time_limit" and ex.levers == [] and ex.relaxation is None
+    assert ex.message.startswith("no design from this stock meets every limit (the search "
+                                 "was complete); the time limit left no time")

@@ -760,7 +760,7 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
 
         # an infeasible verdict is explained within what is left of the time limit
         result.explanation = explain(job, inventory, s, status,
-                                     budget_s=max(deadline.remaining(), 0.5))
+                                     budget_s=deadline.remaining())
         result.solve_seconds = time.monotonic() - t0
     return result
 

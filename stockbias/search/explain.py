@@ -57,6 +57,10 @@ def _closest(job: Job, found) -> tuple[dict[str, object], list[dict[str, object]
     return closest, misses
 
 
+#: the least time a relaxed search is given, s (below it the levers are skipped and said so)
+_LEAST_BUDGET_S = 0.05
+
+
 def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float = 20.0):
     """An :class:`Explanation` for a job the search found no design for.
 
@@ -98,17 +102,26 @@ def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float
         name, text, lever = budget
         return Explanation(name, text, relaxation=lever, levers=[lever])
 
+    if budget_s < _LEAST_BUDGET_S:
+        return Explanation(
+            "time_limit", "no design from this stock meets every limit (the search was "
+            "complete); the time limit left no time to search for what misses and which "
+            "change would help, so that search was skipped; raise --time-limit to have it")
+
     def left(share: float) -> float:
-        return max((budget_s - (time.monotonic() - t0)) * share, 0.5)
+        return max((budget_s - (time.monotonic() - t0)) * share, _LEAST_BUDGET_S)
+
+    def over() -> bool:
+        return time.monotonic() - t0 > budget_s
 
     found_levers: list[dict[str, object]] = []
     # the closest design: what a relaxed window (or power limit) admits, judged by the job
     window, closest_design = lv.wider_window(job, inventory, left(0.25))
     power, power_design = (None, None)
-    if closest_design is None or _ok_under(job, closest_design):
+    if (closest_design is None or _ok_under(job, closest_design)) and not over():
         power, power_design = lv.supply_power(job, inventory, left(0.15))
         closest_design = closest_design or power_design
-    if closest_design is None:
+    if closest_design is None and not over():
         # diagnosis only (never advice): without the headroom, swing and gain limits, the
         # design the shelf comes closest with, so every limit it misses can be named
         loose = replace(st, target=replace(st.target, vce_min=0.0, swing_pk=None,
