@@ -22,7 +22,7 @@ What is proven
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -34,7 +34,7 @@ from .prepass import PLANS, free_role_bounds, free_role_keep, free_role_range, v
 from .ranking import count_distinct, margin_ppm, objective_key
 from .solve import RankedSolve, fits_stock, pick_one, solve_one
 
-__all__ = ["Variant", "design_variants", "network_key", "network_roles", "rank_networks",
+__all__ = ["FULL_LIST", "Variant", "VariantList", "design_variants", "network_key", "network_roles", "rank_networks",
            "variants_of"]
 
 
@@ -119,14 +119,74 @@ class Variant:
     cost_micro: int
 
 
+#: a network's screened free-role list is checked whole when it holds at most this many
+#: candidates; a longer one (pairs on a large shelf: thousands) is scanned from both ends in
+#: value order for the range, unless every variant is asked for (``every``)
+FULL_LIST = 64
+
+
+@dataclass(frozen=True)
+class VariantList:
+    """What :func:`variants_of` found for one network.
+
+    ``variants``: the variants found, best key first; ``complete``: every screened candidate
+    was checked (then ``variants`` is every variant); ``screened``: the nominal values of the
+    candidates the necessary-condition screen leaves, ascending (every variant is one of
+    them, so those between the range ends bound the count from above).
+    """
+
+    role: str | None
+    variants: list[Variant]
+    complete: bool = True
+    screened: np.ndarray = field(default_factory=lambda: np.zeros(0))
+
+
+def _screened(job, stage, network: str, transistor, cands, core: dict[str, int]) -> np.ndarray:
+    """The free role's candidates, ascending, that meet the exact-at-a-vertex bounds of the
+    search (:func:`.prepass.free_role_bounds`, either model) with core roles ``core``."""
+    fc = cands[PLANS[network].free]
+    idx1 = {r: np.array([i], dtype=np.int64) for r, i in core.items()}
+    h, low_need, ic_top = free_role_bounds(job, stage, network, transistor, cands, idx1)
+    j0, j1 = free_role_range(fc, h, low_need)
+    fj = np.arange(int(j0[0]), int(max(j1[0], j0[0])), dtype=np.int64)
+    return fj[free_role_keep(job, stage, fc, np.zeros(fj.size, dtype=np.int64), fj, h,
+                             low_need, ic_top)]
+
+
+def _fits(job, shelf, cands, core: dict[str, int], fc, fj: np.ndarray) -> np.ndarray:
+    """Which free-role candidates ``fj`` fit the stock with the core: every line's uses over
+    the design's roles × the build quantity ≤ its quantity (vectorised)."""
+    need = job.build.quantity
+    qty = np.array([r.qty for r in shelf.lines], dtype=np.int64)
+    uses = np.zeros(qty.size, dtype=np.int64)
+    for r, i in core.items():
+        for line in (int(cands[r].line_a[i]), int(cands[r].line_b[i])):
+            if line >= 0:
+                uses[line] += 1
+    if np.any(qty < uses * need):
+        return np.zeros(fj.size, dtype=bool)   # more uses of a line can only make it worse
+    la, lb = fc.line_a[fj], fc.line_b[fj]
+    has_a, has_b = la >= 0, lb >= 0
+    la0, lb0 = np.where(has_a, la, 0), np.where(has_b, lb, 0)
+    same = (has_a & has_b & (la == lb)).astype(np.int64)
+    ok = ~has_a | (qty[la0] >= (uses[la0] + 1 + same) * need)
+    ok &= ~has_b | (qty[lb0] >= (uses[lb0] + 1 + same) * need)
+    return ok
+
+
 def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[str, int],
-                objectives: tuple[str, ...], deadline=None) -> tuple[str | None, list[Variant]]:
-    """(free role, every variant of the network with core roles ``core``), best key first.
+                objectives: tuple[str, ...], deadline=None, every: bool = True) -> VariantList:
+    """The free role's variants of the network with core roles ``core``, best key first.
 
     Every candidate of the free role is screened with the same exact-at-a-vertex bounds the
-    search uses (:func:`.prepass.free_role_bounds`, either model) and then checked at
-    every vertex with :func:`.prepass.vertex_check`; those that pass and fit the stock
-    (each line's uses × build quantity ≤ its quantity) are the variants.
+    search uses (:func:`_screened`) and then checked at every vertex with
+    :func:`.prepass.vertex_check`; those that pass and fit the stock (each line's uses ×
+    build quantity ≤ its quantity) are the variants.
+
+    ``every`` False and more than :data:`FULL_LIST` screened candidates: only the ends of
+    the range are sought, by checking blocks in value order from the low end until one
+    holds a variant and then from the high end likewise (exact: every candidate before the
+    first variant of each end was checked and failed); ``complete`` is then False.
 
     ``deadline`` (optional, a :class:`.deadline.Deadline`): the vertex checks run in
     blocks of 512 candidates in value order, and the blocks after the first stop once it
@@ -135,83 +195,95 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
     """
     free = PLANS[network].free
     if free is None or free not in cands:
-        return None, []
+        return VariantList(None, [])
     fc = cands[free]
-    idx1 = {r: np.array([i], dtype=np.int64) for r, i in core.items()}
-    h, low_need, ic_top = free_role_bounds(job, stage, network, transistor, cands, idx1)
-    j0, j1 = free_role_range(fc, h, low_need)
-    fj = np.arange(int(j0[0]), int(max(j1[0], j0[0])), dtype=np.int64)
-    fj = fj[free_role_keep(job, stage, fc, np.zeros(fj.size, dtype=np.int64), fj, h,
-                           low_need, ic_top)]
+    fj = _screened(job, stage, network, transistor, cands, core)
+    screened = fc.value[fj]
     if fj.size == 0:
-        return free, []
-    parts: list[dict[str, np.ndarray]] = []
-    block = 512 if deadline is not None else max(fj.size, 1)
-    for a in range(0, fj.size, block):
-        if deadline is not None and parts and deadline.expired():
-            break
-        sub = fj[a:a + block]
+        return VariantList(free, [], True, screened)
+
+    def check(sub: np.ndarray) -> dict[str, np.ndarray]:
         arr = {r: (cands[r], np.full(sub.size, i, dtype=np.int64)) for r, i in core.items()}
         arr[free] = (fc, sub)
         chk = vertex_check(job, stage, network, transistor, arr)
-        parts.append({"fj": sub, "ok": np.asarray(chk["ok"], dtype=bool),
-                      "vce": np.asarray(chk["vce_min"]), "lo": np.asarray(chk["ic_min"]),
-                      "hi": np.asarray(chk["ic_max"])})
-    ok = np.concatenate([p["ok"] for p in parts])
-    fj = np.concatenate([p["fj"] for p in parts])[ok]
-    vce = np.concatenate([p["vce"] for p in parts])[ok]
-    ic_lo = np.concatenate([p["lo"] for p in parts])[ok]
-    ic_hi = np.concatenate([p["hi"] for p in parts])[ok]
+        ok = np.asarray(chk["ok"], dtype=bool) & _fits(job, shelf, cands, core, fc, sub)
+        return {"fj": sub[ok], "vce": np.asarray(chk["vce_min"])[ok],
+                "lo": np.asarray(chk["ic_min"])[ok], "hi": np.asarray(chk["ic_max"])[ok]}
+
+    parts: list[dict[str, np.ndarray]] = []
+    complete = True
+    if every or fj.size <= FULL_LIST:
+        block = 512 if deadline is not None else max(fj.size, 1)
+        for a in range(0, fj.size, block):
+            if deadline is not None and parts and deadline.expired():
+                complete = False
+                break
+            parts.append(check(fj[a:a + block]))
+    else:
+        # the ends of the range: blocks growing from each end until one holds a variant
+        lo_at, hi_at, size = 0, fj.size, 16
+        while lo_at < hi_at:
+            got = check(fj[lo_at:min(lo_at + size, hi_at)])
+            lo_at = min(lo_at + size, hi_at)
+            size *= 2
+            if got["fj"].size:
+                parts.append(got)
+                break
+        size = 16
+        while parts and lo_at < hi_at:
+            got = check(fj[max(hi_at - size, lo_at):hi_at])
+            hi_at = max(hi_at - size, lo_at)
+            size *= 2
+            if got["fj"].size:
+                parts.append(got)
+                break
+        complete = lo_at >= hi_at      # the scans met: every candidate was checked
+    fj = np.concatenate([p["fj"] for p in parts]) if parts else np.zeros(0, dtype=np.int64)
     if fj.size == 0:
-        return free, []
-    # stock: every line's uses over the design's roles × the build quantity
-    need = job.build.quantity
-    count: dict[int, int] = {}
-    for r, i in core.items():
-        for line in (int(cands[r].line_a[i]), int(cands[r].line_b[i])):
-            if line >= 0:
-                count[line] = count.get(line, 0) + 1
-    fits = np.ones(fj.size, dtype=bool)
-    for k, j in enumerate(fj):
-        c = dict(count)
-        for line in (int(fc.line_a[j]), int(fc.line_b[j])):
-            if line >= 0:
-                c[line] = c.get(line, 0) + 1
-        fits[k] = all(shelf.lines[line].qty >= n * need for line, n in c.items())
-    fj, vce, ic_lo, ic_hi = fj[fits], vce[fits], ic_lo[fits], ic_hi[fits]
+        return VariantList(free, [], complete, screened)
+    vce = np.concatenate([p["vce"] for p in parts])
+    ic_lo = np.concatenate([p["lo"] for p in parts])
+    ic_hi = np.concatenate([p["hi"] for p in parts])
     n = fj.size
     cost = np.full(n, micro(transistor.unit_cost), dtype=np.int64) + fc.cost[fj]
-    parts = np.ones(n, dtype=np.int64) + fc.parts[fj]
+    count = np.ones(n, dtype=np.int64) + fc.parts[fj]
     vals = [fc.value_a[fj], fc.value_b[fj]]
     lines = [fc.line_a[fj], fc.line_b[fj]]
     for r, i in core.items():
         c = cands[r]
         cost += c.cost[i]
-        parts += c.parts[i]
+        count += c.parts[i]
         vals += [np.full(n, c.value_a[i]), np.full(n, c.value_b[i])]
         lines += [np.full(n, c.line_a[i]), np.full(n, c.line_b[i])]
     t = stage.target
     mppm = margin_ppm(ic_lo, ic_hi, t.ic_min, t.ic_max, t.ic)
-    key = objective_key(objectives, cost, parts, count_distinct(vals),
+    key = objective_key(objectives, cost, count, count_distinct(vals),
                         count_distinct(lines) + 1, mppm)
-    order = np.lexsort((fc.value[fj], *key.T[::-1])) if n else np.zeros(0, dtype=np.int64)
-    return free, [Variant(int(fj[k]), tuple(int(x) for x in key[k]), float(vce[k]),
-                          float(mppm[k]) / 1e6, int(cost[k])) for k in order]
+    order = np.lexsort((fc.value[fj], *key.T[::-1]))
+    return VariantList(free, [Variant(int(fj[k]), tuple(int(x) for x in key[k]),
+                                      float(vce[k]), float(mppm[k]) / 1e6, int(cost[k]))
+                              for k in order], complete, screened)
 
 
 def design_variants(s, k: int, verify: bool, deadline=None
-                    ) -> tuple[str | None, tuple[DesignVariant, ...]]:
-    """The free role's variants of the network of the search ``s``'s pool design ``k``,
-    (free role, variants) for :class:`.design_result.Design`; with ``verify`` each is
-    re-checked by ``analyze_stage`` and one that fails is left out.  ``deadline``: see
-    :func:`variants_of` (the representative is listed whatever the deadline)."""
+                    ) -> tuple[str | None, tuple[DesignVariant, ...], int | None]:
+    """The free role's variants of the network of the search ``s``'s pool design ``k``:
+    (free role, variants, ``None`` when the variants are every one, else an upper bound
+    on their count) for :class:`.design_result.Design`.
+
+    With ``verify`` every variant is listed and re-checked by ``analyze_stage`` (one that
+    fails is left out); without it a long list gives the representative and the two ends
+    of the range only (:func:`variants_of` with ``every`` False), and the bound counts
+    the screened candidates between the ends.  ``deadline``: see :func:`variants_of` (the
+    representative is listed whatever the deadline)."""
     b = s.blocks[s.pool.block[k]]
     roles = s.pool.roles[k]
     core = {r: i for r, i in roles.items() if r != PLANS[b.network].free}
-    free, found = variants_of(s.job, s.stage, s.shelf, b.network, b.transistor, b.cands, core,
-                              s.objectives, deadline)
+    listing = variants_of(s.job, s.stage, s.shelf, b.network, b.transistor, b.cands, core,
+                          s.objectives, deadline, every=verify)
+    free, found = listing.role, listing.variants
     if free is None:
-        return None, ()
+        return None, (), None
     rep = roles.get(free)
     out = []
     for v in found:
@@ -248,4 +320,11 @@ def design_variants(s, k: int, verify: bool, deadline=None
                                      ic_margin=s.pool.margin[k]))
     # the representative first (it is a best variant; those tied with it follow in order)
     out.sort(key=lambda v: not v.representative)
-    return free, tuple(out)
+    at_most = None
+    if not listing.complete and out and not (deadline is not None and deadline.hit):
+        vals = [v.part.value for v in out]
+        lo, hi = min(vals), max(vals)
+        scr = listing.screened
+        at_most = max(int(np.count_nonzero((scr >= lo * (1 - 1e-12)) & (scr <= hi * (1 + 1e-12)))),
+                      len(out))
+    return free, tuple(out), at_most

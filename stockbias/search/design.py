@@ -714,10 +714,10 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
         vals = {part.value_ohm for p in parts.values() for part in p.parts}
         lines = {part.part_id for p in parts.values() for part in p.parts}
         cost = b.transistor.unit_cost + sum(p.unit_cost for p in parts.values())
-        free_role, variants = design_variants(s, k, verify_variants, deadline)
+        free_role, variants, at_most = design_variants(s, k, verify_variants, deadline)
         designs.append(Design(
             rank=rank, topology=b.network, transistor=b.transistor, check=res,
-            free_role=free_role, variants=variants,
+            free_role=free_role, variants=variants, variants_at_most=at_most,
             cost=cost, cost_micro=micro(b.transistor.unit_cost)
             + sum(micro(part.unit_cost) for p in parts.values() for part in p.parts),
             part_count=1 + sum(len(p.parts) for p in parts.values()),

@@ -61,14 +61,22 @@ class Design:
     #: feedback, where every role sets IC) and every such value, the representative included
     free_role: str | None = None
     variants: tuple[DesignVariant, ...] = ()
+    #: None when ``variants`` is every variant; else they are the representative and the
+    #: two ends of the range only, and this bounds the count from above (the candidates
+    #: between the ends that the search's necessary conditions leave)
+    variants_at_most: int | None = None
 
     def variant_range(self) -> dict[str, object] | None:
-        """min/max value (ohm) and count of the free role's variants, None without one."""
+        """min/max value (ohm) and count of the free role's variants (``None`` when only
+        the ends were sought; ``count_at_most`` bounds it), None without a free role."""
         if self.free_role is None or not self.variants:
             return None
         vals = [v.part.value for v in self.variants]
+        every = self.variants_at_most is None
         return {"role": self.free_role, "min_ohm": min(vals), "max_ohm": max(vals),
-                "count": len(vals)}
+                "count": len(vals) if every else None,
+                "count_at_most": len(vals) if every else self.variants_at_most,
+                "every_variant_listed": every}
 
     def to_dict(self) -> dict[str, object]:
         c = self.check.to_dict()
