@@ -58,7 +58,7 @@ import numpy as np
 
 from ..analysis.check import CheckResult, analyze_stage, collect_assumptions
 from ..job import Job
-from ..parts import Inventory
+from ..parts import Inventory, id_key
 from .alternatives import design_variants, network_key, rank_networks
 from .candidates import (
     Shelf,
@@ -135,6 +135,7 @@ class _Search(RowScan):
         self.checks: dict[tuple, CheckResult] = {} if checks is None else checks
         self.rejected_on_verification = 0
         self._cache: dict[tuple, object] = {}
+        self._qty: dict[str, int] | None = None
         self.pair_roles_limited: list[str] = []
         self.timed_out = False
         self.coverage = Coverage(len(self.transistors))
@@ -159,7 +160,7 @@ class _Search(RowScan):
         sel = np.flatnonzero(rows.i1 > rows.i0)
         i0, i1 = rows.i0[sel], rows.i1[sel]
         xc = b.cands[plan.interval]
-        tabs = self._tables(b)
+        tabs = self._tables(b, int(np.max(i1 - i0)) if sel.size else 1)
         cost = np.full(sel.size, micro(b.transistor.unit_cost), dtype=np.int64)
         parts = np.ones(sel.size, dtype=np.int64)
         vals, lines = [], []
@@ -196,15 +197,22 @@ class _Search(RowScan):
         mppm = margin_ppm(ic_lo, ic_hi, t.ic_min, t.ic_max, t.ic)
         return sel, objective_key(self.objectives, cost, parts, distinct, bom, mppm)
 
-    def _tables(self, b: _Block) -> dict[str, np.ndarray]:
+    def _tables(self, b: _Block, longest: int) -> dict[str, np.ndarray]:
+        """Range-min/max tables of the interval role's columns, with the levels that
+        ranges of up to ``longest`` candidates need (rebuilt deeper when a later unit
+        asks for longer ranges; with pairs the table has 10^5 candidates and the ranges a
+        few thousand, so the upper levels are never built)."""
         key = (b.network, "tables")
-        if key not in self._cache:
+        got = self._cache.get(key)
+        if got is None or got[0] < longest:
             xc = b.cands[PLANS[b.network].interval]
-            self._cache[key] = {"cost": _sparse(xc.cost, np.minimum),
-                                "parts": _sparse(xc.parts, np.minimum),
-                                "low_max": _sparse(xc.low, np.maximum),
-                                "high_min": _sparse(xc.high, np.minimum)}
-        return self._cache[key]
+            depth = 1 << max(int(longest) - 1, 1).bit_length()   # a power of two ≥ longest
+            self._cache[key] = got = (depth, {
+                "cost": _sparse(xc.cost, np.minimum, depth),
+                "parts": _sparse(xc.parts, np.minimum, depth),
+                "low_max": _sparse(xc.low, np.maximum, depth),
+                "high_min": _sparse(xc.high, np.minimum, depth)})
+        return got[1]
 
     def _keys(self, b: _Block, idx: dict[str, np.ndarray], roles: tuple[str, ...],
               ic_lo: np.ndarray, ic_hi: np.ndarray, lower: bool = False) -> np.ndarray:
@@ -447,7 +455,12 @@ class _Search(RowScan):
             for part in p.parts:
                 count[part.part_id] = count.get(part.part_id, 0) + 1
         need = self.job.build.quantity
-        return all(self.inv.find_resistor(pid).qty >= c * need for pid, c in count.items())
+        if self._qty is None:
+            # the stock quantity of each part id, as Inventory.find_resistor finds it
+            self._qty = {}
+            for r in self.inv.resistors:
+                self._qty.setdefault(id_key(r.part_id), r.qty)
+        return all(self._qty[id_key(pid)] >= c * need for pid, c in count.items())
 
     def verify(self, k: int) -> CheckResult | None:
         ck = (self.pool.block[k], tuple(sorted(self.pool.roles[k].items())))

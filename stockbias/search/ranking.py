@@ -69,11 +69,13 @@ def count_distinct(cols: list[np.ndarray]) -> np.ndarray:
     return total
 
 
-def sparse_table(a: np.ndarray, fn) -> np.ndarray:
-    """Sparse table (levels × n, padded) for O(1) range min/max queries."""
+def sparse_table(a: np.ndarray, fn, longest: int | None = None) -> np.ndarray:
+    """Sparse table (levels × n, padded) for O(1) range min/max queries; with ``longest``
+    only the levels that ranges of at most that many elements use."""
     levels = [a]
     k = 1
-    while 2 * k <= a.size:
+    top = a.size if longest is None else min(a.size, int(longest))
+    while 2 * k <= top:
         prev = levels[-1]
         levels.append(fn(prev[:-k], prev[k:]))
         k *= 2
