@@ -18,6 +18,11 @@ time is given beside wall time.
 Sample job: the bundled line-driver job on the bundled E96 reels, pairs off and on, in
 fresh processes, with the ratio of the two (goal: pairs within 3× of no pairs).
 
+Pairs (``--pairs``): each generated shelf of the pairs rows searched with pairs off and
+on, each search in its own process after a warm-up search there (imports not counted):
+CPU and wall of the search, the process's peak memory (``ru_maxrss``), and the ratio on /
+off of the CPU times measured in the same run.
+
 Shelves: E12 … E96 over 10 Ω … 1 MΩ (stockbias.eseries.series_values), 5000 pieces per
 line, seeded unit costs; transistors are generated small-signal rows (NPN and PNP).
 Job: one divider stage, 12 V ±5 %, IC 1.5 mA ±12 %, VCE ≥ 3 V, 0…55 °C, build of 10.
@@ -256,6 +261,51 @@ def exponential_rows() -> None:
                       f"{r[3]} | {ratio[0]} | {ratio[1]} |", flush=True)
 
 
+PAIR_CASES = [("E12", 20), ("E24", 20), ("E48", 5), ("E48", 20), ("E96", 5), ("E96", 20)]
+
+_ONE_CASE = """
+import json, resource, sys, time
+sys.path.insert(0, {here!r})
+from bench_search import JOB, shelf
+from stockbias.job import parse_job
+from stockbias.search.design import design
+inv = shelf({series!r}, {n_q})
+job = parse_job(JOB.format(pairs={pairs!r}).replace("time_limit_s = 120", "time_limit_s = 900"))
+design(parse_job(JOB.format(pairs="false")), shelf("E12", 1))   # warm-up: imports
+c0, t0 = time.process_time(), time.perf_counter()
+r = design(job, inv)
+cpu, wall = time.process_time() - c0, time.perf_counter() - t0
+print(json.dumps({{"status": r.status, "cpu": cpu, "wall": wall, "designs": len(r.designs),
+                  "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+                  "keys": [[d.cost_micro, d.part_count, d.distinct_values, d.ic_margin]
+                           for d in r.designs]}}))
+"""
+
+
+def pair_ratio_rows() -> None:
+    """Pairs on against off on the generated shelves: each search once in its own process
+    (after a warm-up search there, so imports are not counted), CPU and wall of the search,
+    the process's peak memory; the ratio on / off of the CPU times of the same run."""
+    here = str(Path(__file__).resolve().parent)
+    print("| shelf | transistors | pairs | status | search wall (CPU) (s) | peak memory (MiB) "
+          "| ratio on / off CPU (wall) |")
+    print("|---|---|---|---|---|---|---|")
+    for series, n_q in PAIR_CASES:
+        got = {}
+        for pairs in ("false", "true"):
+            code = _ONE_CASE.format(here=here, series=series, n_q=n_q, pairs=pairs)
+            out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                                 check=False)
+            got[pairs] = json.loads(out.stdout.strip().splitlines()[-1])
+        off, on = got["false"], got["true"]
+        same = "" if off["keys"] == on["keys"] else " (pairs change the ranking)"
+        for pairs, r in (("off", off), ("on", on)):
+            ratio = (f"{on['cpu'] / off['cpu']:.1f}× ({on['wall'] / off['wall']:.1f}×){same}"
+                     if pairs == "on" else "")
+            print(f"| {series} | {n_q} | {pairs} | {r['status']} | {r['wall']:.2f} "
+                  f"({r['cpu']:.2f}) | {r['peak_mib']:.0f} | {ratio} |", flush=True)
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--quick", action="store_true")
@@ -263,7 +313,12 @@ def main() -> None:
     ap.add_argument("--exponential", action="store_true",
                     help="only the exponential vs constant-VBE rows (fresh processes)")
     ap.add_argument("--sample-only", action="store_true", help="only the bundled sample job")
+    ap.add_argument("--pairs", action="store_true",
+                    help="only pairs on against off on the generated shelves, one process each")
     args = ap.parse_args()
+    if args.pairs:
+        pair_ratio_rows()
+        return
     if args.exponential:
         exponential_rows()
         return

@@ -37,8 +37,12 @@ def _range_text(d: dict) -> str:
     n = rng["count"]
     if n == 1:
         return "the only value in stock"
-    return (f"{format_quantity(rng['min_ohm'], 'ohm')} … "
-            f"{format_quantity(rng['max_ohm'], 'ohm')}, {n} values in stock")
+    span = (f"{format_quantity(rng['min_ohm'], 'ohm')} … "
+            f"{format_quantity(rng['max_ohm'], 'ohm')}")
+    if n is None:
+        # only the ends were sought: the count is bounded, not counted
+        return f"{span}, up to {rng['count_at_most']} values in stock"
+    return f"{span}, {n} values in stock"
 
 
 def design_block(d: dict, width: int) -> list[str]:
@@ -127,6 +131,12 @@ def render_design(console: Console, job: Job, result, show_variants: bool = Fals
             console.print(f"{', '.join(free)}: the range counts the stock values that work "
                           f"with the network (the role does not set IC); {check}. --top "
                           "counts networks.")
+            if any((d.get("variant_range") or {}).get("count") is None
+                   for d in data if d.get("free_role")):
+                console.print("'up to': a long range is found from its ends, each end "
+                              "checked; the values between them are counted as the search's "
+                              "necessary conditions leave them, not each checked "
+                              "(--variants checks each).")
         console.print(f"IC window {format_quantity(t.ic_min, 'A')}–"
                       f"{format_quantity(t.ic_max, 'A')}, target {format_quantity(t.ic, 'A')}; "
                       f"margin: {IC_MARGIN_DEFINITION}. Every design was re-verified with the "

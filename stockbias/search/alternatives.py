@@ -13,10 +13,14 @@ What is proven
     (``analyze_stage``) and fits the stock.  The search bound κ is the key of the design
     at which the K-th distinct network is first met in key order, so a row whose lower
     bound exceeds κ can hold no network ranked in the top K (its every variant is worse
-    than K networks already verified).  The variants listed for a network are *every*
-    free-role candidate on the shelf that, with that network, passes every limit at every
-    vertex of the tolerance box and fits the stock; with ``verify`` each is also re-checked
-    by ``analyze_stage`` (which adds the interior maxima of the dissipations).
+    than K networks already verified).  A variant of a network is a free-role candidate
+    on the shelf that, with that network, passes every limit at every vertex of the
+    tolerance box and fits the stock.  With ``verify`` (``--variants``) every variant is
+    listed and re-checked by ``analyze_stage`` (which adds the interior maxima of the
+    dissipations); without it every variant is listed when the screened list is short
+    (:data:`FULL_LIST`), and otherwise the representative and the two ends of the range:
+    the smallest and the largest working value are exact (found by checking in value order
+    from each end), the count between them is bounded by the screened candidates there.
 """
 
 from __future__ import annotations
@@ -129,8 +133,10 @@ FULL_LIST = 64
 class VariantList:
     """What :func:`variants_of` found for one network.
 
-    ``variants``: the variants found, best key first; ``complete``: every screened candidate
-    was checked (then ``variants`` is every variant); ``screened``: the nominal values of the
+    ``variants``: the variants found, best key first; ``complete``: False when only the
+    ends of the range were sought and some candidates between them were not checked (a
+    listing cut by the deadline stays True: the caller says so from ``deadline.hit``);
+    ``screened``: the nominal values of the
     candidates the necessary-condition screen leaves, ascending (every variant is one of
     them, so those between the range ends bound the count from above).
     """
@@ -186,7 +192,8 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
     ``every`` False and more than :data:`FULL_LIST` screened candidates: only the ends of
     the range are sought, by checking blocks in value order from the low end until one
     holds a variant and then from the high end likewise (exact: every candidate before the
-    first variant of each end was checked and failed); ``complete`` is then False.
+    first variant of each end was checked and failed); ``complete`` is then False unless
+    the two scans met.
 
     ``deadline`` (optional, a :class:`.deadline.Deadline`): the vertex checks run in
     blocks of 512 candidates in value order, and the blocks after the first stop once it
@@ -210,19 +217,21 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
         return {"fj": sub[ok], "vce": np.asarray(chk["vce_min"])[ok],
                 "lo": np.asarray(chk["ic_min"])[ok], "hi": np.asarray(chk["ic_max"])[ok]}
 
+    def cut() -> bool:
+        return deadline is not None and deadline.expired()
+
     parts: list[dict[str, np.ndarray]] = []
     complete = True
     if every or fj.size <= FULL_LIST:
         block = 512 if deadline is not None else max(fj.size, 1)
         for a in range(0, fj.size, block):
             if deadline is not None and parts and deadline.expired():
-                complete = False
                 break
             parts.append(check(fj[a:a + block]))
     else:
         # the ends of the range: blocks growing from each end until one holds a variant
         lo_at, hi_at, size = 0, fj.size, 16
-        while lo_at < hi_at:
+        while lo_at < hi_at and not (size > 16 and cut()):
             got = check(fj[lo_at:min(lo_at + size, hi_at)])
             lo_at = min(lo_at + size, hi_at)
             size *= 2
@@ -230,7 +239,7 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
                 parts.append(got)
                 break
         size = 16
-        while parts and lo_at < hi_at:
+        while parts and lo_at < hi_at and not (size > 16 and cut()):
             got = check(fj[max(hi_at - size, lo_at):hi_at])
             hi_at = max(hi_at - size, lo_at)
             size *= 2
@@ -321,7 +330,7 @@ def design_variants(s, k: int, verify: bool, deadline=None
     # the representative first (it is a best variant; those tied with it follow in order)
     out.sort(key=lambda v: not v.representative)
     at_most = None
-    if not listing.complete and out and not (deadline is not None and deadline.hit):
+    if not listing.complete and out:
         vals = [v.part.value for v in out]
         lo, hi = min(vals), max(vals)
         scr = listing.screened

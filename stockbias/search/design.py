@@ -41,8 +41,9 @@ What is proven
 Alternatives, not variants
     The top K are K distinct bias networks (:mod:`.alternatives`): κ is the key at which
     the K-th distinct network is first met, CP-SAT ranks one design per network (the
-    network's best variant that passes the full check), and each ranked network lists
-    every value of its free role (RC) that works with it.  ``optimal`` then means: no
+    network's best variant that passes the full check), and each ranked network gives
+    the range of the values of its free role (RC) that work with it (every such value
+    with ``verify_variants``; :mod:`.alternatives`).  ``optimal`` then means: no
     network the search did not return has a variant that ranks above the best variant
     of a returned one.
 """
