@@ -1,14 +1,14 @@
 """Benchmark: design-search solve time against shelf size, and the naive baseline.
 
-Run:  python benchmarks/bench_search.py [--quick]
+Run:  python benchmarks/bench_search.py [--quick | --sample-only | --pairs | --exponential]
 
 Solve time is everything after the stock and job are loaded (pre-pass, model, solve,
 re-verification), as DESIGN §2 defines it; the median of three runs after one warm-up
-search (so that the one-off imports of OR-Tools and SciPy are not counted).  The baseline is the naive vectorised
-enumeration of the full cross product (every role × every line × every transistor, all
-corners), evaluated with the analysis engine and the same limits, then sorted by the same
-objectives; it is run only where it finishes in reasonable time, otherwise its time is
-extrapolated from a measured slice (marked "est.").
+search (so that the one-off imports of OR-Tools and SciPy are not counted).  The baseline
+is the naive vectorised enumeration of the full cross product (every role × every line ×
+every transistor, all corners), evaluated with the analysis engine and the same limits,
+then sorted by the same objectives; it is run only where it finishes in reasonable time,
+otherwise its time is extrapolated from a measured slice (marked "est.").
 
 Fresh process: each case is also run once as ``python -m stockbias design JOB --inventory
 STOCK --json`` in a new process (the shelf and job written as files); its wall clock and

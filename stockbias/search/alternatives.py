@@ -38,8 +38,8 @@ from .prepass import PLANS, free_role_bounds, free_role_keep, free_role_range, v
 from .ranking import count_distinct, margin_ppm, objective_key
 from .solve import RankedSolve, fits_stock, pick_one, solve_one
 
-__all__ = ["FULL_LIST", "Variant", "VariantList", "design_variants", "network_key", "network_roles", "rank_networks",
-           "variants_of"]
+__all__ = ["FULL_LIST", "Variant", "VariantList", "design_variants", "network_key",
+           "network_roles", "rank_networks", "variants_of"]
 
 
 def network_roles(network: str, roles: tuple[str, ...] | list[str]) -> tuple[str, ...]:
