@@ -51,8 +51,8 @@ PARALLEL_MIN_SAMPLES = 200_000
 MAX_SAMPLES = 1_000_000_000
 
 
-def _samples_within_cap(value: int) -> int:
-    if value > MAX_SAMPLES:
+def _samples_within_cap(value: int | None) -> int | None:
+    if value is not None and value > MAX_SAMPLES:
         raise InputError(f"at most {MAX_SAMPLES:,} Monte Carlo boards per check: memory "
                          "stays bounded (the boards are drawn in blocks) but time grows "
                          "with the count, about 16 s per million boards on one core, so "
@@ -60,11 +60,16 @@ def _samples_within_cap(value: int) -> int:
     return value
 
 
+SAMPLES_HELP = (f"Monte Carlo boards per check, 0 (none) to {MAX_SAMPLES:,} in every command; "
+                "drawn in blocks in bounded memory, time grows with N (about 16 s per million "
+                "boards on one core).")
 SamplesOpt = Annotated[int, typer.Option(
+    "--samples", metavar="N", min=0, callback=_samples_within_cap, help=SAMPLES_HELP)]
+#: --samples whose default depends on the job (a yield target judges on more boards)
+JobSamplesOpt = Annotated[int | None, typer.Option(
     "--samples", metavar="N", min=0, callback=_samples_within_cap,
-    help=f"Monte Carlo boards per check, 0 (none) to {MAX_SAMPLES:,} in every command; "
-    "drawn in blocks in bounded memory, time grows with N (about 16 s per million boards "
-    "on one core).")]
+    help=SAMPLES_HELP + " Default 2,000; with a yield target, 20,000 per judged candidate "
+    "and per final check.")]
 ForceOpt = Annotated[bool, typer.Option(
     "--force", help="Replace output files that exist (a symbolic link is replaced itself, "
     "never the file it points to). Inputs are never written over.")]

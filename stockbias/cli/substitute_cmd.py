@@ -11,13 +11,16 @@ import typer
 from . import changes_opts
 from .changes_opts import ChangesOpt, SchematicOpt, SchematicOutOpt
 from .common import (
+    ClusterOpt,
     ForceOpt,
     InventoryOpt,
     JobArg,
+    JobSamplesOpt,
     JsonOpt,
-    SamplesOpt,
     SeedOpt,
+    WorkersOpt,
     load,
+    search_progress,
 )
 
 
@@ -43,8 +46,10 @@ def substitute(
     time_limit: Annotated[float | None, typer.Option(
         "--time-limit", metavar="SECONDS",
         min=0.1, max=86400.0, help="Seconds for the rework searches.")] = None,
-    samples: SamplesOpt = 2000,
+    samples: JobSamplesOpt = None,
     seed: SeedOpt = 0,
+    workers: WorkersOpt = 0,
+    cluster: ClusterOpt = None,
     keep_purpose: Annotated[str | None, typer.Option(
         "--keep-purpose", metavar="NAME=PERCENT",
         help="NAME=PERCENT[,...], NAME one of gain (± % of today's nominal "
@@ -95,9 +100,9 @@ def substitute(
         if no_keep_purpose and tolerances:
             raise InputError("--keep-purpose and --no-keep-purpose contradict each other",
                              column="--no-keep-purpose", text=keep_purpose)
-        result = run(job, assignment, transistor, inv, max_changes=max_changes,
-                     time_limit_s=time_limit, samples=samples, seed=seed,
-                     keep_purpose=tolerances, purpose=not no_keep_purpose)
+        result = _run(run, job, assignment, transistor, inv, json_out, workers, cluster,
+                      max_changes=max_changes, time_limit_s=time_limit, samples=samples,
+                      seed=seed, keep_purpose=tolerances, purpose=not no_keep_purpose)
         if report is not None:
             from ..render.report import render_report
 
@@ -130,3 +135,24 @@ def substitute(
     changes_opts.report(written, rows, notes, json_out)
     if not any(c.fixed for c in result.candidates):
         raise typer.Exit(1)
+
+
+def _run(run, job, assignment, transistor, inv, json_out: bool, workers: int,
+         cluster: str | None, **options):
+    """The substitution; a yield target's Monte Carlo on the executor the options ask for,
+    with a progress bar naming the transistor, the candidates and the boards."""
+    if job.stage.target.yield_min is None:
+        return run(job, assignment, transistor, inv, **options)
+    from ..executor import InProcess, make_executor
+
+    # candidates are short runs: local workers only pay off when asked for
+    executor = make_executor(workers or None, cluster) if (cluster or workers > 1) \
+        else InProcess()
+    try:
+        with search_progress(json_out, "yield substitute") as progress:
+            return run(job, assignment, transistor, inv, executor=executor, progress=progress,
+                       **options)
+    finally:
+        close = getattr(executor, "close", None)
+        if close is not None:
+            close()

@@ -11,11 +11,46 @@ from ..search.substitute import SubstituteResult
 from ..units import format_quantity
 from .blocks import fill, item, print_lines, prose
 from .purpose_change import purpose_change_lines
+from .yield_text import lower_percent, percent_text
 
 #: the indent of a block's second and later lines
 _PAD = "     "
 
-__all__ = ["candidate_lines", "render_substitute", "verdict_lines"]
+__all__ = ["candidate_lines", "evidence_text", "render_substitute", "verdict_lines"]
+
+
+def evidence_text(ev, y_min: float) -> list[str]:
+    """A yield verdict's evidence as items: what was shown, on how many boards, and the
+    worst-case verdict of the same parts (:class:`.yield_substitute.YieldEvidence`)."""
+    out = []
+    target = f"{100 * y_min:g} %"
+    if ev.kind == "worst case":
+        out.append("yield 1: passes every worst-case corner")
+    elif ev.kind == "sub-box":
+        out.append(f"yield ≥ {lower_percent(ev.box_mass)} %: passes the sub-box holding that "
+                   "share of boards")
+    elif ev.kind == "screened out":
+        out.append(f"yield ≤ {percent_text(ev.screen_high, 3)} % on {ev.screen.samples:,} "
+                   f"screening boards, below {target}")
+    elif ev.kind == "not judged":
+        out.append("not judged: time limit")
+    if ev.judged is not None:
+        out.append(f"judged {percent_text(ev.judged.yield_, 3)} % of {ev.judged.samples:,} "
+                   f"boards (≥ {lower_percent(ev.judged_low)} %)"
+                   + (f", below {target}" if ev.kind == "below target" else ""))
+    if ev.final is not None:
+        out.append(f"final check {percent_text(ev.final.yield_, 3)} % of "
+                   f"{ev.final.samples:,} fresh boards (≥ {lower_percent(ev.final_low)} %)"
+                   + (f", below {target}" if ev.kind == "failed final check" else ""))
+        out.append("worst case fails " + ", ".join(ev.worst_case_failing)
+                   if ev.worst_case_failing else "worst case passes too")
+    return out
+
+
+def _evidence_lines(label: str, ev, y_min: float, width: int) -> list[str]:
+    items = evidence_text(ev, y_min)
+    items = [f"{x};" for x in items[:-1]] + items[-1:]
+    return fill([item(label), *(item(x) for x in items)], width, _PAD, gap=" ")
 
 
 def verdict_lines(result: SubstituteResult) -> list[str]:
@@ -40,8 +75,40 @@ def verdict_lines(result: SubstituteResult) -> list[str]:
     return out
 
 
-def candidate_lines(rank: int, c, width: int) -> list[str]:
-    """One stock transistor as a block: rank, part and hFE, verdict, rework, reason."""
+def _yield_head(c, margin: list[str]) -> list[str]:
+    if c.drop_in:
+        return [item("drop-in", "green"), item("no rework"), *margin]
+    if c.changes:
+        n = len(c.changes)
+        return [item(f"{n} change{'s' if n > 1 else ''}", "yellow"),
+                item(f"added cost {c.added_cost:g}/board"), *margin]
+    return [item("no fix", "red")]
+
+
+def _yield_rest(c, y_min: float, width: int) -> list[str]:
+    """The yield verdict's evidence under a candidate's head line."""
+    out: list[str] = []
+    if c.changes:
+        changes = [f"{role} → {format_quantity(p.value, 'ohm')} ({'+'.join(p.part_ids)})"
+                   for role, p in c.changes.items()]
+        changes = [f"{x}," for x in changes[:-1]] + changes[-1:]
+        changes[0] = "rework: " + changes[0]
+        out += fill([item(x) for x in changes], width, _PAD, gap=" ")
+    if c.drop_in_yield is not None:
+        out += _evidence_lines("as it stands:", c.drop_in_yield, y_min, width)
+    if c.yield_evidence is not None:
+        out += _evidence_lines("with the rework:" if c.changes else "as it stands:",
+                               c.yield_evidence, y_min, width)
+    if c.note:
+        out += prose(c.note, width, _PAD)
+    elif c.changes and not c.proven:
+        out += prose("time limit: fewer changes not ruled out", width, _PAD)
+    return out
+
+
+def candidate_lines(rank: int, c, width: int, y_min: float | None = None) -> list[str]:
+    """One stock transistor as a block: rank, part and hFE, verdict, rework, reason (with a
+    yield target, ``y_min``: the yield evidence of the verdict and of the drop-in)."""
     q = c.transistor
     head = [item(f"{rank:>2}. {q.part_id} ({q.polarity}, hFE {q.hfe_min:g}–{q.hfe_max:g})")]
     margin = []
@@ -49,6 +116,9 @@ def candidate_lines(rank: int, c, width: int) -> list[str]:
         margin = [item(f"IC margin {100 * c.check.ic_margin:.2f} %")]
     fails = ", ".join(x.name for x in c.drop_in_check.failing) if c.drop_in_check else ""
     rest: list[str] = []
+    if y_min is not None and c.ruled_out is None:
+        return fill(head + _yield_head(c, margin), width, " ", hang=_PAD) + \
+            _yield_rest(c, y_min, width)
     if c.ruled_out:
         head.append(item("ruled out", "red"))
         rest = prose(c.ruled_out, width, _PAD)
@@ -113,15 +183,27 @@ def render_substitute(console: Console, job: Job, result: SubstituteResult) -> N
                   f"stage '{console_text(result.stage)}' ({result.topology}): {values}; IC "
                   f"{format_quantity(t.ic_min, 'A')}–{format_quantity(t.ic_max, 'A')}, "
                   f"VCE ≥ {format_quantity(t.vce_min, 'V')}, build of {job.build.quantity}")
-    console.print("[bold]Stock transistors, best first[/bold]")
     width = max(console.width, 40)
+    ys = result.yield_search
+    y_min = None if ys is None else float(ys["yield_min"])
+    if ys is not None:
+        _yield_intro(console, result, width)
+    console.print("[bold]Stock transistors, best first[/bold]")
     for rank, c in enumerate(result.candidates, start=1):
-        print_lines(console, candidate_lines(rank, c, width))
+        print_lines(console, candidate_lines(rank, c, width, y_min))
     _purpose(console, result)
-    console.print(f"{IC_MARGIN_DEFINITION} ({format_quantity(t.ic, 'A')}). Every "
-                  "verdict is the full worst-case check (the same as `stockbias check`); a "
-                  "rework is the fewest resistor changes, then the lowest added cost, then the "
-                  "largest margin.")
+    if ys is None:
+        console.print(f"{IC_MARGIN_DEFINITION} ({format_quantity(t.ic, 'A')}). Every "
+                      "verdict is the full worst-case check (the same as `stockbias check`); "
+                      "a rework is the fewest resistor changes, then the lowest added cost, "
+                      "then the largest margin.")
+    else:
+        console.print(f"{IC_MARGIN_DEFINITION} ({format_quantity(t.ic, 'A')}). A rework is "
+                      "the fewest resistor changes, then the lowest added cost, among the "
+                      "candidates judged; " + console_text("; ".join(ys["assumptions"])) + ".")
+        dropped = ys["stats"]["dropped_on_final_check"]
+        if dropped:
+            console.print(console_text("Dropped on the final check: " + "; ".join(dropped)))
     for c in result.candidates:
         for w in (c.check.warnings if c.check is not None else []):
             console.print(f"[yellow]warning[/yellow] "
@@ -129,3 +211,27 @@ def render_substitute(console: Console, job: Job, result: SubstituteResult) -> N
     cautions = {w for c in result.candidates if c.check is not None for w in c.check.cautions}
     for w in sorted(cautions):
         console.print(f"[bold yellow]caution[/bold yellow]: {console_text(w)}")
+
+
+def _yield_intro(console: Console, result: SubstituteResult, width: int) -> None:
+    """What a yield verdict claims and on what evidence, before the candidates."""
+    ys = result.yield_search
+    assert ys is not None
+    st = ys["stats"]
+    text = (f"Yield rule: a transistor fits when the stage with it yields ≥ "
+            f"{100 * ys['yield_min']:g} %, shown at {100 * ys['yield_confidence']:g} % "
+            "confidence (one-sided Clopper–Pearson lower bound): every board at every supply "
+            "× ambient extreme. Passing every worst-case corner shows yield 1 without "
+            f"sampling; other candidates are screened on {ys['screen_samples']:,} common "
+            "boards (an upper bound below the target at a Bonferroni-adjusted confidence "
+            f"puts one out), judged on {ys['samples_per_design']:,} fresh boards and "
+            f"checked again on {ys['samples_per_design']:,} more from an independent stream. "
+            f"This run: {st['sampled_candidates']} candidates sampled, "
+            f"{st['proven_without_sampling']} shown without sampling, {st['screened_out']} "
+            f"screened out, {st['judged']} judged, in {result.solve_seconds:.1f} s on "
+            f"{st['executor']}.")
+    print_lines(console, prose(text, width))
+    if st["cut_by_time_limit"]:
+        console.print(console_text("Time limit reached while judging "
+                                   + ", ".join(st["cut_by_time_limit"])
+                                   + "; a longer --time-limit may find more"))

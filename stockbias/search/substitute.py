@@ -36,7 +36,7 @@ from __future__ import annotations
 import itertools
 import math
 import time
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -53,9 +53,17 @@ from ..parts import Inventory, Resistor, Transistor
 from ..resistor_band import piece_band
 from ..topologies import get_network
 from .candidates import micro
-from .keep_purpose import HeldPurpose, defaults_text, effective_keep, figures_of, hold_purpose
+from .keep_purpose import (
+    HeldPurpose,
+    KeepPurpose,
+    defaults_text,
+    effective_keep,
+    figures_of,
+    hold_purpose,
+)
 
-__all__ = ["SubstituteCandidate", "SubstituteResult", "substitute"]
+__all__ = ["Prepared", "SubstituteCandidate", "SubstituteResult", "no_fix_note", "prepare",
+           "screen_changes", "substitute"]
 
 _POINTS_PER_CHUNK = 2_000_000
 _PREFILTER_CHUNK = 200_000
@@ -78,6 +86,10 @@ class SubstituteCandidate:
     added_cost: float = 0.0
     proven: bool = True
     note: str = ""
+    #: with a yield target: the evidence for the verdict's parts and for the drop-in as it
+    #: stands (:class:`.yield_substitute.YieldEvidence`)
+    yield_evidence: object | None = None
+    drop_in_yield: object | None = None
 
     @property
     def fixed(self) -> bool:
@@ -110,6 +122,10 @@ class SubstituteCandidate:
             "ic_margin": None if self.check is None else _ic_margin(self.check),
             "purpose_after": None if self.check is None or not self.fixed
             else figures_of(self.check),
+            "yield": None if self.yield_evidence is None
+            else self.yield_evidence.to_dict(),  # type: ignore[attr-defined]
+            "drop_in_yield": None if self.drop_in_yield is None
+            else self.drop_in_yield.to_dict(),  # type: ignore[attr-defined]
         }
 
 
@@ -125,9 +141,13 @@ class SubstituteResult:
     solve_seconds: float
     purpose: HeldPurpose | None = None
     purpose_rule: str = ""
+    #: with a yield target: the target, the confidence, the samples and what was screened
+    yield_search: dict[str, object] | None = None
 
     def to_dict(self) -> dict[str, object]:
         return {"stage": self.stage, "topology": self.topology,
+                "mode": "worst_case" if self.yield_search is None else "yield",
+                "yield_search": self.yield_search,
                 "current": {"part_id": self.current.part_id},
                 "values": {role: p.to_dict() for role, p in self.values.items()},
                 "solve_seconds": self.solve_seconds,
@@ -297,51 +317,63 @@ class _Screen:
         return worst, icm
 
 
+def screen_changes(job: Job, base: dict[str, ResolvedResistor], q: Transistor,
+                   inventory: Inventory, deadline: float, k: int
+                   ) -> tuple[list[tuple[int, float, tuple[str, ...], tuple[int, ...]]],
+                              dict[tuple[str, ...], dict[str, list[Resistor]]], bool]:
+    """Every change of exactly ``k`` roles to a stock line holding a build's worth that the
+    vertex screen passes: ``(scored, candidates, timed_out)``, each scored entry ``(added
+    cost in micro-units, screened IC margin, roles, line index per role)`` into
+    ``candidates[roles][role]``.  The screen is never stricter than the full check."""
+    build = job.build.quantity
+    lines = [r for r in inventory.bias_resistors if r.qty >= build]
+    screen = _Screen(job, base, q)
+    n_vertex = 2 ** len(screen.spec0.axes())
+    chunk = max(1, _POINTS_PER_CHUNK // n_vertex)
+    scored: list[tuple[int, float, tuple[str, ...], tuple[int, ...]]] = []
+    cands: dict[tuple[str, ...], dict[str, list[Resistor]]] = {}
+    timed_out = False
+    for roles in itertools.combinations(tuple(base), k):
+        cand = {role: [r for r in lines if [r.part_id] != base[role].part_ids]
+                for role in roles}
+        cands[roles] = cand
+        sizes = [len(cand[r]) for r in roles]
+        total = math.prod(sizes)
+        screen.tables = {}
+        for start in range(0, total, _PREFILTER_CHUNK):
+            flat = np.arange(start, min(start + _PREFILTER_CHUNK, total))
+            idx_all = np.stack(np.unravel_index(flat, sizes), axis=1)
+            idx_all = idx_all[screen.prefilter(roles, cand, idx_all)]
+            for sub in range(0, len(idx_all), chunk):
+                if time.monotonic() > deadline:
+                    timed_out = True
+                    break
+                idx = idx_all[sub:sub + chunk]
+                worst, icm = screen.margins(roles, cand, idx)
+                ok = worst >= -1e-9
+                for row, m in zip(idx[ok], icm[ok], strict=True):
+                    cost = sum(micro(cand[r][i].unit_cost) for r, i in
+                               zip(roles, row, strict=True))
+                    scored.append((cost, float(m), roles, tuple(int(i) for i in row)))
+            if timed_out:
+                break
+        if timed_out:
+            break
+    scored.sort(key=lambda e: (e[0], -e[1], e[2], e[3]))
+    return scored, cands, timed_out
+
+
 def _least_rework(job: Job, base: dict[str, ResolvedResistor], q: Transistor,
                   inventory: Inventory, deadline: float, max_changes: int,
                   samples: int, seed: int) -> tuple[dict[str, ResolvedResistor],
                                                    CheckResult | None, float, bool]:
     """Fewest changes, then added cost, then IC margin; (changes, check, cost, proven)."""
     build = job.build.quantity
-    lines = [r for r in inventory.bias_resistors if r.qty >= build]
-    screen = _Screen(job, base, q)
-    roles_all = tuple(base)
-    n_vertex = 2 ** len(screen.spec0.axes())
-    chunk = max(1, _POINTS_PER_CHUNK // n_vertex)
-    for k in range(1, min(max_changes, len(roles_all)) + 1):
+    for k in range(1, min(max_changes, len(base)) + 1):
         # 1. screen every subset of k roles over every stock line, all at once per chunk
-        scored: list[tuple[int, float, tuple[str, ...], tuple[int, ...]]] = []
-        cands: dict[tuple[str, ...], dict[str, list[Resistor]]] = {}
-        timed_out = False
-        for roles in itertools.combinations(roles_all, k):
-            cand = {role: [r for r in lines if [r.part_id] != base[role].part_ids]
-                    for role in roles}
-            cands[roles] = cand
-            sizes = [len(cand[r]) for r in roles]
-            total = math.prod(sizes)
-            screen.tables = {}
-            for start in range(0, total, _PREFILTER_CHUNK):
-                flat = np.arange(start, min(start + _PREFILTER_CHUNK, total))
-                idx_all = np.stack(np.unravel_index(flat, sizes), axis=1)
-                idx_all = idx_all[screen.prefilter(roles, cand, idx_all)]
-                for sub in range(0, len(idx_all), chunk):
-                    if time.monotonic() > deadline:
-                        timed_out = True
-                        break
-                    idx = idx_all[sub:sub + chunk]
-                    worst, icm = screen.margins(roles, cand, idx)
-                    ok = worst >= -1e-9
-                    for row, m in zip(idx[ok], icm[ok], strict=True):
-                        cost = sum(micro(cand[r][i].unit_cost) for r, i in
-                                   zip(roles, row, strict=True))
-                        scored.append((cost, float(m), roles, tuple(int(i) for i in row)))
-                if timed_out:
-                    break
-            if timed_out:
-                break
+        scored, cands, timed_out = screen_changes(job, base, q, inventory, deadline, k)
         # 2. verify in rank order; a screened margin bounds the verified one from above, so
         #    once the best verified design beats every remaining screen value, it is minimal
-        scored.sort(key=lambda s: (s[0], -s[1], s[2], s[3]))
         best: tuple[int, float, dict[str, ResolvedResistor], CheckResult] | None = None
         for cost, m_screen, roles, row in scored:
             if best is not None and (cost > best[0] or m_screen <= best[1]):
@@ -372,36 +404,29 @@ def _least_rework(job: Job, base: dict[str, ResolvedResistor], q: Transistor,
     return {}, None, 0.0, True
 
 
-def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inventory, *,
-               max_changes: int | None = None, time_limit_s: float | None = None,
-               samples: int = 2000, seed: int = 0,
-               tolerance_pct: float | None = None,
-               keep_purpose: dict[str, float | None] | None = None,
-               purpose: bool = True) -> SubstituteResult:
-    """Judge every stock transistor for an existing stage (DESIGN §1, §3).
+@dataclass(frozen=True)
+class Prepared:
+    """An existing stage made ready for judging: the job with the stage's purpose held, the
+    current parts resolved, the specified transistor."""
 
-    Parameters
-    ----------
-    job : Job
-        One stage with one topology.
-    values : Mapping[str, str]
-        The stage's current parts, role → part id, value, ``A+B`` or ``A|B``.
-    current : str
-        Part id of the specified transistor.
-    inventory : Inventory
-    max_changes : int, optional
-        Most resistors a rework may change (default: every role).
-    time_limit_s : float, optional
-        Wall-clock limit for each transistor's rework search (default: the job's).
-    samples, seed : Monte Carlo boards for the reported checks.
-    tolerance_pct : float, optional
-        Tolerance for current values that are not stock parts.
-    keep_purpose : dict, optional
-        Tolerances (``KeepPurpose`` field → % or None) over the job's ``[keep_purpose]``.
-    purpose : bool
-        False: the stage's purpose is not held (only the job's limits).
-    """
-    t0 = time.monotonic()
+    job: Job
+    values: dict[str, str]
+    base: dict[str, ResolvedResistor]
+    current: Transistor
+    held: HeldPurpose
+    keep: KeepPurpose | None
+    network: str
+    tolerance_pct: float
+
+
+def prepare(job: Job, values: Mapping[str, str], current: str, inventory: Inventory, *,
+            tolerance_pct: float | None = None,
+            keep_purpose: dict[str, float | None] | None = None,
+            purpose: bool = True) -> Prepared:
+    """Check the input, resolve today's parts and hold the stage's purpose (today's figures
+    from the worst-case analysis of the stage as it stands)."""
+    from .yield_evidence import plain_job
+
     if job.is_board:
         raise InputError("substitute takes a one-stage job", file=job.path, column="stage")
     stage = job.stage
@@ -419,12 +444,70 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
     base = {role: resolve_resistor(role, text, inventory, tol, ambient=ambient)
             for role, text in values.items()}
     keep = effective_keep(stage, keep_purpose, not purpose)
-    ref = analyze_stage(job, stage, base, cur, samples=0, seed=seed)
+    # today's figures are worst-case and nominal ones: no Monte Carlo (nor a yield target)
+    today = plain_job(job)
+    ref = analyze_stage(today, today.stage, base, cur, samples=0, seed=job.search.seed)
     stage, held = hold_purpose(stage, ref, keep)
     held.after = None
-    job = replace(job, stages=(stage,))
+    return Prepared(replace(job, stages=(stage,)), dict(values), base, cur, held, keep,
+                    network.name, tol)
+
+
+def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inventory, *,
+               max_changes: int | None = None, time_limit_s: float | None = None,
+               samples: int | None = None, seed: int = 0,
+               tolerance_pct: float | None = None,
+               keep_purpose: dict[str, float | None] | None = None,
+               purpose: bool = True, executor: object | None = None,
+               progress: Callable[[str, float], None] | None = None) -> SubstituteResult:
+    """Judge every stock transistor for an existing stage (DESIGN §1, §3).
+
+    A job with ``[target] yield_min`` is judged by its Monte Carlo yield instead of its worst
+    corner (:func:`.yield_substitute.yield_substitute`).
+
+    Parameters
+    ----------
+    job : Job
+        One stage with one topology.
+    values : Mapping[str, str]
+        The stage's current parts, role → part id, value, ``A+B`` or ``A|B``.
+    current : str
+        Part id of the specified transistor.
+    inventory : Inventory
+    max_changes : int, optional
+        Most resistors a rework may change (default: every role).
+    time_limit_s : float, optional
+        Wall-clock limit for the whole command (default: the job's).
+    samples : int, optional
+        Monte Carlo boards of the reported checks (default 2000), or with a yield target of
+        each judged candidate and each final check (default
+        :data:`.yield_evidence.YIELD_SAMPLES`).
+    seed : int
+        Monte Carlo seed.
+    tolerance_pct : float, optional
+        Tolerance for current values that are not stock parts.
+    keep_purpose : dict, optional
+        Tolerances (``KeepPurpose`` field → % or None) over the job's ``[keep_purpose]``.
+    purpose : bool
+        False: the stage's purpose is not held (only the job's limits).
+    executor : stockbias.executor.Executor, optional
+        Where a yield target's Monte Carlo runs (default: this process).
+    progress : callable, optional
+        ``(text, fraction done)`` while a yield target is judged.
+    """
+    t0 = time.monotonic()
+    prep = prepare(job, values, current, inventory, tolerance_pct=tolerance_pct,
+                   keep_purpose=keep_purpose, purpose=purpose)
     limit = job.search.time_limit_s if time_limit_s is None else time_limit_s
     deadline = t0 + limit       # one limit for the whole command, shared by every transistor
+    if job.stage.target.yield_min is not None:
+        from .yield_substitute import yield_substitute
+
+        return yield_substitute(prep, inventory, deadline=deadline, max_changes=max_changes,
+                                samples=samples, seed=seed, executor=executor,
+                                progress=progress, started=t0)
+    samples = 2000 if samples is None else samples
+    job, base, cur, held, stage = prep.job, prep.base, prep.current, prep.held, prep.job.stage
     out: list[SubstituteCandidate] = []
     check_s = 0.0               # the longest drop-in check so far, s
     for q in inventory.transistors:
@@ -445,14 +528,18 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
             continue
         changes, fixed, cost, proven = _least_rework(
             job, base, q, inventory, deadline, max_changes or len(base), samples, seed)
-        kept = (" with the stage's purpose kept (--keep-purpose loosens it)"
-                if held.limits else "")
-        note = "" if changes else (f"no rework from stock meets every limit{kept}" if proven
-                                   else "time limit reached before a rework was found")
+        note = "" if changes else no_fix_note(held, proven)
         out.append(SubstituteCandidate(q, False, None, changes=changes, check=fixed or res,
                                        drop_in_check=res, added_cost=cost, proven=proven,
                                        note=note))
     out.sort(key=lambda c: c.sort_key())
-    return SubstituteResult(stage=stage.name, topology=network.name, current=cur, values=base,
+    return SubstituteResult(stage=stage.name, topology=prep.network, current=cur, values=base,
                             candidates=out, solve_seconds=time.monotonic() - t0,
-                            purpose=held, purpose_rule=defaults_text(keep))
+                            purpose=held, purpose_rule=defaults_text(prep.keep))
+
+
+def no_fix_note(held: HeldPurpose, proven: bool) -> str:
+    """Why a transistor has no rework: none exists from stock, or the time ran out."""
+    kept = " with the stage's purpose kept (--keep-purpose loosens it)" if held.limits else ""
+    return (f"no rework from stock meets every limit{kept}" if proven
+            else "time limit reached before a rework was found")
