@@ -5,12 +5,11 @@ cannot meet no longer needs a check without Monte Carlo."""
 from __future__ import annotations
 
 import pytest
+from test_yield_search import HEADER, JOB, PRECISE, TRANSISTOR, WIDE, independent_yield
 
 import stockbias
 from stockbias.search.design_result import DesignResult
 from stockbias.search.yield_search import YieldDesignResult
-
-from test_yield_search import HEADER, JOB, PRECISE, TRANSISTOR, WIDE, independent_yield
 
 
 @pytest.fixture(scope="module")

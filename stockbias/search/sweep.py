@@ -3,7 +3,8 @@ executor.
 
 With a struck transistor (``without``), every stage fitted with it gets the substitute with
 the least rework by the ``substitute`` rules (drop-in first, then fewest resistor changes,
-then least added cost), or the statement that none exists; the struck part itself is never
+then least added cost; a stage with ``yield_min`` judged by its yield, as ``substitute``
+judges it), or the statement that none exists; the struck part itself is never
 offered.  Without one, every stage that names its parts is checked (worst case at every
 corner).  Stages that name no parts are listed as not built.
 """
@@ -85,15 +86,17 @@ def sweep_stage(task: tuple) -> SweepRow:
         if current != without:
             return SweepRow(name, stage_name, current, "unaffected")
         left = None if end is None else max(end - time.time(), 0.1)
-        res = substitute(one, dict(stage.values), current, inv, samples=samples, seed=seed,
-                         time_limit_s=left)
+        # a yield target is judged on the yield search's own sample count
+        res = substitute(one, dict(stage.values), current, inv, seed=seed, time_limit_s=left,
+                         samples=None if stage.target.yield_min is not None else samples)
         for c in res.candidates:
             if c.transistor.part_id == without or not c.fixed:
                 continue
             changes = "; ".join(f"{role}={'+'.join(r.part_id for r in p.parts)}"
                                 for role, p in c.changes.items())
             return SweepRow(name, stage_name, current, "drop-in" if c.drop_in else "rework",
-                            c.transistor.part_id, changes, float(c.added_cost), c.note)
+                            c.transistor.part_id, changes, float(c.added_cost),
+                            "; ".join(x for x in (_yield_note(c.yield_evidence), c.note) if x))
         notes = sorted({c.ruled_out or c.note for c in res.candidates
                         if c.transistor.part_id != without and (c.ruled_out or c.note)})
         return SweepRow(name, stage_name, current, "none",
@@ -113,3 +116,17 @@ def sweep_stage(task: tuple) -> SweepRow:
     failing = ", ".join(c.name for c in res.constraints if not c.ok)
     return SweepRow(name, stage_name, current, "passes" if res.ok else "fails",
                     note=f"fails {failing}" if failing else "")
+
+
+def _yield_note(ev: object | None) -> str:
+    """A yield verdict in a few words (empty without a yield target)."""
+    if ev is None:
+        return ""
+    from ..render.yield_text import lower_percent
+
+    final = ev.final  # type: ignore[attr-defined]
+    wc = ev.worst_case_failing  # type: ignore[attr-defined]
+    shown = {"worst case": "passes every worst-case corner", "sub-box": "sub-box",
+             "sampled": "sampled"}[ev.kind]  # type: ignore[attr-defined]
+    return (f"yield ≥ {lower_percent(ev.final_low)} % on {final.samples:,} fresh boards "  # type: ignore[attr-defined]
+            f"({shown})" + (f", worst case fails {', '.join(wc)}" if wc else ""))

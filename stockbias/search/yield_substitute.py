@@ -39,6 +39,7 @@ from typing import Any
 from ..analysis.check import CheckResult, analyze_stage
 from ..analysis.statistics import YieldResult
 from ..assign import ResolvedResistor, resolve_resistor
+from ..errors import InputError
 from ..parts import Inventory, Transistor
 from .substitute import (
     Prepared,
@@ -324,6 +325,9 @@ def yield_substitute(prep: Prepared, inventory: Inventory, *, deadline: float,
     stage = job.stage
     y_min, conf = float(stage.target.yield_min), float(stage.target.yield_confidence)  # type: ignore[arg-type]
     samples = YIELD_SAMPLES if samples is None else int(samples)
+    if samples < 1:
+        raise InputError("the job sets yield_min, so each candidate is judged on Monte Carlo "
+                         "boards (--samples at least 1)", column="--samples", text=str(samples))
     ex = executor if executor is not None else InProcess()
     boxes = _boxes(prep, inventory, levels)
     most = min(max_changes or len(prep.base), len(prep.base))

@@ -1,0 +1,262 @@
+"""`substitute` with a yield target: generated shelves where the yield rule fits a
+transistor that the worst case cannot (or only with a dearer rework); every yield verdict's
+parts confirmed by an independent Monte Carlo written here; the same verdicts on 1 and 2
+worker processes; the CLI (exit codes, 80/120 columns, JSON schema) and `sweep --without`.
+
+The shelf and job are invented for these tests: the job of tests/test_yield_search.py (12 V
+±2 %, IC 1.4 mA ±25 %, VCE ≥ 2 V, 25 °C, yield ≥ 95 %), 10 % and 1 % resistor lines, TQ-1
+(VBE 0.64–0.66 V, the stage's own transistor) and TQ-2 (VBE 0.80–0.90 V: the stage as it
+stands runs low in the window with it).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy import stats
+from test_yield_search import HEADER, JOB, PRECISE, TRANSISTOR, WIDE
+from typer.testing import CliRunner
+
+from stockbias.cli.app import app
+from stockbias.job import parse_job
+from stockbias.search.substitute import substitute
+from stockbias.stock_io import read_inventory
+
+MORE_WIDE = "".join(f"resistor,W-{n},{v},10,0.25,0,100,0.002,B{i + 4},,,,,,,,,,,\n"
+                    for i, (n, v) in enumerate((("8K2", "8.2k"), ("12K", "12k"),
+                                                ("820R", "820"), ("1K2", "1.2k"))))
+MORE_PRECISE = "".join(f"resistor,P-{n},{v},1,0.25,0,100,0.05,A{i + 4},,,,,,,,,,,\n"
+                       for i, (n, v) in enumerate((("8K2", "8.2k"), ("12K", "12k"),
+                                                   ("820R", "820"), ("1K2", "1.2k"))))
+TQ2 = "transistor,TQ-2,,,,,100,0.03,C2,NPN,190,210,40,200mA,500mW,0.80,0.90,0.2,1mA,0\n"
+VALUES = {"R1": "W-47K", "R2": "W-10K", "RE": "W-1K0", "RC": "W-3K3"}
+DEVICES = {"TQ-1": ((190.0, 210.0), (0.64, 0.66)), "TQ-2": ((190.0, 210.0), (0.80, 0.90))}
+VCC, VCC_TOL = 12.0, 0.02
+IC_MIN, IC_MAX, VCE_MIN = 1.4e-3 * 0.75, 1.4e-3 * 1.25, 2.0
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
+    d = tmp_path_factory.mktemp("ysub")
+    out = {"wide": d / "wide.csv", "both": d / "both.csv", "job": d / "job.toml",
+           "plain": d / "plain.toml"}
+    out["wide"].write_text(HEADER + WIDE + MORE_WIDE + TRANSISTOR + TQ2)
+    out["both"].write_text(HEADER + PRECISE + MORE_PRECISE + WIDE + MORE_WIDE + TRANSISTOR
+                           + TQ2)
+    out["job"].write_text(JOB.format(window=25))
+    out["plain"].write_text(JOB.format(window=25).replace("yield_min = 95\n", ""))
+    return out
+
+
+def independent_yield(values: dict[str, tuple[float, float]], part_id: str,
+                      n: int = 40_000, seed: int = 2024) -> float:
+    """A Monte Carlo written apart from the engine: scipy's truncated normal per resistor
+    (σ = tol/3, cut at ±tol), uniform hFE and VBE in the row's ranges, the divider's
+    closed-form active-region solution (constant VBE, no leakage, 25 °C) at both supply
+    extremes; a board passes when IC stays in the window and VCE ≥ 2 V at both."""
+    (h0, h1), (v0, v1) = DEVICES[part_id]
+    rng = np.random.default_rng(seed)
+    r = {role: v * (1 + tol / 3 * stats.truncnorm.rvs(-3, 3, size=n, random_state=rng))
+         for role, (v, tol) in values.items()}
+    beta = rng.uniform(h0, h1, n)
+    vbe = rng.uniform(v0, v1, n)
+    ok = np.ones(n, dtype=bool)
+    for vcc in (VCC * (1 - VCC_TOL), VCC * (1 + VCC_TOL)):
+        vbb = vcc * r["R2"] / (r["R1"] + r["R2"])
+        rbb = r["R1"] * r["R2"] / (r["R1"] + r["R2"])
+        ie = (vbb - vbe) / (r["RE"] + rbb / (beta + 1))
+        ic = beta / (beta + 1) * ie
+        vce = vcc - ic * r["RC"] - ie * r["RE"]
+        ok &= (ic >= IC_MIN) & (ic <= IC_MAX) & (vce >= VCE_MIN)
+    return float(ok.mean())
+
+
+def _confirm(c) -> None:
+    """The engine's claim and an independent Monte Carlo agree for one verdict."""
+    ev = c.yield_evidence
+    assert ev is not None and ev.qualifies
+    assert ev.final_low >= 0.95                 # the one-sided lower bound on stream 3
+    if ev.judged is not None:
+        assert ev.judged_low >= 0.95
+    values = {role: (p.value, p.tol) for role, p in c.check.parts.items()}
+    mine = independent_yield(values, c.transistor.part_id)
+    theirs = ev.final.yield_
+    sigma = math.sqrt(max(theirs * (1 - theirs), 1e-4) * (1 / 40_000 + 1 / ev.final.samples))
+    assert mine == pytest.approx(theirs, abs=5 * sigma)
+    assert mine >= 0.95
+
+
+def _run(files, shelf: str, job: str = "job", **kw):
+    return substitute(parse_job(files[job].read_text()), VALUES, "TQ-1",
+                      read_inventory(files[shelf]), purpose=False, **kw)
+
+
+def by_id(result, part_id):
+    return next(c for c in result.candidates if c.transistor.part_id == part_id)
+
+
+@pytest.fixture(scope="module")
+def wide(files):
+    return _run(files, "wide")
+
+
+def test_worst_case_fits_nothing_and_the_yield_target_fits_both(files, wide) -> None:
+    worst = _run(files, "wide", "plain", samples=0)
+    assert worst.yield_search is None
+    assert not any(c.fixed for c in worst.candidates)       # no drop-in, no rework
+    assert all(c.proven for c in worst.candidates)          # proven: none exists
+    assert wide.yield_search is not None and wide.yield_search["yield_min"] == 0.95
+    one, two = by_id(wide, "TQ-1"), by_id(wide, "TQ-2")
+    # TQ-1 as it stands: every board sampled in the window bar a few, worst case fails
+    assert one.drop_in and one.yield_evidence.kind == "sampled"
+    assert set(one.yield_evidence.worst_case_failing) & {"ic_min", "ic_max"}
+    # TQ-2 as it stands: screened out (its upper bound is below the target), then reworked
+    assert not two.drop_in and two.changes
+    assert two.drop_in_yield.kind == "screened out" and two.drop_in_yield.screen_high < 0.95
+    for c in (one, two):
+        _confirm(c)
+    # the drop-in really misses: the independent Monte Carlo puts TQ-2 as it stands below
+    today = {role: (p.value, p.tol) for role, p in two.drop_in_check.parts.items()}
+    assert independent_yield(today, "TQ-2") < 0.95
+
+
+def test_the_yield_verdict_is_cheaper_than_the_worst_case_rework(files) -> None:
+    worst = _run(files, "both", "plain", samples=0)
+    ylds = _run(files, "both")
+    w1, y1 = by_id(worst, "TQ-1"), by_id(ylds, "TQ-1")
+    # worst case: the 10 % lines fail at the corners, so precise lines must come in
+    assert not w1.drop_in and w1.changes and w1.added_cost > 0
+    # the yield target keeps the stage as it stands: fewer changes, no added cost
+    assert y1.drop_in and y1.added_cost == 0
+    _confirm(y1)
+    w2, y2 = by_id(worst, "TQ-2"), by_id(ylds, "TQ-2")
+    assert y2.changes and w2.changes
+    assert (len(y2.changes), y2.added_cost) <= (len(w2.changes), w2.added_cost)
+    _confirm(y2)
+
+
+def test_evidence_counts_and_streams(wide) -> None:
+    s = wide.yield_search["stats"]
+    assert s["sampled_candidates"] >= 2 and s["judged"] >= 1
+    assert s["screened_out"] >= 1                    # TQ-2 as it stands
+    d = wide.to_dict()
+    assert d["mode"] == "yield"
+    c = next(x for x in d["candidates"] if x["part_id"] == "TQ-2")
+    assert c["yield"]["final_check"]["stream"] == 3
+    assert c["yield"]["final_check"]["samples"] == 20_000
+    assert c["drop_in_yield"]["screen"]["samples"] == 2_000
+    # Bonferroni: each of the m candidates screened at 1 − 0.05/m
+    m = c["drop_in_yield"]["screen"]["candidates"]
+    assert c["drop_in_yield"]["screen"]["confidence_each"] == pytest.approx(1 - 0.05 / m)
+
+
+def test_two_worker_processes_give_the_same_verdicts(files, wide) -> None:
+    from stockbias.executor import LocalProcesses
+
+    there = _run(files, "wide", executor=LocalProcesses(2))
+    assert [c.to_dict() for c in there.candidates] == [c.to_dict() for c in wide.candidates]
+
+
+def test_a_yield_job_needs_monte_carlo_boards(files) -> None:
+    from stockbias.errors import InputError
+
+    with pytest.raises(InputError, match="--samples"):
+        _run(files, "wide", samples=0)
+
+
+@pytest.mark.parametrize("columns", ["80", "120"])
+def test_cli_says_what_each_verdict_claims(files, columns) -> None:
+    runner = CliRunner(env={"COLUMNS": columns})
+    args = ["substitute", str(files["job"]), "-i", str(files["wide"]), "-v",
+            ",".join(f"{r}={p}" for r, p in VALUES.items()), "-t", "TQ-1",
+            "--no-keep-purpose"]
+    res = runner.invoke(app, args)
+    assert res.exit_code == 0, res.output
+    out = res.stdout
+    assert "Yield rule" in out and "95 % confidence" in out and "Bonferroni" in out
+    assert "final check" in out and "fresh boards" in out and "worst case fails" in out
+    assert all(len(line) <= int(columns) for line in out.splitlines())
+    js = runner.invoke(app, [*args, "--json"])
+    assert js.exit_code == 0
+    payload = json.loads(js.stdout)
+    import jsonschema
+
+    schema = Path(__file__).resolve().parent.parent / "stockbias" / "schemas"
+    jsonschema.validate(payload, json.loads((schema / "substitute.schema.json").read_text()))
+    assert payload["mode"] == "yield"
+
+
+def test_cli_exits_1_when_no_transistor_reaches_the_target(files, tmp_path) -> None:
+    job = tmp_path / "narrow.toml"
+    job.write_text(JOB.format(window=3))
+    res = CliRunner().invoke(app, ["substitute", str(job), "-i", str(files["wide"]), "-v",
+                                   ",".join(f"{r}={p}" for r, p in VALUES.items()), "-t",
+                                   "TQ-1", "--no-keep-purpose", "--max-changes", "1"])
+    assert res.exit_code == 1, res.output
+    assert "no fix" in res.stdout and "shown to yield ≥ 95 %" in res.stdout
+
+
+BOARD = """\
+[supply]
+volts = 12
+tolerance_pct = 2
+[environment]
+ambient_min_c = 25
+ambient_max_c = 25
+[build]
+quantity = 10
+[search]
+objectives = ["cost", "part_count"]
+time_limit_s = 60
+[[stage]]
+name = "amp"
+topology = "divider"
+transistor = "TQ-1"
+[stage.target]
+ic = "1.4 mA"
+ic_window_pct = 25
+vce_min = "2 V"
+yield_min = 95
+[stage.values]
+R1 = "W-47K"
+R2 = "W-10K"
+RE = "W-1K0"
+RC = "W-3K3"
+[stage.keep_purpose]
+gain_pct = false
+rin_pct = false
+swing_pct = false
+supply_current_pct = false
+"""
+
+
+def test_sweep_without_the_part_takes_the_yield_verdict(files, tmp_path) -> None:
+    from stockbias.job import load_job
+    from stockbias.search.board import stage_job
+
+    for name, text in (("yield", BOARD), ("plain", BOARD.replace("yield_min = 95\n", ""))):
+        (tmp_path / name).mkdir()
+        (tmp_path / name / "amp.toml").write_text(text)
+    res = CliRunner().invoke(app, ["sweep", str(tmp_path / "yield"), "-i", str(files["wide"]),
+                                   "--without", "TQ-1", "--json"])
+    assert res.exit_code == 0, res.output
+    row, = json.loads(res.stdout)["stages"]
+    # reference: the substitute library's own verdict for the stage (purpose held, as sweep)
+    job = load_job(tmp_path / "yield" / "amp.toml")
+    st = job.stages[0]
+    ref = substitute(stage_job(job, st), dict(st.values), "TQ-1", read_inventory(files["wide"]))
+    two = by_id(ref, "TQ-2")
+    assert ref.yield_search is not None
+    assert two.changes and not two.drop_in      # the stage's purpose is not held here
+    assert row["verdict"] == "rework" and row["transistor"] == "TQ-2"
+    assert row["changes"] == "; ".join(f"{r}={'+'.join(p.part_ids)}"
+                                       for r, p in two.changes.items())
+    assert row["added_cost"] == pytest.approx(two.added_cost)
+    assert "fresh boards" in row["note"] and "worst case fails" in row["note"]
+    plain = CliRunner().invoke(app, ["sweep", str(tmp_path / "plain"), "-i",
+                                     str(files["wide"]), "--without", "TQ-1", "--json"])
+    assert json.loads(plain.stdout)["stages"][0]["verdict"] == "none"
