@@ -98,3 +98,38 @@ def test_check_on_the_cluster_equals_check_in_this_process(cluster: str) -> None
     there = CliRunner().invoke(app, [*args, "--cluster", cluster])
     assert here.exit_code == there.exit_code == 0, here.output + there.output
     assert json.loads(here.stdout)["monte_carlo"] == json.loads(there.stdout)["monte_carlo"]
+
+
+def test_a_yield_design_and_a_yield_substitute_on_the_cluster_equal_this_process(
+        cluster: str, tmp_path: Path) -> None:
+    # candidate screening (groups of candidates on common boards), judging and the final
+    # check all run on the cluster's workers; every count must equal the in-process run
+    from test_yield_search import HEADER, JOB, PRECISE, TRANSISTOR, WIDE
+    from test_yield_substitute import MORE_WIDE, TQ2, VALUES
+
+    from stockbias.job import parse_job
+    from stockbias.search.substitute import substitute
+    from stockbias.search.yield_search import yield_design
+    from stockbias.stock_io import read_inventory
+
+    shelf = tmp_path / "shelf.csv"
+    shelf.write_text(HEADER + PRECISE + WIDE + MORE_WIDE + TRANSISTOR + TQ2)
+    job = parse_job(JOB.format(window=25))
+    inv = read_inventory(shelf)
+    ex = DaskCluster(cluster)
+    try:
+        here = yield_design(job, inv, executor=InProcess())
+        there = yield_design(job, inv, executor=ex)
+        sub_here = substitute(job, VALUES, "TQ-1", inv, purpose=False)
+        sub_there = substitute(job, VALUES, "TQ-1", inv, purpose=False, executor=ex)
+    finally:
+        ex.close()
+    assert here.designs and [d.to_dict() for d in here.designs] == \
+        [d.to_dict() for d in there.designs]
+    drop = ("executor",)
+    assert {k: v for k, v in here.stats.items() if k not in drop} == \
+        {k: v for k, v in there.stats.items() if k not in drop}
+    assert any(c.yield_evidence is not None and c.yield_evidence.kind == "sampled"
+               for c in sub_here.candidates)
+    assert [c.to_dict() for c in sub_here.candidates] == \
+        [c.to_dict() for c in sub_there.candidates]

@@ -119,6 +119,8 @@ def test_worst_case_fits_nothing_and_the_yield_target_fits_both(files, wide) -> 
     assert two.drop_in_yield.kind == "screened out" and two.drop_in_yield.screen_high < 0.95
     for c in (one, two):
         _confirm(c)
+        assert c.worst_case == {"verdict": "none", "changes": [], "added_cost": 0.0,
+                                "proven": True}
     # the drop-in really misses: the independent Monte Carlo puts TQ-2 as it stands below
     today = {role: (p.value, p.tol) for role, p in two.drop_in_check.parts.items()}
     assert independent_yield(today, "TQ-2") < 0.95
@@ -132,6 +134,11 @@ def test_the_yield_verdict_is_cheaper_than_the_worst_case_rework(files) -> None:
     assert not w1.drop_in and w1.changes and w1.added_cost > 0
     # the yield target keeps the stage as it stands: fewer changes, no added cost
     assert y1.drop_in and y1.added_cost == 0
+    # ... and shows the worst-case rules' verdict beside it, equal to that search's own
+    assert y1.worst_case["verdict"] == "rework" and y1.worst_case["proven"]
+    assert y1.worst_case["added_cost"] == pytest.approx(w1.added_cost)
+    assert [(x["role"], x["part_id"]) for x in y1.worst_case["changes"]] == \
+        [(r, "+".join(p.part_ids)) for r, p in w1.changes.items()]
     _confirm(y1)
     w2, y2 = by_id(worst, "TQ-2"), by_id(ylds, "TQ-2")
     assert y2.changes and w2.changes
@@ -159,6 +166,42 @@ def test_two_worker_processes_give_the_same_verdicts(files, wide) -> None:
 
     there = _run(files, "wide", executor=LocalProcesses(2))
     assert [c.to_dict() for c in there.candidates] == [c.to_dict() for c in wide.candidates]
+
+
+def test_progress_names_the_candidates_and_boards_done(files) -> None:
+    seen: list[tuple[str, float]] = []
+    _run(files, "wide", progress=lambda text, frac: seen.append((text, frac)))
+    texts = [t for t, _f in seen]
+    assert any("screened 1 of" in t and "× 2,000 boards" in t for t in texts)
+    assert any("judging candidate 1 of" in t and "20,000 boards" in t for t in texts)
+    assert any(t.startswith("TQ-2 (2 of 2): ") for t in texts)
+    fracs = [f for _t, f in seen]
+    assert fracs == sorted(fracs) and fracs[0] >= 0 and fracs[-1] < 1
+
+
+@pytest.mark.parametrize("chunk", [1_000, 100_000])
+def test_screen_and_judge_counts_do_not_depend_on_the_chunk_size(files, chunk) -> None:
+    # the candidates' counts (vectorised screen on stream 1, single judge on stream 2) equal
+    # a streamed Monte Carlo of the same parts at either chunk size, exactly
+    from stockbias.analysis.montecarlo import monte_carlo
+    from stockbias.executor import InProcess
+    from stockbias.search.substitute import prepare
+    from stockbias.search.yield_evidence import Trial, judge, sample_tasks, screen_counts
+
+    inv = read_inventory(files["wide"])
+    prep = prepare(parse_job(files["job"].read_text()), VALUES, "TQ-1", inv, purpose=False)
+    trials = [Trial(prep.base, q) for q in inv.transistors]
+    screened = screen_counts(InProcess(), prep.job, trials)
+    for t, (k, n) in zip(trials, screened, strict=True):
+        spec, limits, tempcos, *_ = sample_tasks(prep.job, [t], n, 1)[0]
+        mc = monte_carlo(spec, limits, n, prep.job.search.seed, tempco_ppm=tempcos, stream=1,
+                         chunk=chunk)
+        assert (mc.yield_.passed, mc.yield_.samples) == (k, n)
+    y, _low = judge(InProcess(), prep.job, trials[1], 5_000, 0.95)
+    spec, limits, tempcos, *_ = sample_tasks(prep.job, [trials[1]], 5_000, 2)[0]
+    mc = monte_carlo(spec, limits, 5_000, prep.job.search.seed, tempco_ppm=tempcos, stream=2,
+                     chunk=chunk)
+    assert mc.yield_.passed == y.passed and 0 < y.passed < 5_000     # the case bites
 
 
 def test_a_yield_job_needs_monte_carlo_boards(files) -> None:

@@ -103,7 +103,24 @@ def _yield_rest(c, y_min: float, width: int) -> list[str]:
         out += prose(c.note, width, _PAD)
     elif c.changes and not c.proven:
         out += prose("time limit: fewer changes not ruled out", width, _PAD)
+    if c.worst_case is not None:
+        out += prose("by the worst-case rules: " + worst_case_text(c.worst_case), width, _PAD)
     return out
+
+
+def worst_case_text(w: dict) -> str:
+    """The worst-case rules' verdict for one transistor, in words."""
+    if w["verdict"] == "drop-in":
+        return "drop-in"
+    if w["verdict"] == "not searched":
+        return "not searched (time limit)"
+    if w["verdict"] == "none":
+        return "no fix from stock" + ("" if w["proven"] else " found before the time limit")
+    n = len(w["changes"])
+    return (f"{n} change{'s' if n > 1 else ''} ("
+            + ", ".join(f"{x['role']} → {x['part_id']}" for x in w["changes"])
+            + f"), added cost {w['added_cost']:g}/board"
+            + ("" if w["proven"] else "; time limit: fewer changes not ruled out"))
 
 
 def candidate_lines(rank: int, c, width: int, y_min: float | None = None) -> list[str]:

@@ -90,6 +90,9 @@ class SubstituteCandidate:
     #: stands (:class:`.yield_substitute.YieldEvidence`)
     yield_evidence: object | None = None
     drop_in_yield: object | None = None
+    #: with a yield target: the worst-case rules' verdict for this transistor (drop-in,
+    #: rework with its changes and added cost, none, not searched)
+    worst_case: dict[str, object] | None = None
 
     @property
     def fixed(self) -> bool:
@@ -126,6 +129,7 @@ class SubstituteCandidate:
             else self.yield_evidence.to_dict(),  # type: ignore[attr-defined]
             "drop_in_yield": None if self.drop_in_yield is None
             else self.drop_in_yield.to_dict(),  # type: ignore[attr-defined]
+            "worst_case_verdict": self.worst_case,
         }
 
 

@@ -20,7 +20,7 @@ boards that picked it:
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, replace
 
 from ..analysis.check import CheckResult, analyze_stage, build_spec
@@ -99,10 +99,11 @@ def group_task(task: tuple) -> list[int]:
 
 
 def screen_counts(ex: object, job: Job, trials: Sequence[Trial], n: int = SCREEN_SAMPLES,
-                  stream: int = STREAM_SCREEN) -> list[tuple[int, int]]:
+                  stream: int = STREAM_SCREEN, done: Callable[[int], None] | None = None
+                  ) -> list[tuple[int, int]]:
     """(passed, samples) of every trial on the screening boards: trials that share network,
     transistor and piece structure are vectorised together (trials × boards × corners), one
-    executor task per group."""
+    executor task per group.  ``done(k)``: k trials screened so far (after each group)."""
     from ..analysis.mc_candidates import group_key
 
     tasks = sample_tasks(job, trials, n, stream)
@@ -114,9 +115,13 @@ def screen_counts(ex: object, job: Job, trials: Sequence[Trial], n: int = SCREEN
     work = [([tasks[i][0] for i in g], [tasks[i][1] for i in g], [tasks[i][2] for i in g],
              n, job.search.seed, stream) for g in members]
     out: list[tuple[int, int]] = [(0, 0)] * len(trials)
-    for g, counts in zip(members, ex.map(group_task, work), strict=True):  # type: ignore[attr-defined]
+    finished = 0
+    for g, counts in zip(members, ex.imap(group_task, work), strict=True):  # type: ignore[attr-defined]
         for i, k in zip(g, counts, strict=True):
             out[i] = (k, n)
+        finished += len(g)
+        if done is not None:
+            done(finished)
     return out
 
 

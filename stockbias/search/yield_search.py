@@ -295,8 +295,14 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
         if progress is not None:
             progress(f"screening {m} candidates × {SCREEN_SAMPLES:,} boards",
                      len(levels) / (len(levels) + 2))
+
+        def screened(k: int) -> None:
+            if progress is not None:
+                progress(f"screened {k} of {m} candidates × {SCREEN_SAMPLES:,} boards",
+                         len(levels) / (len(levels) + 2))
+
         t_screen = time.monotonic()
-        counts = screen_counts(ex, job, [c.trial for c in sampled])
+        counts = screen_counts(ex, job, [c.trial for c in sampled], done=screened)
         per_board = max(per_board, (time.monotonic() - t_screen) / (m * SCREEN_SAMPLES))
         highs, _each = upper_screen(counts, conf)
         for c, (k_pass, n), high in zip(sampled, counts, highs, strict=True):

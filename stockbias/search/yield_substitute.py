@@ -46,6 +46,7 @@ from .substitute import (
     SubstituteCandidate,
     SubstituteResult,
     _as_resolved,
+    _least_rework,
     _ruled_out,
     _stock_ok,
     no_fix_note,
@@ -234,7 +235,8 @@ def _judge_batch(prep: Prepared, boxes: _Boxes, q: Transistor, entries: list[_En
     each = None
     if sampled:
         note(f"screening {len(sampled)} candidates × {SCREEN_SAMPLES:,} boards")
-        got = screen_counts(ex, job, [trials[i] for i in sampled])
+        got = screen_counts(ex, job, [trials[i] for i in sampled], done=lambda k: note(
+            f"screened {k} of {len(sampled)} candidates × {SCREEN_SAMPLES:,} boards"))
         up, each = upper_screen(got, conf)
         counts, highs = dict(zip(sampled, got, strict=True)), dict(zip(sampled, up, strict=True))
         stats["sampled_candidates"] += len(sampled)  # type: ignore[operator]
@@ -375,18 +377,20 @@ def yield_substitute(prep: Prepared, inventory: Inventory, *, deadline: float,
                 break
         if cut:
             stats["cut_by_time_limit"].append(q.part_id)  # type: ignore[attr-defined]
+        note("worst-case verdict beside it")
+        worst = _worst_case_verdict(prep, inventory, q, wc, deadline, most)
         if verdict is None:
             out.append(SubstituteCandidate(q, False, None, check=wc, drop_in_check=wc,
                                            proven=not cut, note=_no_fix(prep, most, cut),
-                                           drop_in_yield=drop_ev))
+                                           drop_in_yield=drop_ev, worst_case=worst))
         elif not verdict.entry.changes:
             out.append(SubstituteCandidate(q, True, None, check=verdict.check, drop_in_check=wc,
-                                           yield_evidence=verdict.evidence))
+                                           yield_evidence=verdict.evidence, worst_case=worst))
         else:
             out.append(SubstituteCandidate(
                 q, False, None, changes=verdict.entry.changes, check=verdict.check,
                 drop_in_check=wc, added_cost=verdict.entry.cost / 1e6, proven=not cut,
-                yield_evidence=verdict.evidence, drop_in_yield=drop_ev))
+                yield_evidence=verdict.evidence, drop_in_yield=drop_ev, worst_case=worst))
     out.sort(key=lambda c: c.sort_key())
     info: dict[str, object] = {
         "yield_min": y_min, "yield_confidence": conf, "samples_per_design": samples,
@@ -403,6 +407,22 @@ def yield_substitute(prep: Prepared, inventory: Inventory, *, deadline: float,
                             values=prep.base, candidates=out,
                             solve_seconds=time.monotonic() - t0, purpose=prep.held,
                             purpose_rule=_rule(prep), yield_search=info)
+
+
+def _worst_case_verdict(prep: Prepared, inventory: Inventory, q: Transistor, wc: CheckResult,
+                        deadline: float, most: int) -> dict[str, object]:
+    """What the worst-case ``substitute`` rules say for this transistor (drop-in, the least
+    rework, or none), for comparison with the yield verdict."""
+    if wc.ok:
+        return {"verdict": "drop-in", "changes": [], "added_cost": 0.0, "proven": True}
+    if time.monotonic() > deadline:
+        return {"verdict": "not searched", "changes": [], "added_cost": 0.0, "proven": False}
+    changes, _res, cost, proven = _least_rework(plain_job(prep.job), prep.base, q, inventory,
+                                                deadline, most, 0, 0)
+    return {"verdict": "rework" if changes else "none",
+            "changes": [{"role": r, "part_id": "+".join(p.part_ids), "value_ohm": p.value}
+                        for r, p in changes.items()],
+            "added_cost": cost, "proven": proven}
 
 
 def _no_fix(prep: Prepared, most: int, cut: bool) -> str:
