@@ -56,9 +56,12 @@ def _evidence_lines(label: str, ev, y_min: float, width: int) -> list[str]:
 def verdict_lines(result: SubstituteResult) -> list[str]:
     """One plain sentence per stock transistor, best first (for reports)."""
     out = []
+    ys = result.yield_search
     for rank, c in enumerate(result.candidates, start=1):
         q = c.transistor.part_id
-        if c.ruled_out:
+        if ys is not None and c.ruled_out is None:
+            out.append(_yield_verdict_line(rank, c, float(ys["yield_min"])))
+        elif c.ruled_out:
             out.append(f"{rank}. {q}: ruled out, {c.ruled_out}.")
         elif c.drop_in:
             out.append(f"{rank}. {q}: drop-in, passes every limit as it stands.")
@@ -121,6 +124,25 @@ def worst_case_text(w: dict) -> str:
             + ", ".join(f"{x['role']} → {x['part_id']}" for x in w["changes"])
             + f"), added cost {w['added_cost']:g}/board"
             + ("" if w["proven"] else "; time limit: fewer changes not ruled out"))
+
+
+def _yield_verdict_line(rank: int, c, y_min: float) -> str:
+    """One sentence for a transistor judged by the yield rule (reports)."""
+    q = c.transistor.part_id
+    if c.drop_in:
+        head = "drop-in by the yield rule"
+    elif c.changes:
+        change = ", ".join(f"{role} to {format_quantity(p.value, 'ohm')} "
+                           f"({'+'.join(p.part_ids)})" for role, p in c.changes.items())
+        head = (f"{len(c.changes)} change(s) by the yield rule: {change}; added cost "
+                f"{c.added_cost:g} per board")
+    else:
+        head = f"no fix; {c.note}"
+    ev = c.yield_evidence if c.yield_evidence is not None else c.drop_in_yield
+    parts = [head, *(evidence_text(ev, y_min) if ev is not None else [])]
+    if c.worst_case is not None:
+        parts.append("by the worst-case rules: " + worst_case_text(c.worst_case))
+    return f"{rank}. {q}: " + "; ".join(parts) + "."
 
 
 def candidate_lines(rank: int, c, width: int, y_min: float | None = None) -> list[str]:

@@ -7,7 +7,7 @@ added cost); the first change count with a qualifying set of parts is the verdic
 
 Candidates of one change count
     The drop-in itself (no change), or every change of that many roles to a stock line that
-    the vertex screen of :func:`.substitute.screen_changes` passes on the job's tolerance box
+    the vertex screen of :func:`.rework_screen.screen_changes` passes on the job's tolerance box
     or on one of the yield search's sub-boxes (:data:`.yield_search.LEVELS`: resistor
     tolerances × k, hFE and VBE ranges narrowed to a fraction f); the
     :data:`PER_CHANGE_COUNT` cheapest are judged.  Change sets outside these families are not
@@ -41,6 +41,7 @@ from ..analysis.statistics import YieldResult
 from ..assign import ResolvedResistor, resolve_resistor
 from ..errors import InputError
 from ..parts import Inventory, Transistor
+from .rework_screen import screen_changes
 from .substitute import (
     Prepared,
     SubstituteCandidate,
@@ -50,7 +51,6 @@ from .substitute import (
     _ruled_out,
     _stock_ok,
     no_fix_note,
-    screen_changes,
 )
 from .yield_evidence import (
     SCREEN_SAMPLES,
