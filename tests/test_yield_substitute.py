@@ -303,3 +303,14 @@ def test_sweep_without_the_part_takes_the_yield_verdict(files, tmp_path) -> None
     plain = CliRunner().invoke(app, ["sweep", str(tmp_path / "plain"), "-i",
                                      str(files["wide"]), "--without", "TQ-1", "--json"])
     assert json.loads(plain.stdout)["stages"][0]["verdict"] == "none"
+
+
+def test_report_sentences_word_the_yield_verdicts(wide) -> None:
+    from stockbias.render.substitute_table import verdict_lines
+
+    lines = verdict_lines(wide)
+    one = next(x for x in lines if "TQ-1:" in x)
+    two = next(x for x in lines if "TQ-2:" in x)
+    assert "drop-in by the yield rule" in one and "final check" in one
+    assert "by the worst-case rules: no fix from stock" in one
+    assert "change(s) by the yield rule" in two and "worst case fails" in two
