@@ -314,3 +314,18 @@ def test_report_sentences_word_the_yield_verdicts(wide) -> None:
     assert "drop-in by the yield rule" in one and "final check" in one
     assert "by the worst-case rules: no fix from stock" in one
     assert "change(s) by the yield rule" in two and "worst case fails" in two
+
+
+def test_no_check_starts_after_the_time_limit(files) -> None:
+    import time
+
+    from stockbias.search.substitute import prepare
+    from stockbias.search.yield_substitute import yield_substitute
+
+    inv = read_inventory(files["wide"])
+    prep = prepare(parse_job(files["job"].read_text()), VALUES, "TQ-1", inv, purpose=False)
+    res = yield_substitute(prep, inv, deadline=time.monotonic() - 1.0)
+    assert all(not c.fixed and not c.proven and c.note.startswith("not judged")
+               for c in res.candidates)
+    assert res.yield_search["stats"]["cut_by_time_limit"] == ["TQ-1", "TQ-2"]
+    assert res.yield_search["stats"]["judged"] == 0

@@ -204,6 +204,25 @@ def _drop_in_entry(prep: Prepared, boxes: _Boxes, q: Transistor, wc_ok: bool) ->
     return _Entry({}, {}, 0, 0.0, level)
 
 
+class _Clock:
+    """The command's deadline and the longest run of each kind of step so far: no step
+    starts that the time left cannot finish."""
+
+    def __init__(self, deadline: float) -> None:
+        self.deadline = deadline
+        self.longest: dict[str, float] = {}
+
+    def fits(self, step: str) -> bool:
+        return time.monotonic() + self.longest.get(step, 0.0) <= self.deadline
+
+    def timed(self, step: str, fn: Callable[..., Any], *args: Any, **kw: Any) -> Any:
+        """``fn(*args, **kw)``, its duration kept as this step's if it is the longest."""
+        t = time.monotonic()
+        out = fn(*args, **kw)
+        self.longest[step] = max(self.longest.get(step, 0.0), time.monotonic() - t)
+        return out
+
+
 @dataclass
 class _Verdict:
     entry: _Entry
@@ -212,7 +231,7 @@ class _Verdict:
 
 
 def _judge_batch(prep: Prepared, boxes: _Boxes, q: Transistor, entries: list[_Entry],
-                 samples: int, ex: object, deadline: float, stats: dict[str, object],
+                 samples: int, ex: object, clock: _Clock, stats: dict[str, object],
                  note: Callable[[str], None], tested: dict[int, bool] | None = None
                  ) -> tuple[_Verdict | None, list[YieldEvidence], bool]:
     """The first entry in rank order that qualifies, the evidence of every entry judged
@@ -242,7 +261,7 @@ def _judge_batch(prep: Prepared, boxes: _Boxes, q: Transistor, entries: list[_En
         stats["sampled_candidates"] += len(sampled)  # type: ignore[operator]
     seen: list[YieldEvidence] = []
     for i, (e, trial) in enumerate(zip(entries, trials, strict=True)):
-        if time.monotonic() > deadline:
+        if not clock.fits("check"):
             return None, seen, True
         box = boxes.levels[e.level] if e.level < len(boxes.levels) else (1.0, 1.0)
         common: dict[str, Any] = {} if i not in counts else {
@@ -256,7 +275,8 @@ def _judge_batch(prep: Prepared, boxes: _Boxes, q: Transistor, entries: list[_En
             parts = {**boxes.bases[e.level], **e.shrunk} if e.level else trial.parts
             ok = known.get(id(e))
             if ok is None:
-                ok = analyze_stage(plain, plain.stage, parts, q_l, samples=0).ok
+                ok = clock.timed("check", analyze_stage, plain, plain.stage, parts, q_l,
+                                 samples=0).ok
             if ok:
                 kind = "worst case" if e.level == 0 else "sub-box"
                 stats["proven_without_sampling"] += 1  # type: ignore[operator]
@@ -266,16 +286,20 @@ def _judge_batch(prep: Prepared, boxes: _Boxes, q: Transistor, entries: list[_En
                 stats["screened_out"] += 1  # type: ignore[operator]
                 seen.append(YieldEvidence("screened out", box, e.mass, **common))
                 continue
+            if not clock.fits("judge"):
+                return None, seen, True
             note(f"judging candidate {i + 1} of {len(entries)} on {samples:,} boards")
             stats["judged"] += 1  # type: ignore[operator]
-            judged, judged_low = judge(ex, job, trial, samples, conf)
+            judged, judged_low = clock.timed("judge", judge, ex, job, trial, samples, conf)
             if judged_low < y_min:
                 seen.append(YieldEvidence("below target", box, e.mass, judged=judged,
                                           judged_low=judged_low, **common))
                 continue
             kind = "sampled"
+        if not clock.fits("final"):
+            return None, seen, True
         note(f"final check on {samples:,} fresh boards")
-        check, low = final_check(job, trial, samples, conf)
+        check, low = clock.timed("final", final_check, job, trial, samples, conf)
         mc = check.monte_carlo
         assert mc is not None
         failing = tuple(c.name for c in check.constraints if not c.ok and c.name != "yield_min")
@@ -332,6 +356,7 @@ def yield_substitute(prep: Prepared, inventory: Inventory, *, deadline: float,
                          "boards (--samples at least 1)", column="--samples", text=str(samples))
     ex = executor if executor is not None else InProcess()
     boxes = _boxes(prep, inventory, levels)
+    clock = _Clock(deadline)
     most = min(max_changes or len(prep.base), len(prep.base))
     stats: dict[str, object] = {
         "sampled_candidates": 0, "proven_without_sampling": 0, "screened_out": 0,
@@ -349,13 +374,14 @@ def yield_substitute(prep: Prepared, inventory: Inventory, *, deadline: float,
         if reason is not None:
             out.append(SubstituteCandidate(q, False, reason))
             continue
-        if time.monotonic() > deadline:
+        if not clock.fits("check"):
+            # no check starts that the time left cannot finish
             stats["cut_by_time_limit"].append(q.part_id)  # type: ignore[attr-defined]
-            out.append(SubstituteCandidate(q, False, None, proven=False,
-                                           note="time limit reached before it was judged"))
+            out.append(SubstituteCandidate(q, False, None, proven=False, note=(
+                "not judged: the time limit ran out before its drop-in check")))
             continue
         note("worst-case check as it stands")
-        wc = analyze_stage(plain, plain.stage, prep.base, q, samples=0)
+        wc = clock.timed("check", analyze_stage, plain, plain.stage, prep.base, q, samples=0)
         verdict, drop_ev, cut = None, None, False
         for k in range(most + 1):
             if k == 0:
@@ -368,7 +394,7 @@ def yield_substitute(prep: Prepared, inventory: Inventory, *, deadline: float,
                 tested = None
             if entries:
                 verdict, seen, cut_j = _judge_batch(prep, boxes, q, entries, samples, ex,
-                                                    deadline, stats, note, tested)
+                                                    clock, stats, note, tested)
                 cut = cut or cut_j
                 if k == 0:
                     drop_ev = verdict.evidence if verdict is not None else (
