@@ -12,6 +12,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
+from functools import partial
 
 import numpy as np
 
@@ -60,10 +61,8 @@ class CheckResult:
     parts: dict[str, ResolvedResistor]
     nominal: dict[str, object]
     worst: WorstCase
-    rss: dict[str, object]   # "ic", "vce": {nominal, min, max} or None, and "reason"
     monte_carlo: MonteCarloResult | None
     constraints: list[ConstraintResult]
-    stability: dict[str, float | str | None]
     thermal: dict[str, object]
     assumptions: list[str]
     warnings: list[str]
@@ -71,6 +70,30 @@ class CheckResult:
     axes: tuple[str, ...] = field(default_factory=tuple)
     ic_target: float = math.nan  # A: the target current the IC margin is a fraction of
     purpose: Purpose | None = None  # gain, input resistance, swing, supply current
+    #: () → (rss, stability): the spreads, worked out when first read (:attr:`rss`)
+    spreads: Callable[[], tuple[dict[str, object], dict[str, float | str | None]]] | None = \
+        field(default=None, repr=False, compare=False)
+    _spread_cache: list = field(default_factory=list, init=False, repr=False, compare=False)
+
+    @property
+    def rss(self) -> dict[str, object]:
+        """RSS spreads of IC and VCE: {"ic", "vce": {nominal, min, max} or None, "reason"}.
+
+        Worked out when first read: the search re-verifies designs whose spreads no output
+        of ``design`` shows."""
+        return self._spread_figures()[0]
+
+    @property
+    def stability(self) -> dict[str, float | str | None]:
+        """S_ICBO, S_VBE, S_β at the nominal point and "reason" (worked out when first read,
+        as :attr:`rss`)."""
+        return self._spread_figures()[1]
+
+    def _spread_figures(self) -> tuple[dict[str, object], dict[str, float | str | None]]:
+        if not self._spread_cache:
+            assert self.spreads is not None
+            self._spread_cache.append(self.spreads())
+        return self._spread_cache[0]
 
     @property
     def ok(self) -> bool:
@@ -289,13 +312,6 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
     warnings = [w for p in parts.values() for w in p.warnings]
     nominal = _nominal(spec)
     region = str(nominal["region"])
-    # RSS spreads are first-order sensitivities of the active-region point
-    reason = not_active_reason(region)
-    rss_out: dict[str, object] = {**dict.fromkeys(RSS_KEYS), "reason": reason}
-    if reason is None:
-        for q in RSS_KEYS:
-            nom, lo, hi = rss(spec, q)
-            rss_out[q] = {"nominal": nom, "min": lo, "max": hi}
     ic_nom = float(nominal["ic"])  # type: ignore[arg-type]
     if ic_nom > 0 and (ic_nom > 10 * transistor.hfe_test_ic or
                        ic_nom < transistor.hfe_test_ic / 10):
@@ -306,11 +322,23 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
     assumptions = stage_assumptions(job, transistor, parts, thermal, purpose)
     return CheckResult(
         stage=stage.name, topology=network.name, model=job.search.model,
-        transistor=transistor, parts=dict(parts), nominal=nominal, worst=wc, rss=rss_out,
-        monte_carlo=mc, constraints=results, stability=_stability(spec, region),
-        thermal=thermal, assumptions=assumptions, warnings=warnings,
-        cautions=cautions(job, results, thermal), axes=wc.axes, ic_target=stage.target.ic,
-        purpose=purpose)
+        transistor=transistor, parts=dict(parts), nominal=nominal, worst=wc,
+        monte_carlo=mc, constraints=results, thermal=thermal, assumptions=assumptions,
+        warnings=warnings, cautions=cautions(job, results, thermal), axes=wc.axes,
+        ic_target=stage.target.ic, purpose=purpose, spreads=partial(_spreads, spec, region))
+
+
+def _spreads(spec: StageSpec, region: str
+             ) -> tuple[dict[str, object], dict[str, float | str | None]]:
+    """(RSS spreads of IC and VCE, stability factors) at the nominal point; both are
+    first-order sensitivities of the active-region point, None with the reason elsewhere."""
+    reason = not_active_reason(region)
+    rss_out: dict[str, object] = {**dict.fromkeys(RSS_KEYS), "reason": reason}
+    if reason is None:
+        for q in RSS_KEYS:
+            nom, lo, hi = rss(spec, q)
+            rss_out[q] = {"nominal": nom, "min": lo, "max": hi}
+    return rss_out, _stability(spec, region)
 
 
 def stage_assumptions(job: Job, transistor: Transistor,

@@ -11,6 +11,15 @@ __all__ = ["clean", "dumps"]
 
 def clean(value: Any) -> Any:
     """Turn numpy scalars and arrays, tuples and non-finite floats into JSON-safe values."""
+    kind = type(value)   # the plain types first (a result holds thousands of them)
+    if kind is float:
+        return value if math.isfinite(value) else None
+    if kind is str or kind is int or kind is bool or value is None:
+        return value
+    if kind is dict:
+        return {str(k): clean(v) for k, v in value.items()}
+    if kind is list:
+        return [clean(v) for v in value]
     if isinstance(value, dict):
         return {str(k): clean(v) for k, v in value.items()}
     if isinstance(value, (list, tuple, set, frozenset)):

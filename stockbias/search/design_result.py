@@ -79,7 +79,7 @@ class Design:
                 "every_variant_listed": every}
 
     def to_dict(self) -> dict[str, object]:
-        c = self.check.to_dict()
+        c = self.check   # the parts of its to_dict() shown here (not its spreads)
         parts = {}
         for role, p in self.check.parts.items():
             ids: object = p.part_ids[0] if len(p.parts) == 1 else p.part_ids
@@ -95,8 +95,9 @@ class Design:
                            "polarity": self.transistor.polarity},
             "parts": parts, "absent": [r for r in get_network(self.topology).optional_roles
                                        if r not in parts],
-            "ok": self.check.ok, "worst_case": c["worst_case"],
-            "constraints": c["constraints"], "nominal": c["nominal"], "purpose": c["purpose"],
+            "ok": c.ok, "worst_case": c.worst.to_dict(),
+            "constraints": [x.to_dict() for x in c.constraints], "nominal": c.nominal,
+            "purpose": None if c.purpose is None else c.purpose.to_dict(),
             "warnings": self.check.warnings, "cautions": self.check.cautions,
             "free_role": self.free_role,
             "variants": [v.to_dict() for v in self.variants],
