@@ -137,6 +137,10 @@ class _Search(RowScan):
         self.rejected_on_verification = 0
         self._cache: dict[tuple, object] = {}
         self._qty: dict[str, int] | None = None
+        #: per pool design (a pool entry never changes): its network and whether the stock
+        #: holds a build of it, worked out once
+        self._network_of: dict[int, tuple] = {}
+        self._stock_ok: dict[int, bool] = {}
         self.pair_roles_limited: list[str] = []
         self.timed_out = False
         self.coverage = Coverage(len(self.transistors))
@@ -450,18 +454,22 @@ class _Search(RowScan):
         return b, parts
 
     def stock_ok(self, k: int) -> bool:
-        _b, parts = self.resolved(k)
-        count: dict[str, int] = {}
-        for p in parts.values():
-            for part in p.parts:
-                count[part.part_id] = count.get(part.part_id, 0) + 1
-        need = self.job.build.quantity
-        if self._qty is None:
-            # the stock quantity of each part id, as Inventory.find_resistor finds it
-            self._qty = {}
-            for r in self.inv.resistors:
-                self._qty.setdefault(id_key(r.part_id), r.qty)
-        return all(self._qty[id_key(pid)] >= c * need for pid, c in count.items())
+        got = self._stock_ok.get(k)
+        if got is None:
+            _b, parts = self.resolved(k)
+            count: dict[str, int] = {}
+            for p in parts.values():
+                for part in p.parts:
+                    count[part.part_id] = count.get(part.part_id, 0) + 1
+            need = self.job.build.quantity
+            if self._qty is None:
+                # the stock quantity of each part id, as Inventory.find_resistor finds it
+                self._qty = {}
+                for r in self.inv.resistors:
+                    self._qty.setdefault(id_key(r.part_id), r.qty)
+            got = all(self._qty[id_key(pid)] >= c * need for pid, c in count.items())
+            self._stock_ok[k] = got
+        return got
 
     def verify(self, k: int) -> CheckResult | None:
         ck = (self.pool.block[k], tuple(sorted(self.pool.roles[k].items())))
@@ -489,8 +497,12 @@ class _Search(RowScan):
 
     def network(self, k: int) -> tuple:
         """The bias network of pool design ``k`` (:func:`.alternatives.network_key`)."""
-        b = self.blocks[self.pool.block[k]]
-        return network_key(b.network, b.q_index, b.cands, self.pool.roles[k])
+        got = self._network_of.get(k)
+        if got is None:
+            b = self.blocks[self.pool.block[k]]
+            got = network_key(b.network, b.q_index, b.cands, self.pool.roles[k])
+            self._network_of[k] = got
+        return got
 
     def kappa(self) -> np.ndarray:
         """Key at which the K-th distinct network is first met among the re-verified,
