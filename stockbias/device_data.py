@@ -24,8 +24,6 @@ import math
 from dataclasses import replace
 from pathlib import Path
 
-import numpy as np
-
 from stockbias.errors import InputError, ModelCardError
 
 __all__ = [
@@ -149,6 +147,8 @@ def card_for_row(*, polarity: str, model_name: str, model_file: str, curve_file:
 
 
 def _from_curves(path: Path, shown: str, held: dict[str, float]) -> DeviceCard:
+    import numpy as np
+
     from stockbias.device_curves import fit_curves, read_curve_points
 
     try:
@@ -185,6 +185,8 @@ def hfe_scale_over(card: DeviceCard, test_ic: float, ic_lo: float, ic_hi: float,
     dv_min, dv_max : float
         Smallest and largest VBE(IC) − VBE(test current), volt.
     """
+    import numpy as np
+
     from stockbias.analysis.gp_dc import bias_at_current, device_at
 
     dev = device_at(card.params, temp_c)

@@ -10,13 +10,19 @@ round(10**(i/24), 1 decimal) at 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7 and 8.2, so th
 are written out.  E48, E96 and E192 are round(10**(i/n)) to three significant
 figures, with one exception the standard keeps: E192 has 920 where the formula
 gives 919.
+
+numpy is imported by the functions that return or take arrays; the membership test
+:func:`smallest_series_many` (``stock check``) is plain Python.
 """
 
 from __future__ import annotations
 
+import bisect
 import math
+from typing import TYPE_CHECKING
 
-import numpy as np
+if TYPE_CHECKING:
+    import numpy as np
 
 __all__ = [
     "E3",
@@ -132,6 +138,8 @@ def series_values(name: str, low: float, high: float) -> np.ndarray:
     numpy.ndarray
         float64 values, each the float nearest to its decimal value (4700.0, 0.47).
     """
+    import numpy as np
+
     key = _check(name)
     low, high = float(low), float(high)
     if not (math.isfinite(low) and math.isfinite(high) and 0.0 < low <= high):
@@ -149,6 +157,8 @@ def series_values(name: str, low: float, high: float) -> np.ndarray:
 
 def _neighbours(key: str, value: float) -> np.ndarray:
     """The series values in the decade of ``value`` and the decades either side."""
+    import numpy as np
+
     decade = math.floor(math.log10(value))
     shift = 1 - _figures(key)
     return np.array(
@@ -180,6 +190,8 @@ def nearest(value: float, name: str) -> float:
         The nearest value; 9.9 in E12 gives 10.0.  On an exact tie in ratio the
         lower value is returned.
     """
+    import numpy as np
+
     key = _check(name)
     value = _check_positive(value)
     candidates = _neighbours(key, value)
@@ -223,6 +235,8 @@ _POW10_EXACT = 22  # 10.0**k is exact for 0 <= k <= 22, so m * 10**k and m / 10*
 
 
 def _as_positive_array(values: object) -> np.ndarray:
+    import numpy as np
+
     arr = np.asarray(values, dtype=np.float64)
     if arr.size and not (np.all(np.isfinite(arr)) and np.all(arr > 0.0)):
         raise ValueError("E-series values must be finite and > 0")
@@ -249,6 +263,8 @@ def nearest_many(values: object, name: str) -> np.ndarray:
     numpy.ndarray
         float64, the shape of ``values``; each the float nearest to its decimal value.
     """
+    import numpy as np
+
     key = _check(name)
     arr = _as_positive_array(values)
     flat = arr.ravel()
@@ -276,6 +292,8 @@ def nearest_many(values: object, name: str) -> np.ndarray:
 
 def _exact_many(mantissa: np.ndarray, exponent: np.ndarray) -> np.ndarray:
     """mantissa × 10**exponent, each the float nearest to the decimal value."""
+    import numpy as np
+
     out = np.empty(mantissa.shape, dtype=np.float64)
     pos = (exponent >= 0) & (exponent <= _POW10_EXACT)
     neg = (exponent < 0) & (exponent >= -_POW10_EXACT)
@@ -286,10 +304,45 @@ def _exact_many(mantissa: np.ndarray, exponent: np.ndarray) -> np.ndarray:
     return out
 
 
+def _in_series(value: float, key: str, rel_tol: float) -> bool:
+    """``value`` within ``rel_tol`` of a value of series ``key`` (any decade).
+
+    Series values lie more than 1 % apart, so a value within ``rel_tol`` (≪ 1 %) of one
+    of them is within it of the nearest one: the same answer as comparing
+    :func:`nearest`'s value, computed with the same exact candidates."""
+    mant = _MANTISSAS[key]
+    shift = 1 - _figures(key)
+    decade = math.floor(math.log10(value))
+    for d in (decade - 1, decade, decade + 1):
+        i = bisect.bisect_left(mant, value / 10.0 ** (d + shift))
+        for j in (i - 1, i):
+            if 0 <= j < len(mant) and abs(_exact(mant[j], d + shift) / value - 1.0) <= rel_tol:
+                return True
+    return False
+
+
+def _positive_floats(values: object) -> list[float]:
+    """The values of a number, a (nested) sequence or an array, flattened, as floats."""
+    if hasattr(values, "ravel"):
+        values = values.ravel().tolist()
+    out: list[float] = []
+    stack = [values]
+    while stack:
+        v = stack.pop()
+        if isinstance(v, (list, tuple)):
+            stack.extend(reversed(v))
+        else:
+            out.append(float(v))  # type: ignore[arg-type]
+    if not all(math.isfinite(v) and v > 0.0 for v in out):
+        raise ValueError("E-series values must be finite and > 0")
+    return out
+
+
 def smallest_series_many(values: object, *, rel_tol: float = 1e-6) -> list[str | None]:
     """The coarsest series containing each value (None: off-series), for many values.
 
-    Element by element the same as :func:`smallest_series`.
+    Element by element the same as :func:`smallest_series`, in plain Python (no numpy:
+    ``stock check`` uses it).
 
     Parameters
     ----------
@@ -303,13 +356,5 @@ def smallest_series_many(values: object, *, rel_tol: float = 1e-6) -> list[str |
     list of (str or None)
         One entry per value, in order.
     """
-    flat = _as_positive_array(values).ravel()
-    found = np.full(flat.size, -1, dtype=np.int64)
-    for i, name in enumerate(SERIES_NAMES):
-        open_ = found < 0
-        if not open_.any():
-            break
-        near = nearest_many(flat[open_], name)
-        hit = np.abs(near / flat[open_] - 1.0) <= rel_tol
-        found[np.flatnonzero(open_)[hit]] = i
-    return [SERIES_NAMES[i] if i >= 0 else None for i in found.tolist()]
+    return [next((name for name in SERIES_NAMES if _in_series(v, name, rel_tol)), None)
+            for v in _positive_floats(values)]

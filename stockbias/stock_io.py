@@ -34,7 +34,6 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from . import stock_csv
-from .analysis.gp_dc import CARD_DEFAULTS
 from .device_data import CARD_TO_ROW, DeviceCard, card_for_row
 from .errors import InputError, NotationError, Problem, StockFileError
 from .parts import TRANSISTOR_DEFAULTS, Inventory, Resistor, Transistor, id_key
@@ -581,6 +580,8 @@ class _RowReader:
         if not self.ok:
             return None
         if card is not None:  # the card (with SPICE's defaults) fills the Gummel-Poon
+            from .analysis.gp_dc import CARD_DEFAULTS  # numpy: only for rows with a card
+
             full = {**CARD_DEFAULTS, **card.params}  # columns the row left empty
             for name, col in CARD_TO_ROW.items():
                 if col not in values:
@@ -600,9 +601,11 @@ class _RowReader:
     def device_card(self, polarity: str, values: dict[str, float]) -> DeviceCard | None:
         """The row's model card or fitted datasheet points (None when it names neither)."""
         held = {"vaf": values["vaf_v"]} if "vaf_v" in values else {}
-        if "is_a" in values:
+        # only a curve fit holds IS (so numpy is loaded for such rows only)
+        if self.raw("curve_file") and "is_a" in values:
             held["is"] = values["is_a"]
-        else:  # for points without VBE: IS from the VBE range at the test current (25 °C)
+        elif self.raw("curve_file"):  # points without VBE: IS from the VBE range at the
+            # test current (25 °C)
             from .analysis.device import CELSIUS_TO_KELVIN, saturation_current_from_vbe
 
             vbe_mid = 0.5 * (values.get("vbe_min", 0.60) + values.get("vbe_max", 0.75))

@@ -14,11 +14,14 @@ import functools
 import json
 import time
 from collections.abc import Sequence
+from typing import TYPE_CHECKING, cast
 
 from rich.console import Console
 from rich.markup import escape
-from rich.progress import BarColumn, Progress, TaskID, TextColumn, TimeElapsedColumn
 from rich.table import Table
+
+if TYPE_CHECKING:
+    from rich.progress import Progress, TaskID
 
 from ..parts import MODEL_CARD_FIELDS, TRANSISTOR_DEFAULTS, Inventory, Resistor, Transistor
 from ..stock_csv import visible
@@ -227,13 +230,15 @@ class ReadingProgress:
         self.label = label
         self.delay_s = delay_s
         self.started = time.monotonic()
-        self.bar: Progress | None = None
-        self.task = TaskID(0)
+        self.bar: Progress | None = None     # rich.progress loaded when a bar is shown
+        self.task: TaskID = cast("TaskID", 0)
 
     def __call__(self, done: int, total: int) -> None:
         if self.bar is None:
             if time.monotonic() - self.started < self.delay_s:
                 return
+            from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
             self.bar = Progress(TextColumn("{task.description}"), BarColumn(),
                                 TextColumn("{task.completed}/{task.total} lines"),
                                 TimeElapsedColumn(), console=self.console, transient=True)
