@@ -281,17 +281,22 @@ class StageSpec:
         raise KeyError(axis)
 
     def nominal_point(self) -> StagePoint:
-        """The nominal point of DESIGN §3."""
-        d = self.device
-        return StagePoint(
-            vcc=np.asarray(self.vcc, dtype=float),
-            vee=None if self.vee is None else np.asarray(self.vee, dtype=float),
-            r={role: np.asarray(s.value, dtype=float) for role, s in self.resistors.items()},
-            hfe=np.sqrt(np.asarray(d.hfe_min, dtype=float) * np.asarray(d.hfe_max)),
-            vbe=0.5 * (np.asarray(d.vbe_min, dtype=float) + np.asarray(d.vbe_max)),
-            icbo=0.5 * np.asarray(d.icbo_a, dtype=float),
-            ambient_c=np.asarray(self.nominal_ambient_c, dtype=float),
-        )
+        """The nominal point of DESIGN §3 (worked out once per spec; each call returns its
+        own point and role mapping)."""
+        p = self.__dict__.get("_nominal")
+        if p is None:
+            d = self.device
+            p = StagePoint(
+                vcc=np.asarray(self.vcc, dtype=float),
+                vee=None if self.vee is None else np.asarray(self.vee, dtype=float),
+                r={role: np.asarray(s.value, dtype=float) for role, s in self.resistors.items()},
+                hfe=np.sqrt(np.asarray(d.hfe_min, dtype=float) * np.asarray(d.hfe_max)),
+                vbe=0.5 * (np.asarray(d.vbe_min, dtype=float) + np.asarray(d.vbe_max)),
+                icbo=0.5 * np.asarray(d.icbo_a, dtype=float),
+                ambient_c=np.asarray(self.nominal_ambient_c, dtype=float),
+            )
+            object.__setattr__(self, "_nominal", p)   # a cache, not a field
+        return replace(p, r=dict(p.r))
 
     def point_from(self, values: Mapping[str, np.ndarray],
                    base: StagePoint | None = None) -> StagePoint:

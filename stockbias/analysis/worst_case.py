@@ -322,9 +322,15 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
     table = {n: np.concatenate(v) for n, v in row_q.items()}
     table = {n: v for n, v in table.items() if not np.all(np.isnan(v))}
 
+    described: dict[int, dict[str, dict[str, object]]] = {}
+
     def corner_of(i: int) -> dict[str, dict[str, object]]:
-        tj = None if np.isnan(all_tj[i]) else float(all_tj[i])
-        return corner_setting(spec, dict(zip(axes, all_u[i], strict=True)), tj)
+        # many quantities share their extreme rows: each row is described once (a copy
+        # per bound, so no two bounds share a dict)
+        if i not in described:
+            tj = None if np.isnan(all_tj[i]) else float(all_tj[i])
+            described[i] = corner_setting(spec, dict(zip(axes, all_u[i], strict=True)), tj)
+        return {axis: dict(v) for axis, v in described[i].items()}
 
     bounds: dict[str, Bound] = {}
     for name, values in table.items():
