@@ -205,9 +205,9 @@ def _resistances(network: Network, resistances: Mapping[str, object]) -> dict[st
             out[role.name] = np.zeros(())
             continue
         value = np.asarray(resistances[role.name], dtype=float)
-        if np.any(~np.isfinite(value)) or np.any(value < 0):
+        if (~np.isfinite(value)).any() or (value < 0).any():
             raise ValueError(f"role {role.name}: resistance must be finite and >= 0 (ohm)")
-        if not role.optional and np.any(value == 0):
+        if not role.optional and (value == 0).any():
             raise ValueError(f"role {role.name} is required and cannot be 0 ohm (a short)")
         out[role.name] = value
     return out
@@ -377,7 +377,7 @@ def _assemble(st: _Stage, ib, ic, vb, vc, ve, region) -> OperatingPoint:
     for role in net.roles:
         res = st.r[role.name]
         short = res == 0.0
-        shorts[role.name] = bool(np.any(short))
+        shorts[role.name] = bool(short.any())
         if shorts[role.name]:
             currents[role.name] = np.where(
                 short, 0.0, (v[role.node_a] - v[role.node_b]) / np.where(short, 1.0, res)
@@ -410,7 +410,7 @@ def _assemble(st: _Stage, ib, ic, vb, vc, ve, region) -> OperatingPoint:
     pd = vce * ic + vbe * ib
 
     def shaped(x):
-        return np.reshape(x, st.shape)
+        return x.reshape(st.shape) if isinstance(x, np.ndarray) else np.reshape(x, st.shape)
 
     return OperatingPoint(
         network=net.name,
@@ -480,9 +480,9 @@ def solve_constant_vbe(
     """
     st = _stage(network, resistances, polarity, vcc, vee, beta, vbe, vce_sat, icbo)
     beta_f, vbe_f, vce_sat_f, icbo_f = st.extra
-    if np.any(~(beta_f > 0)):
+    if (~(beta_f > 0)).any():
         raise ValueError("beta must be positive")
-    if np.any(~(vce_sat_f >= 0)):
+    if (~(vce_sat_f >= 0)).any():
         raise ValueError("vce_sat must be >= 0 (volt)")
     if method == "closed_form":
         r = {name: st.r[name] for name in st.network.role_names}

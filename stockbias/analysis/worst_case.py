@@ -44,6 +44,7 @@ from .box_search import (
     boundary_points,
     edge_grid,
     edge_maxima,
+    nan_low,
     point_at_unit,
     refine_extremes,
     self_heated_tj,
@@ -301,16 +302,16 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
             edge_u, edge_axis = edge_grid(bits)
             edge_ev = evaluate(spec, point_at_unit(spec, axes, edge_u), small_signal=any(
                 t[0] in SMALL_SIGNAL_QUANTITIES for t in targets))
-            edge_vals = {t: np.nan_to_num(t[1] * np.asarray(edge_ev.quantities[t[0]],
-                                                             dtype=float).reshape(-1),
-                                          nan=-np.inf) for t in targets}
+            edge_vals = {t: nan_low(t[1] * np.asarray(edge_ev.quantities[t[0]],
+                                                      dtype=float).reshape(-1))
+                         for t in targets}
             line_u = edge_maxima(spec, axes, edge_u, edge_axis, edge_vals)
             if line_u.size:
                 add_points(line_u)
         all_u = np.concatenate(row_u)
         starts = {}
         for name, sign in targets:
-            vals = np.nan_to_num(sign * np.concatenate(row_q[name]), nan=-np.inf)
+            vals = nan_low(sign * np.concatenate(row_q[name]))
             if np.all(np.isinf(vals)):
                 continue
             order = np.argsort(-vals)[:3]
@@ -338,7 +339,7 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
         v_max, c_max, u_max = float(values[i_max]), corner_of(i_max), all_u[i_max]
         if name == "tj":
             # the hottest junction is the self-heated one, solved at the hottest candidates
-            order = np.argsort(-np.nan_to_num(values, nan=-np.inf))
+            order = np.argsort(-nan_low(values))
             seen: list[np.ndarray] = []
             for i in order:
                 if len(seen) == 4:
