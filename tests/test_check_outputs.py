@@ -444,3 +444,20 @@ def test_monte_carlo_counts_gain_max_failures_on_boards_with_saturated_corners(
     assert some_saturated.sum() > 100            # the case bites: many boards saturate somewhere
     assert res.worst.bounds["gain_abs"].min > 50
     assert mc.failing["gain_max"] == int(active.any(axis=1).sum())
+
+
+def test_spreads_are_worked_out_when_first_read(shelf: Path) -> None:
+    """RSS and stability factors are computed when read (the search's re-verification of a
+    design never reads them), and equal what the eager computation gives."""
+    from stockbias.analysis.check import _stability
+    from stockbias.analysis.worst_case import rss
+
+    job, inv = parse_job(DIVIDER_JOB), read_inventory(shelf)
+    res = analyze(job, parts("39k", "8.2k", "3.3k", "1k"), "TQ-N1", inv, samples=0)
+    assert res._spread_cache == []          # nothing computed by the analysis itself
+    spec = build_spec(job, job.stage, res.parts, res.transistor)
+    for q in ("ic", "vce"):                 # expected: the same functions called directly
+        nominal, low, high = rss(spec, q)
+        assert res.rss[q] == {"nominal": nominal, "min": low, "max": high}
+    assert res.stability == _stability(spec, "active")
+    assert res.to_dict()["rss"] is res.rss  # worked out once
