@@ -13,6 +13,7 @@ import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from functools import partial
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -23,11 +24,13 @@ from ..parts import Inventory, Transistor
 from ..topologies import get_network
 from . import device
 from .constraints import ConstraintResult, Limit, evaluate_limits, ic_margin, stage_limits
-from .montecarlo import MonteCarloResult, monte_carlo
 from .purpose import PURPOSE_QUANTITIES, Purpose, stage_purpose
 from .stage import DeviceSpec, StageSpec, evaluate, solve_point
 from .thermal import self_heated_point
 from .worst_case import REPORTED, WorstCase, point_at_unit, rss, worst_case
+
+if TYPE_CHECKING:   # Monte Carlo is loaded by the checks that draw boards
+    from .montecarlo import MonteCarloResult
 
 __all__ = ["CheckResult", "analyze", "analyze_stage", "build_spec", "check_roles",
            "collect_assumptions", "not_active_reason", "small_signal_assumption",
@@ -298,6 +301,8 @@ def analyze_stage(job: Job, stage: Stage, parts: Mapping[str, ResolvedResistor],
         # histogram edges from the worst-case bounds: every drawn board lies inside them
         spans = {k: (float(wc.bounds[k].min), float(wc.bounds[k].max))
                  for k in ("ic", "vce") if k in wc.bounds}
+        from .montecarlo import monte_carlo
+
         mc = monte_carlo(spec, limits, samples, seed, tempco_ppm=tempcos, ranges=spans,
                          executor=executor, progress=progress, stream=stream)
         if yield_limit is not None:
