@@ -56,3 +56,20 @@ def test_the_worst_case_search_explains_a_yield_job_it_cannot_meet(files) -> Non
     assert ex["closest"] is not None and ex["closest"]["transistor"] == "TQ-1"
     assert ex["misses"] and all(not m["ok"] for m in ex["misses"])
     assert ex["binding"] in {m["name"] for m in ex["misses"]}
+
+
+def test_the_yield_search_reports_the_candidates_and_boards_done(files) -> None:
+    # what the progress bar shows: each box search, the screening count of candidates
+    # (k of m, 2,000 boards each), each judgement with its board count; fractions never fall
+    seen: list[tuple[str, float]] = []
+    job = stockbias.load_job(files / "job.toml")
+    res = stockbias.design(job, stockbias.load_inventory(files / "both.csv"),
+                           progress=lambda text, frac: seen.append((text, frac)))
+    texts = [t for t, _f in seen]
+    m = res.stats["sampled_candidates"]
+    assert m > 0 and f"screened {m} of {m} candidates × 2,000 boards" in texts
+    assert any(t.startswith("box 1 of 3") for t in texts)
+    assert any(t.startswith("judging candidate") and t.endswith("on 20,000 boards")
+               for t in texts)
+    fracs = [f for _t, f in seen]
+    assert fracs == sorted(fracs) and fracs[-1] < 1

@@ -330,14 +330,15 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
         if c.mass < y_min:
             if progress is not None:
                 progress(f"judging candidate {i + 1} of {len(alive)} on {samples:,} boards",
-                         (len(levels) + i / max(len(alive), 1)) / (len(levels) + 2))
+                         (len(levels) + 2 * i / len(alive)) / (len(levels) + 2))
             judged += 1
             c.judged, c.judged_low = judge(ex, job, c.trial, samples, conf)
             if c.judged_low < y_min:
                 continue
         if progress is not None:
+            # the bar moves on through the candidates, never back
             progress(f"final check of design {len(chosen) + 1} on fresh boards",
-                     (len(levels) + 1) / (len(levels) + 2))
+                     (len(levels) + 2 * (i + 0.5) / len(alive)) / (len(levels) + 2))
         check, check_low = final_check(job, c.trial, samples, conf)
         per_board = max(per_board, (time.monotonic() - t_mc) / (runs * samples))
         mc = check.monte_carlo
