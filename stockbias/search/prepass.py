@@ -44,6 +44,7 @@ from __future__ import annotations
 
 import math
 import warnings
+import weakref
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -525,14 +526,30 @@ def free_role_bounds(job: Job, stage: Stage, network: str, q: Transistor,
     return h, low_need, ic_top
 
 
+#: the band factors of recent free-role tables (a table with pairs holds 10^5 candidates
+#: and is asked once per chunk of cores): id → (weak reference to the table, factors)
+_FACTORS: dict[int, tuple[weakref.ref, float, float]] = {}
+
+
+def _band_factors(fc: RoleCandidates) -> tuple[float, float]:
+    """(largest low/value, smallest high/value) over the table's present candidates."""
+    got = _FACTORS.get(id(fc))
+    if got is None or got[0]() is not fc:
+        present = fc.value > 0
+        f_hi = float(np.min(fc.high[present] / fc.value[present])) if present.any() else 1.0
+        f_lo = float(np.max(fc.low[present] / fc.value[present])) if present.any() else 1.0
+        if len(_FACTORS) >= 64:
+            _FACTORS.clear()
+        _FACTORS[id(fc)] = got = (weakref.ref(fc), f_lo, f_hi)
+    return got[1], got[2]
+
+
 def free_role_range(fc: RoleCandidates, h: np.ndarray, low_need: np.ndarray
                     ) -> tuple[np.ndarray, np.ndarray]:
     """Per core, the superset [j0, j1) of the free role's sorted table whose nominal values
     can meet the high-end bound ``h`` and the low-end need ``low_need`` (ohm) of
     :func:`free_role_bounds`; :func:`free_role_keep` then filters exactly."""
-    present = fc.value > 0
-    f_hi = float(np.min(fc.high[present] / fc.value[present])) if present.any() else 1.0
-    f_lo = float(np.max(fc.low[present] / fc.value[present])) if present.any() else 1.0
+    f_lo, f_hi = _band_factors(fc)
     with np.errstate(invalid="ignore", divide="ignore"):
         j1 = np.searchsorted(fc.value, np.where(np.isfinite(h), h / f_hi, h) * (1 + _REL),
                              "right")
