@@ -329,3 +329,18 @@ def test_no_check_starts_after_the_time_limit(files) -> None:
                for c in res.candidates)
     assert res.yield_search["stats"]["cut_by_time_limit"] == ["TQ-1", "TQ-2"]
     assert res.yield_search["stats"]["judged"] == 0
+
+
+def test_cli_workers_and_a_bad_cluster_address(files) -> None:
+    args = ["substitute", str(files["job"]), "-i", str(files["wide"]), "-v",
+            ",".join(f"{r}={p}" for r, p in VALUES.items()), "-t", "TQ-1",
+            "--no-keep-purpose", "--json"]
+    one = CliRunner().invoke(app, [*args, "--workers", "1"])
+    two = CliRunner().invoke(app, [*args, "--workers", "2"])
+    assert one.exit_code == two.exit_code == 0, one.output + two.output
+    a, b = json.loads(one.stdout), json.loads(two.stdout)
+    assert a["candidates"] == b["candidates"]
+    assert b["yield_search"]["stats"]["executor"] == "2 local worker processes"
+    bad = CliRunner().invoke(app, [*args, "--cluster", "localhost:8786"])
+    assert bad.exit_code == 2
+    assert "a cluster address reads tcp://HOST:PORT" in bad.output
