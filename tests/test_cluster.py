@@ -133,3 +133,31 @@ def test_a_yield_design_and_a_yield_substitute_on_the_cluster_equal_this_process
                for c in sub_here.candidates)
     assert [c.to_dict() for c in sub_here.candidates] == \
         [c.to_dict() for c in sub_there.candidates]
+
+
+def test_a_yield_board_on_the_cluster_equals_this_process(cluster: str, tmp_path: Path) -> None:
+    # boards judged stage by stage: the screens and judgements run on the cluster's workers
+    from test_yield_board import HEADER, PRECISE, TRANSISTOR, WIDE, board_text
+
+    from stockbias.job import parse_job
+    from stockbias.search.yield_board import yield_board
+    from stockbias.stock_io import read_inventory
+
+    shelf = tmp_path / "both.csv"
+    shelf.write_text(HEADER + PRECISE + WIDE + TRANSISTOR)
+    job = parse_job(board_text((14, 12), ("yield_min = 80\n", "yield_min = 70\n")))
+    inv = read_inventory(shelf)
+    here = yield_board(job, inv, top=1, executor=InProcess())
+    ex = DaskCluster(cluster)
+    try:
+        there = yield_board(job, inv, top=1, executor=ex)
+    finally:
+        ex.close()
+    assert here.designs and len(here.designs) == len(there.designs)
+    for a, b in zip(here.designs, there.designs, strict=True):
+        assert a.board.cost_micro == b.board.cost_micro
+        assert [(s.kind, s.screen, s.judged) for s in a.stages] == \
+            [(s.kind, s.screen, s.judged) for s in b.stages]
+    assert there.stats["executor"] != here.stats["executor"]
+    assert {k: v for k, v in here.stats.items() if k != "executor"} == \
+        {k: v for k, v in there.stats.items() if k != "executor"}
