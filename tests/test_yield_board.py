@@ -188,6 +188,23 @@ def test_the_board_yield_is_the_product_of_independent_stage_yields(files) -> No
         1 - sum(1 - e.confidence for e in sampled))
 
 
+def test_a_stage_without_a_yield_target_keeps_its_worst_case(files) -> None:
+    # 'second' states no yield_min: it must pass every worst-case corner, while 'first'
+    # may take the cheaper 10 % lines on its yield target
+    job = parse_job(board_text((14, 12), ("yield_min = 80\n", "")))
+    res = yield_board(job, read_inventory(files["both"]), top=1)
+    best = res.designs[0]
+    first, second = best.stages
+    assert second.yield_min is None and second.kind == "worst case" and second.check.ok
+    assert first.kind == "sampled" and first.check_low >= 0.8
+    assert best.board.cost < res.worst_case.designs[0].cost
+    mine = stage_passes(_values(best.board.stages[0]), 14, 40_000,
+                        np.random.default_rng(3)).mean()
+    assert mine >= 0.8
+    assert stage_passes(_values(best.board.stages[1]), 12, 20_000,
+                        np.random.default_rng(4)).all()
+
+
 def test_one_and_two_workers_give_the_same_yield_board(files) -> None:
     from stockbias.executor import InProcess, LocalProcesses
 

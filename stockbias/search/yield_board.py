@@ -186,7 +186,34 @@ def _collect(job: Job, real: Job, inventory: Inventory,
             bkey = tuple(keys)
             if bkey not in boards:
                 boards[bkey] = _Board(b, level, bkey, _objective_key(b, objectives, level))
+    if sub_box:
+        _mix_worst_case_stages(real, inventory, boards, objectives)
     return sorted(boards.values(), key=lambda x: x.rank_key), designs
+
+
+def _mix_worst_case_stages(real: Job, inventory: Inventory, boards: dict[tuple, _Board],
+                           objectives: tuple[str, ...]) -> None:
+    """More candidates where some stages have no yield target: a sub-box board with those
+    stages taken from a board of the job's own box (which pass every worst-case corner),
+    kept when the shared stock still covers the build.  The sub-box searches relax every
+    stage alike, so without this a stage that must pass the worst case would often sink
+    an otherwise cheaper board."""
+    fixed = [si for si, st in enumerate(real.stages) if st.target.yield_min is None]
+    if not fixed:
+        return
+    own = [b for b in boards.values() if b.level == 0]
+    for b in [b for b in boards.values() if b.level > 0]:
+        for w in own:
+            keys = tuple(w.keys[si] if si in fixed else k for si, k in enumerate(b.keys))
+            if keys in boards:
+                continue
+            stages = [w.board.stages[si] if si in fixed else s
+                      for si, s in enumerate(b.board.stages)]
+            mixed = _board_design(0, stages, real.build.quantity, inventory)
+            if any(row["short"] for row in mixed.bom):
+                continue
+            boards[keys] = _Board(mixed, b.level, keys, _objective_key(mixed, objectives,
+                                                                       b.level))
 
 
 def _search_boxes(search: Callable[[Inventory, float], Any], inventory: Inventory,
