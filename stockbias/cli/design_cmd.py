@@ -78,7 +78,8 @@ def design(
 
             run_yield_board(outs, job, inv, job_file, inventory, top=top,
                             time_limit=time_limit, json_out=json_out, save=save,
-                            report=report, workers=workers, cluster=cluster, assumed=assumed)
+                            report=report, plot=plot, workers=workers, cluster=cluster,
+                            assumed=assumed)
             return
         with search_progress(json_out, "searching the shelf") as progress:
             result = run_design(job, inv, top=top, time_limit_s=time_limit, progress=progress,

@@ -67,8 +67,9 @@ def _executor(workers: int, cluster: str | None):
 
 def run_yield_board(outs: OutputSet, job: Job, inv: Inventory, job_file: Path,
                     inventory: Path, *, top: int | None, time_limit: float | None,
-                    json_out: bool, save: Path | None, report: Path | None, workers: int,
-                    cluster: str | None, assumed: list[str]) -> None:
+                    json_out: bool, save: Path | None, report: Path | None,
+                    plot: Path | None, workers: int, cluster: str | None,
+                    assumed: list[str]) -> None:
     """`design BOARD` with a yield target in some stage: search, write --save and --report,
     commit, print; exit 1 when no board qualifies."""
     from ..render.console import make_console
@@ -123,6 +124,9 @@ def run_yield_board(outs: OutputSet, job: Job, inv: Inventory, job_file: Path,
 
         render_yield_board(make_console(), job, result)
     note = make_console(stderr=json_out)
+    if plot is not None:
+        note.print("--plot draws single-stage results; for a board, check each stage with "
+                   "`stockbias check BOARD --stage NAME --plot DIR`")
     if "--save" in written:
         note.print(f"Result saved: {written['--save'][0]}", markup=False)
     if "--report" in written:
