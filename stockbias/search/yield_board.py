@@ -360,7 +360,7 @@ def _chosen(job: Job, b: _Board, designs: dict[tuple, _StageDesign], rank: int,
 def _finish(kind: str, job: Job, worst: Any, chosen: list[YieldBoard],
             boards: list[_Board], designs: dict[tuple, _StageDesign], run: list,
             jstats: dict[str, object], objectives: tuple[str, ...], samples: int, ex: Any,
-            t0: float) -> YieldBoardResult:
+            t0: float, n_levels: int) -> YieldBoardResult:
     stats: dict[str, object] = {
         "boxes": run, "candidate_boards": len(boards), "stage_designs": len(designs),
         "proven_without_sampling": sum(d.kind in ("worst case", "sub-box")
@@ -389,9 +389,18 @@ def _finish(kind: str, job: Job, worst: Any, chosen: list[YieldBoard],
         res.assumptions.append(f"time limit reached: {jstats['not_judged_time_limit']} "
                                "candidate boards were not judged; a longer --time-limit may "
                                "find better boards")
+    cut = [b for b in run if b["status"] in ("unknown", "feasible")]
+    if cut or len(run) < n_levels:
+        res.assumptions.append(
+            f"time limit: {len(cut)} of {len(run)} box searches were cut short"
+            + (f" and {n_levels - len(run)} boxes not searched" if len(run) < n_levels
+               else "")
+            + "; a longer --time-limit gives more candidates")
     if not chosen:
         dropped = jstats["dropped_on_final_check"]
-        res.explanation = (
+        res.explanation = ("the time limit ran out before the box searches found a board; "
+                           "raise [search] time_limit_s or --time-limit: " if not boards and cut
+                           else "") + (
             f"no candidate board was shown to meet every stage's target: {len(boards)} "
             f"boards from {len(run)} boxes, {len(designs)} stage designs, "
             f"{jstats['screened_out']} screened out, {jstats['judged']} judged on "
@@ -445,7 +454,7 @@ def yield_board(job: Job, inventory: Inventory, *, top: int | None = None,
     chosen, jstats = _judge(job, boards, designs, top, samples, ex, clock, progress, levels,
                             inventory)
     return _finish("board", job, worst, chosen, boards, designs, run, jstats, objectives,
-                   samples, ex, t0)
+                   samples, ex, t0, len(levels))
 
 
 def yield_consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str]] = (),
@@ -489,7 +498,7 @@ def yield_consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[st
     chosen, jstats = _judge(job, boards, designs, 1, samples, ex, clock, progress, levels,
                             inventory)
     res = _finish("consolidate", job, worst, chosen, boards, designs, run, jstats, order,
-                  samples, ex, t0)
+                  samples, ex, t0, len(levels))
     # today's board on the same footing: the full check on the final-check stream
     res.reference = [(st.name, final_check(stage_job(real, st), Trial(parts, q, st.topology),
                                            samples, float(st.target.yield_confidence))[0])
