@@ -31,7 +31,7 @@ def sweep(
 ) -> None:
     """Run every stage of every job and board in a folder on one executor; one summary.
     Exit 1 when a stage has no substitute (--without), fails its check or was not judged
-    within --time-limit."""
+    within the time limit."""
     import csv
     import io
     import time
