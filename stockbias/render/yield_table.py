@@ -8,6 +8,7 @@ from rich.console import Console
 from ..inert_text import console_text
 from ..job import Job
 from .blocks import fill as _fill
+from .blocks import print_lines, prose
 from .design_table import design_block
 from .yield_text import lower_percent, percent_text
 
@@ -77,10 +78,11 @@ def render_yield_design(console: Console, job: Job, result) -> None:
         items.append(f"final check {_pct(mc.yield_.yield_)} of {mc.yield_.samples:,} fresh "
                      f"boards (≥ {_low(d.check_low)})")
         fails = [c.name for c in d.check.constraints if not c.ok and c.name != "yield_min"]
-        if fails:
-            items.append("worst case fails " + ", ".join(fails))
         for text in _fill(["yield:", *items], width, "    "):
             console.print(console_text(text), soft_wrap=True, highlight=False)
+        if fails:   # wrapped between names: five limits do not fit one item at 80 columns
+            print_lines(console, prose("worst case fails " + ", ".join(fails), width,
+                                       "    "))
     if result.stats.get("dropped_on_final_check"):
         console.print(console_text("Dropped on the final check: "
                                    + "; ".join(result.stats["dropped_on_final_check"])))

@@ -304,7 +304,7 @@ def _judge(job: Job, boards: list[_Board], designs: dict[tuple, _StageDesign], t
         if not ok:
             continue
         chosen.append(_chosen(job, b, designs, len(chosen) + 1, levels, inventory))
-    stats = {"sampled_stage_designs": m, "screened_out": len(out_keys),
+    stats: dict[str, object] = {"sampled_stage_designs": m, "screened_out": len(out_keys),
              # the smallest per-design confidence (stages may state different ones)
              "screen_confidence_each": None if not m else min(
                  1.0 - (1.0 - float(d.stage.target.yield_confidence)) / m for d in sampled),
@@ -333,10 +333,11 @@ def _failure(d: _StageDesign) -> str:
     c = d.trial
     parts = ", ".join(f"{r}={part_text(p)}" for r, p in c.parts.items())
     if d.kind == "sampled":
-        mc = d.check.monte_carlo  # type: ignore[union-attr]
+        assert d.check is not None and d.check.monte_carlo is not None
+        assert d.check_low is not None
         return (f"stage '{d.stage.name}' {c.topology} {c.transistor.part_id} {parts}: final "
-                f"check {100 * mc.yield_.yield_:.3f} %, one-sided lower bound "
-                f"{100 * float(d.check_low):.3f} %")
+                f"check {100 * d.check.monte_carlo.yield_.yield_:.3f} %, one-sided lower "
+                f"bound {100 * d.check_low:.3f} %")
     return (f"stage '{d.stage.name}' {c.topology} {c.transistor.part_id} {parts}: fails the "
             "worst case on the real shelf (it has no yield target)")
 
@@ -397,14 +398,14 @@ def _finish(kind: str, job: Job, worst: Any, chosen: list[YieldBoard],
                else "")
             + "; a longer --time-limit gives more candidates")
     if not chosen:
-        dropped = jstats["dropped_on_final_check"]
+        dropped = [str(x) for x in jstats["dropped_on_final_check"]]  # type: ignore[attr-defined]
         res.explanation = ("the time limit ran out before the box searches found a board; "
                            "raise [search] time_limit_s or --time-limit: " if not boards and cut
                            else "") + (
             f"no candidate board was shown to meet every stage's target: {len(boards)} "
             f"boards from {len(run)} boxes, {len(designs)} stage designs, "
             f"{jstats['screened_out']} screened out, {jstats['judged']} judged on "
-            f"{samples:,} boards" + ("; " + "; ".join(dropped) if dropped else ""))  # type: ignore[arg-type]
+            f"{samples:,} boards" + ("; " + "; ".join(dropped) if dropped else ""))
     return res
 
 
@@ -506,8 +507,8 @@ def yield_consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[st
     res.assumptions = list(dict.fromkeys(
         [*(a for a in worst.assumptions if "consolidated one" not in a), *res.assumptions]))
     after = res.after
-    res.purpose = [replace(rec, after=None if after is None else figures_of(s.check))
-                   for rec, s in zip(worst.purpose, after.stages if after else
-                                     [None] * len(worst.purpose), strict=True)]
+    res.purpose = [replace(rec, after=None if after is None
+                           else figures_of(after.stages[i].check))
+                   for i, rec in enumerate(worst.purpose)]
     res.seconds = time.monotonic() - t0
     return res

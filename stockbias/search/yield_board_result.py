@@ -124,15 +124,15 @@ class YieldBoardResult:
 
     @property
     def before(self) -> dict[str, object]:
-        return self.worst_case.before  # type: ignore[no-any-return]
+        return dict(self.worst_case.before)
 
     @property
     def before_ok(self) -> dict[str, bool]:
-        return self.worst_case.before_ok  # type: ignore[no-any-return]
+        return dict(self.worst_case.before_ok)
 
     @property
     def before_bom(self) -> list[dict[str, object]]:
-        return self.worst_case.before_bom  # type: ignore[no-any-return]
+        return list(self.worst_case.before_bom)
 
     @property
     def purpose_rule(self) -> str:
