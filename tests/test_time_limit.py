@@ -54,11 +54,13 @@ def test_design_cut_during_the_final_checks_shows_only_checked_designs(monkeypat
     assert full.status == "optimal" and len(full.designs) == 3
     clock = FakeClock(step=2.0)
     monkeypatch.setattr(design_module, "analyze_stage", clock.wrap(design_module.analyze_stage))
-    # 10 s, each full check 2 s, five designs asked for: the search (9 s) is cut by its
-    # fifth check (8 → 10 s), with networks that pass every vertex still unchecked; no
-    # check starts after that (before the fix, two more ran past the limit)
+    # 10 s, each full check 2 s, five designs asked for: the search has 9 s, so after its
+    # fourth check (at 8 s) a fifth could not end in time and the search stops there, with
+    # networks that pass every vertex still unchecked; the checks after the search have
+    # 2 s left, not more than one check takes, so none starts (the search used to run
+    # its fifth check and two more after it, to 14 s)
     r = design(job, inv, top=5, deadline=Deadline(10.0, clock=clock))
-    assert clock.checks == 5
+    assert clock.checks == 4
     assert r.status == "feasible" and 1 <= len(r.designs) < 5
     for d in r.designs:
         assert d.check.ok                                          # every one checked
@@ -69,7 +71,7 @@ def test_design_cut_during_the_final_checks_shows_only_checked_designs(monkeypat
         assert set(r.bound) == {"cost"}
         assert 0 < r.bound["cost"] <= full.designs[0].cost + 1e-12
     assert r.stats["unverified_networks"] > 0
-    assert any("ended the full checks after the search" in a and
+    assert any("the time limit ended the full checks after the search" in a and
                "fewer designs are shown than asked for" in a for a in r.assumptions)
 
 

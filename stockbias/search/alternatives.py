@@ -195,7 +195,8 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
     first variant of each end was checked and failed); ``complete`` is then False unless
     the two scans met.
 
-    ``deadline`` (optional, a :class:`.deadline.Deadline`): the vertex checks run in
+    ``deadline`` (optional, a :class:`.deadline.Deadline`; none is checked once it has
+    expired): the vertex checks run in
     blocks of 512 candidates in value order, and the blocks after the first stop once it
     has expired (only a long list, such as pairs on a large shelf, is ever cut); the
     variants are then those of the blocks checked (``deadline.hit`` tells the caller).
@@ -225,8 +226,9 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
     if every or fj.size <= FULL_LIST:
         block = 512 if deadline is not None else max(fj.size, 1)
         for a in range(0, fj.size, block):
-            if deadline is not None and parts and deadline.expired():
-                break
+            if cut():
+                break       # past the limit, not even the first block: the caller lists
+                            # the verified representative alone
             parts.append(check(fj[a:a + block]))
     else:
         # the ends of the range: blocks growing from each end until one holds a variant
@@ -303,6 +305,8 @@ def design_variants(s, k: int, verify: bool, deadline=None
         if v.index == rep:
             verified = True
         elif verify:
+            if deadline is not None and deadline.expired():
+                continue    # no full check past the limit (the listing says it was cut)
             trial = {r: p for r, p in s.resolved(k)[1].items() if r != free}
             trial[free] = part
             samples = VERIFY_SAMPLES if s.stage.target.yield_min is not None else 0

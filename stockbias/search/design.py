@@ -146,6 +146,8 @@ class _Search(RowScan):
         self.coverage = Coverage(len(self.transistors))
         #: the longest full check so far, s (a cut run starts no check it cannot finish)
         self.verify_s = 0.0
+        #: the longest vertex check per design so far, s (batches sized to the time left)
+        self.vertex_s = 0.0
         #: networks a cut run left unchecked for want of time (after the search)
         self.unverified_networks = 0
         self._seen = self._mark = 0.0     # fractions of the row order loaded / searched
@@ -483,13 +485,13 @@ class _Search(RowScan):
             res = self.checks.get(pk)
             if res is None:
                 samples = VERIFY_SAMPLES if self.stage.target.yield_min is not None else 0
-                t0 = time.monotonic()
+                t0 = self.deadline.clock()
                 res = analyze_stage(self.job, self.stage, parts, b.transistor,
                                     samples=samples, seed=self.job.search.seed,
                                     topology=b.network)
                 self.checks[pk] = res
                 self.stats["verified"] += 1
-                self.verify_s = max(self.verify_s, time.monotonic() - t0)
+                self.verify_s = max(self.verify_s, self.deadline.clock() - t0)
             if not res.ok:
                 self.rejected_on_verification += 1
             self.verified[ck] = res if res.ok else None
@@ -536,7 +538,14 @@ class _Search(RowScan):
                 elif not self.failed(k):
                     ahead.add(net)
             if todo:
-                self.vertex_verify(todo[:batch_size], keys)
+                # a batch the time left can hold (by the slowest design so far)
+                n = batch_size
+                if self.vertex_s > 0:
+                    n = max(1, min(n, int(self.deadline.remaining() / self.vertex_s)))
+                t_batch = self.deadline.clock()
+                self.vertex_verify(todo[:n], keys)
+                self.vertex_s = max(self.vertex_s, (self.deadline.clock() - t_batch)
+                                    / len(todo[:n]))
                 batch_size = min(batch_size * 2, 65536)
                 if self.deadline.expired():
                     return inf
@@ -552,6 +561,11 @@ class _Search(RowScan):
                 if status[k] == 0:
                     restart = True      # the design ahead of it in its network just failed
                     break
+                if not self._can_verify(k):
+                    # the longest check so far would end past the limit: the search ends
+                    # here, as if the deadline had passed (it has, for this check)
+                    self.deadline.hit = True
+                    return inf
                 if not self.stock_ok(k) or self.verify(k) is None:
                     continue
                 nets.add(net)
@@ -614,7 +628,7 @@ class _Search(RowScan):
                 return self._cut_short(out, ids_l, settled)
             if not todo or self.deadline.expired():
                 return np.asarray(out, dtype=np.int64)
-            self.vertex_verify(todo if cut is None else todo[:64])
+            self.vertex_verify(todo if cut is None else todo[:16])
 
     def _cut_short(self, out: list[int], ids: list[int], settled: set[tuple]) -> np.ndarray:
         """The representatives found when the time limit stops their checks; the networks
@@ -623,6 +637,14 @@ class _Search(RowScan):
             self.unverified_networks = len({self.network(j) for j in ids
                                             if not self.failed(j)} - settled)
         return np.asarray(out, dtype=np.int64)
+
+    def _can_verify(self, k: int) -> bool:
+        """Design ``k``'s full check is done already, or the search's time left holds one
+        (by the longest check so far; never a deadline counted in checks)."""
+        ck = (self.pool.block[k], tuple(sorted(self.pool.roles[k].items())))
+        if ck in self.verified:
+            return True
+        return not self.deadline.hit and self.deadline.remaining() > self.verify_s
 
     def _time_to_verify(self, k: int, cut: Deadline) -> bool:
         """Design ``k``'s full check is done already, or the time left can hold one."""
@@ -691,8 +713,12 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
              is not None for k in range(len(s.pool.keys))])
         if not np.all(kappa < _BIG):
             tied = _lex_le(pool_keys, kappa)
+        # a search that ended with κ not yet bounded (fewer than K networks found, or
+        # the time limit) has no bound on how many networks its pool holds: their checks
+        # keep to the command's deadline and stop at K
+        proven_kappa = done == "complete" and bool(np.all(kappa < _BIG))
         keep = s.representatives(np.flatnonzero(below | tied), kappa,
-                                 None if done == "complete" else deadline)
+                                 None if proven_kappa else deadline)
     else:
         keep = np.zeros(0, dtype=np.int64)
     mdesigns: list[ModelDesign] = []
@@ -726,7 +752,7 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
                                          job.build.quantity, top, job.search.seed,
                                          max(deadline.monotonic_at(), time.monotonic() + 0.5),
                                          accept)
-    if done != "complete" and status == "optimal":
+    if (done != "complete" or s.unverified_networks) and status == "optimal":
         status = "feasible"
     if done != "complete" and status == "infeasible":
         status = "unknown"
@@ -775,11 +801,11 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
     if done != "complete":
         stats["prepass_cut"] = s.coverage.message(s.networks)
         result.assumptions.append(stats["prepass_cut"])
-        if s.unverified_networks:
-            result.assumptions.append(
-                f"the time limit also ended the full checks after the search: "
-                f"{s.unverified_networks:,} more networks that pass at every vertex were "
-                "not checked, so fewer designs are shown than asked for")
+    if s.unverified_networks:
+        result.assumptions.append(
+            f"the time limit ended the full checks after the search: "
+            f"{s.unverified_networks:,} more networks that pass at every vertex were "
+            "not checked, so fewer designs are shown than asked for")
     stats["unverified_networks"] = s.unverified_networks
     if not designs and _explain:
         from .explain import explain
