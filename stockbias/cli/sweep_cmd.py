@@ -55,6 +55,11 @@ def sweep(
             raise InputError(f"no transistor with that part id in {inv.path}; transistors: "
                              f"{ids}", column="--without", text=without)
         stages = stage_tasks(folder)
+        if time_limit is not None:
+            # what a stage loads in this process, loaded before the clock starts
+            from scipy import special, stats  # noqa: F401
+
+            from ..search import board, substitute  # noqa: F401
         end = None if time_limit is None else time.time() + time_limit
         tasks = [(job, name, str(inventory), without, 2000, 0, end) for job, name in stages]
         executor = make_executor(workers or None, cluster)

