@@ -130,9 +130,10 @@ def test_a_cut_run_with_pairs_is_honest_and_states_its_bound_in_currency():
     seen, bounds = set(), []
     for n in (1, 3, 8, 20, 40, 80, 160, 320):
         r = design(job, inv, deadline=Deadline.after_checks(n))
-        if r.stats["prepass_cut"] is None:
+        if r.stats["prepass_cut"] is None and not r.stats["unverified_networks"]:
             assert r.status == "optimal"
             continue
+        # cut in the search, or in the final checks after it (networks left unchecked)
         assert r.status in ("feasible", "unknown")
         assert (r.status == "unknown") == (not r.designs)
         for d in r.designs:
