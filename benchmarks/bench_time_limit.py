@@ -21,6 +21,8 @@ Cases (every one searched with the time limit, never enough to finish):
 * ``yield``: the same with ``[target] yield_min = 99.9`` (the yield search);
 * ``board8``, ``board16``: board design of 8 and 16 stages on the shelf of
   ``bench_board.py`` (E24, 121 lines, 3 transistors free);
+* ``yieldboard8``: the 8-stage board with ``yield_min = 99`` in every stage (the yield
+  board search);
 * ``consolidate8``, ``consolidate16``: consolidation of the same boards, fitted with each
   stage's cheapest single design;
 * ``substitute``: the line-driver job's cheapest design on the E96 reels, judged for
@@ -138,6 +140,12 @@ def cases(folder: Path, wanted: set[str] | None) -> list[tuple[str, list[str], P
             path.write_text(board(n, ["cost", "part_count", "distinct_values"], None))
             out.append((f"board{n}", EXE + ["design", str(path), "-i", str(e24_3), "--json"],
                         e24_3))
+    if want("yieldboard8"):
+        path = folder / "yieldboard8.toml"
+        path.write_text(board(8, ["cost", "part_count", "distinct_values"], None)
+                        .replace("ic_window_pct = 20\n", "ic_window_pct = 20\nyield_min = 99\n"))
+        out.append(("yieldboard8", EXE + ["design", str(path), "-i", str(e24_3), "--json",
+                                          "--workers", "1"], e24_3))
     need_fitted = want("consolidate8") or want("consolidate16") or want("sweep")
     inv2_read = read_inventory(e24_2) if need_fitted else None
     fitted16 = _fitted_board(16, inv2_read) if need_fitted else ""

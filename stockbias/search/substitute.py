@@ -338,7 +338,7 @@ def substitute(job: Job, values: Mapping[str, str], current: str, inventory: Inv
     progress : callable, optional
         ``(text, fraction done)`` while a yield target is judged.
     """
-    if samples > 0:
+    if samples != 0:
         # the Monte Carlo's statistics load before the clock starts (start-up, not search)
         from scipy import special, stats  # noqa: F401
     t0 = time.monotonic()
