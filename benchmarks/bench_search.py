@@ -120,13 +120,15 @@ def sample_job_rows(folder: Path) -> list[str]:
                             .replace("time_limit_s = 20", "time_limit_s = 600"),
                             encoding="utf-8")
         wall, cpu, res = fresh(job_file, stock)
-        peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
-        # the search alone, CPU: in its own process after a warm-up search (imports)
+        # the search alone, CPU and peak memory: in its own process after a warm-up search
+        # (imports); the peak is the process's own (a child's ru_maxrss as the parent
+        # reads it counts the parent's pages at the fork)
         code = _ONE_FILE.format(here=str(Path(__file__).resolve().parent),
                                 job=str(job_file), stock=str(stock))
         got = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                              check=False)
         one = json.loads(got.stdout.strip().splitlines()[-1])
+        peak = one["peak_mib"]
         walls[pairs] = (wall, cpu, res["solve_seconds"], one["cpu"])
         out.append(f"| line-driver job, E96 reels | {'on' if pairs == 'true' else 'off'} | "
                    f"{res['status']} | {res['solve_seconds']:.2f} ({one['cpu']:.2f}) | "
@@ -138,7 +140,7 @@ def sample_job_rows(folder: Path) -> list[str]:
 
 
 _ONE_FILE = """
-import json, sys, time
+import json, resource, sys, time
 sys.path.insert(0, {here!r})
 from bench_search import JOB, shelf
 from stockbias.job import load_job, parse_job
@@ -148,7 +150,8 @@ job, inv = load_job({job!r}), read_inventory({stock!r})
 design(parse_job(JOB.format(pairs="false")), shelf("E12", 1))   # warm-up: imports
 c0 = time.process_time()
 r = design(job, inv)
-print(json.dumps({{"status": r.status, "cpu": time.process_time() - c0}}))
+print(json.dumps({{"status": r.status, "cpu": time.process_time() - c0,
+                  "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}}))
 """
 
 
@@ -345,7 +348,7 @@ def main() -> None:
         return
     if args.sample_only:
         print("| job | pairs | status | solve time wall (search CPU) (s) | fresh process wall "
-              "(CPU) (s) | peak memory of the runs so far (MiB) | designs |")
+              "(CPU) (s) | peak memory of the search process (MiB) | designs |")
         print("|---|---|---|---|---|---|---|")
         for line in sample_job_rows(Path(tempfile.mkdtemp(prefix="bench_search_"))):
             print(line, flush=True)
@@ -409,7 +412,7 @@ def main() -> None:
               f"| {status} | {nrows} | {checked} | {b} | {sp} |")
     if not args.baseline_only:
         print("\n| job | pairs | status | solve time wall (search CPU) (s) | fresh process "
-              "wall (CPU) (s) | peak memory of the runs so far (MiB) | designs |")
+              "wall (CPU) (s) | peak memory of the search process (MiB) | designs |")
         print("|---|---|---|---|---|---|---|")
         for line in sample_job_rows(tmp):
             print(line, flush=True)
