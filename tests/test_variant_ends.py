@@ -21,8 +21,9 @@ from typer.testing import CliRunner
 from stockbias.cli.app import app
 from stockbias.parts import Inventory, Resistor
 from stockbias.search import alternatives
-from stockbias.search.alternatives import _fits
-from stockbias.search.candidates import build_shelf
+from stockbias.search.alternatives import _fits, variants_of
+from stockbias.search.candidates import PARALLEL, SERIES, SINGLE, build_shelf
+from stockbias.search.deadline import Deadline
 from stockbias.search.design import design
 from tests.test_search_bounded import JOB, generated_shelf, job_for, signature
 
@@ -156,3 +157,40 @@ def test_the_shortened_list_in_json_and_on_screen(tmp_path):
     assert "values in stock" in screen.output and "up to " in screen.output
     assert "--variants checks each" in screen.output.replace("\n  ", " ")
     assert max(len(line) for line in screen.output.splitlines()) <= 80
+
+
+def _index(shelf, table, part) -> int:
+    """The candidate of ``table`` built from the same stock line(s) as ``part``."""
+    line = {r.part_id: i for i, r in enumerate(shelf.lines)}
+    ids = [line[p.part_id] for p in part.parts]
+    code = {"single": SINGLE, "series": SERIES, "parallel": PARALLEL}[part.arrangement]
+    a, b = (ids[0], -1) if len(ids) == 1 else (min(ids), max(ids))
+    hit = np.flatnonzero((table.arrangement == code) & (table.line_a == a)
+                         & (table.line_b == b))
+    assert hit.size == 1
+    return int(hit[0])
+
+
+def test_a_listing_the_deadline_cut_checks_no_end_and_claims_no_bound():
+    inv = generated_shelf(30, 2, seed=5)
+    job = _pairs_job(top=1)
+    d = design(job, inv).designs[0]
+    shelf = build_shelf(job, inv)
+    cands = {r: shelf.candidates(r == "RE", True) for r in ("R1", "R2", "RE", "RC")}
+    core = {r: _index(shelf, cands[r], p) for r, p in d.check.parts.items() if r != "RC"}
+    args = (job, job.stage, shelf, d.topology, d.transistor, cands, core,
+            tuple(job.search.objectives))
+    whole = variants_of(*args, every=True)
+    ends = variants_of(*args, every=False)
+    assert ends.screened.size > alternatives.FULL_LIST and not ends.complete
+    vals = sorted(cands["RC"].value[[v.index for v in whole.variants]])
+    got = sorted(cands["RC"].value[[v.index for v in ends.variants]])
+    # source: the complete listing of the same network (every screened value checked)
+    assert (got[0], got[-1]) == (vals[0], vals[-1])
+    # a deadline already past: nothing is checked, and the listing is not a bounded range
+    cut = variants_of(*args, deadline=Deadline.after_checks(1), every=False)
+    assert cut.variants == [] and cut.complete
+    # a deadline that passes after the low end's first block: the high end is not sought
+    late = variants_of(*args, deadline=Deadline.after_checks(2), every=False)
+    assert late.complete and late.variants
+    assert max(cands["RC"].value[[v.index for v in late.variants]]) < vals[-1]

@@ -232,8 +232,10 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
             parts.append(check(fj[a:a + block]))
     else:
         # the ends of the range: blocks growing from each end until one holds a variant
-        lo_at, hi_at, size = 0, fj.size, 16
-        while lo_at < hi_at and not (size > 16 and cut()):
+        # (none past the limit: a listing the deadline cut is reported by the caller, as
+        # the full listing's is, and its count is of the values listed)
+        lo_at, hi_at, size, stopped = 0, fj.size, 16, False
+        while lo_at < hi_at and not (stopped := cut()):
             got = check(fj[lo_at:min(lo_at + size, hi_at)])
             lo_at = min(lo_at + size, hi_at)
             size *= 2
@@ -241,14 +243,14 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
                 parts.append(got)
                 break
         size = 16
-        while parts and lo_at < hi_at and not (size > 16 and cut()):
+        while parts and lo_at < hi_at and not (stopped := cut()):
             got = check(fj[max(hi_at - size, lo_at):hi_at])
             hi_at = max(hi_at - size, lo_at)
             size *= 2
             if got["fj"].size:
                 parts.append(got)
                 break
-        complete = lo_at >= hi_at      # the scans met: every candidate was checked
+        complete = lo_at >= hi_at or stopped    # the scans met: every candidate checked
     fj = np.concatenate([p["fj"] for p in parts]) if parts else np.zeros(0, dtype=np.int64)
     if fj.size == 0:
         return VariantList(free, [], complete, screened)
