@@ -212,6 +212,9 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
     Returns
     -------
     ConsolidateResult
+        or, when a stage states ``yield_min``, the
+        :class:`~stockbias.search.yield_board_result.YieldBoardResult` of
+        :func:`~stockbias.search.yield_board.yield_consolidate`.
     """
     if any(s.target.yield_min is not None for s in job.stages):
         # stages with a yield target are judged by Monte Carlo (a YieldBoardResult)
