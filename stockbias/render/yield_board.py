@@ -78,9 +78,11 @@ def _evidence(console: Console, result) -> None:
     s = result.stats
     boxes = "; ".join(f"±{3 * b['resistor_factor']:g}σ resistors, {100 * b['range_fraction']:g} "
                       f"% of hFE/VBE ranges: {b['boards']}" for b in s["boxes"])
+    mixed = s.get("candidate_boards_mixed", 0)
     console.print(console_text(
-        f"Candidates: {s['candidate_boards']} distinct boards ({s['stage_designs']} stage "
-        f"designs) from the worst-case board search on {len(s['boxes'])} boxes ({boxes})."))
+        f"Candidates: {s['candidate_boards']} distinct boards from {s['stage_designs']} stage "
+        f"designs: {s['candidate_boards'] - mixed} from the worst-case board search on "
+        f"{len(s['boxes'])} boxes ({boxes}), {mixed} with their stages mixed."))
     line = (f"Evidence: {s['proven_without_sampling']} stage designs shown without sampling "
             "(found on the job's box: yield 1; on a sub-box: at least its probability); "
             f"{s['sampled_stage_designs']} sampled")

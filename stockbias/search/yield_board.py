@@ -17,7 +17,9 @@ Candidates
     on the job's box and on the sub-boxes of :data:`.yield_search.LEVELS` (the shelf from
     :func:`.yield_search.shrunk_inventory`), with every stage held to the worst case on its
     box; the ranked boards of every box are the candidates (consolidation ranks one board
-    per box).  Each candidate's parts are resolved again on the real shelf.
+    per box), and so are boards mixing the stages of two of them where the shared stock
+    covers the build (:func:`_mix_stages`).  Each candidate's parts are resolved again on
+    the real shelf.
 
 Evidence per stage design (the screens and the sampling of :mod:`.yield_evidence`)
     * found in a board of the job's own box: passes every worst-case corner, yield 1;
@@ -76,6 +78,8 @@ PER_LEVEL = 4
 #: resistors, 90 % of the hFE and VBE ranges), since a board (a consolidation above all,
 #: one board per box) needs more room to find candidates whose stages are all cheaper.
 BOARD_LEVELS: tuple[tuple[float, float], ...] = (*LEVELS, (1.0 / 3, 0.9))
+#: Candidate boards (the best by the objectives) whose stages are mixed into more candidates.
+MIX_BOARDS = 24
 
 
 def without_yield(job: Job) -> Job:
@@ -109,6 +113,7 @@ class _Board:
     level: int
     keys: tuple[tuple, ...]
     rank_key: tuple[float, ...]
+    mixed: bool = False
 
 
 def part_text(p: ResolvedResistor) -> str:
@@ -186,34 +191,43 @@ def _collect(job: Job, real: Job, inventory: Inventory,
             bkey = tuple(keys)
             if bkey not in boards:
                 boards[bkey] = _Board(b, level, bkey, _objective_key(b, objectives, level))
-    if sub_box:
-        _mix_worst_case_stages(real, inventory, boards, objectives)
+    _mix_stages(real, inventory, boards, designs, objectives, limit_transistors=sub_box)
     return sorted(boards.values(), key=lambda x: x.rank_key), designs
 
 
-def _mix_worst_case_stages(real: Job, inventory: Inventory, boards: dict[tuple, _Board],
-                           objectives: tuple[str, ...]) -> None:
-    """More candidates where some stages have no yield target: a sub-box board with those
-    stages taken from a board of the job's own box (which pass every worst-case corner),
-    kept when the shared stock still covers the build.  The sub-box searches relax every
-    stage alike, so without this a stage that must pass the worst case would often sink
-    an otherwise cheaper board."""
-    fixed = [si for si, st in enumerate(real.stages) if st.target.yield_min is None]
-    if not fixed:
+def _mix_stages(real: Job, inventory: Inventory, boards: dict[tuple, _Board],
+                designs: dict[tuple, _StageDesign], objectives: tuple[str, ...],
+                limit_transistors: bool) -> None:
+    """More candidates from the same stage designs: boards whose stages come from two
+    candidate boards (every split between them up to four stages, one stage swapped beyond),
+    kept when the shared stock still covers the build.  Each stage is still judged on its
+    own, so this adds no claim; it lets a cheap stage found on one box meet a stage that
+    must pass the worst case (no ``yield_min``: only designs from the job's own box) or a
+    cheaper stage found on another box."""
+    n = len(real.stages)
+    if n < 2:
         return
-    own = [b for b in boards.values() if b.level == 0]
-    for b in [b for b in boards.values() if b.level > 0]:
-        for w in own:
-            keys = tuple(w.keys[si] if si in fixed else k for si, k in enumerate(b.keys))
-            if keys in boards:
+    base = sorted(boards.values(), key=lambda x: x.rank_key)[:MIX_BOARDS]
+    masks = range(1, 2 ** n - 1) if n <= 4 else [1 << si for si in range(n)]
+    for a in base:
+        for b in base:
+            if a is b:
                 continue
-            stages = [w.board.stages[si] if si in fixed else s
-                      for si, s in enumerate(b.board.stages)]
-            mixed = _board_design(0, stages, real.build.quantity, inventory)
-            if any(row["short"] for row in mixed.bom):
-                continue
-            boards[keys] = _Board(mixed, b.level, keys, _objective_key(mixed, objectives,
-                                                                       b.level))
+            for mask in masks:
+                pick = [b if mask >> si & 1 else a for si in range(n)]
+                keys = tuple(p.keys[si] for si, p in enumerate(pick))
+                if keys in boards or any(
+                        real.stages[si].target.yield_min is None
+                        and designs[k].kind != "worst case" for si, k in enumerate(keys)):
+                    continue
+                stages = [p.board.stages[si] for si, p in enumerate(pick)]
+                mixed = _board_design(0, stages, real.build.quantity, inventory)
+                if any(row["short"] and (limit_transistors or row["kind"] == "resistor")
+                       for row in mixed.bom):
+                    continue
+                level = max(p.level for p in pick)
+                boards[keys] = _Board(mixed, level, keys,
+                                      _objective_key(mixed, objectives, level), True)
 
 
 def _search_boxes(search: Callable[[Inventory, float], Any], inventory: Inventory,
@@ -363,7 +377,8 @@ def _finish(kind: str, job: Job, worst: Any, chosen: list[YieldBoard],
             jstats: dict[str, object], objectives: tuple[str, ...], samples: int, ex: Any,
             t0: float, n_levels: int) -> YieldBoardResult:
     stats: dict[str, object] = {
-        "boxes": run, "candidate_boards": len(boards), "stage_designs": len(designs),
+        "boxes": run, "candidate_boards": len(boards),
+        "candidate_boards_mixed": sum(b.mixed for b in boards), "stage_designs": len(designs),
         "proven_without_sampling": sum(d.kind in ("worst case", "sub-box")
                                        for d in designs.values()),
         **jstats, "executor": getattr(ex, "name", "this process")}
