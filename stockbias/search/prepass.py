@@ -83,12 +83,14 @@ __all__ = [
     "Rows",
     "corners",
     "cross_product_check",
+    "design_spec",
     "enumerate_cores",
     "free_role_bounds",
     "free_role_keep",
     "free_role_range",
     "ie_terms",
     "materialise",
+    "nominal_check",
     "row_cuts",
     "row_slices",
     "vertex_check",
@@ -574,6 +576,44 @@ def rc_allowed_power(job: Job, stage: Stage, rating: np.ndarray) -> np.ndarray:
                                   lim.derating_knee_c, lim.derating_zero_c)
 
 
+def design_spec(job: Job, network: str, dev: DeviceSpec,
+                roles: dict[str, tuple[RoleCandidates, np.ndarray]], sl: slice
+                ) -> tuple[StageSpec, dict[str, np.ndarray]]:
+    """The :class:`StageSpec` of the designs ``sl`` of ``roles`` (role → (candidate table,
+    index array)), and each role's power rating at 70 °C (W)."""
+    res, ratings = {}, {}
+    for role, (c, ix) in roles.items():
+        i = ix[sl]
+        res[role] = ResistorSpec(c.value[i], c.tol[i], c.drift[i], band=(c.low[i], c.high[i]))
+        ratings[role] = c.rating[i]
+    spec = StageSpec(network=get_network(network), resistors=res, device=dev,
+                     vcc=job.supply.volts, vcc_tol=job.supply.tolerance_pct / 100,
+                     vee=job.supply.negative_volts, vee_tol=job.supply.vee_tolerance_pct / 100,
+                     ambient_min_c=job.environment.ambient_min_c,
+                     ambient_max_c=job.environment.ambient_max_c, model=job.search.model,
+                     load=job.small_signal.load, re_bypassed=job.small_signal.re_bypassed)
+    return spec, ratings
+
+
+def nominal_check(job: Job, stage: Stage, network: str, q: Transistor,
+                  roles: dict[str, tuple[RoleCandidates, np.ndarray]],
+                  chunk: int = 2048) -> np.ndarray:
+    """The limits set at the nominal point (``gain_nominal_min``/``max``) for arrays of full
+    designs: the same limits, figures and margins :func:`vertex_check` evaluates, at one point
+    instead of every vertex.  False proves the design fails (``vertex_check`` fails it too)."""
+    n = next(iter(roles.values()))[1].size
+    ok = np.ones(n, dtype=bool)
+    dev = DeviceSpec.from_transistor(q)
+    for s0 in range(0, n, chunk):
+        sl = slice(s0, min(n, s0 + chunk))
+        spec, ratings = design_spec(job, network, dev, roles, sl)
+        limits = [lim for lim in stage_limits(job, stage, spec, ratings)
+                  if lim.figure is not None]
+        for mg in evaluate_limits(limits, {}, {}).values():
+            ok[sl] &= mg >= 0
+    return ok
+
+
 def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
                  roles: dict[str, tuple[RoleCandidates, np.ndarray]],
                  chunk: int = 2048) -> dict[str, np.ndarray]:
@@ -585,23 +625,12 @@ def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
     bounds of the refined bounds that ``check`` reports, so ``ok`` False is a proof of
     failure, and ``ok`` True is confirmed by re-verification.
     """
-    net = get_network(network)
     n = next(iter(roles.values()))[1].size
     out: dict[str, list[np.ndarray]] = {}
     dev = DeviceSpec.from_transistor(q)
     for s0 in range(0, n, chunk):
         sl = slice(s0, min(n, s0 + chunk))
-        res, ratings = {}, {}
-        for role, (c, ix) in roles.items():
-            i = ix[sl]
-            res[role] = ResistorSpec(c.value[i], c.tol[i], c.drift[i], band=(c.low[i], c.high[i]))
-            ratings[role] = c.rating[i]
-        spec = StageSpec(network=net, resistors=res, device=dev, vcc=job.supply.volts,
-                         vcc_tol=job.supply.tolerance_pct / 100, vee=job.supply.negative_volts,
-                         vee_tol=job.supply.vee_tolerance_pct / 100,
-                         ambient_min_c=job.environment.ambient_min_c,
-                         ambient_max_c=job.environment.ambient_max_c, model=job.search.model,
-                         load=job.small_signal.load, re_bypassed=job.small_signal.re_bypassed)
+        spec, ratings = design_spec(job, network, dev, roles, sl)
         point, _bits = vertex_points(spec)
         evs = [evaluate(spec, point)]
         if not math.isnan(float(np.asarray(dev.theta_ja, dtype=float))):
