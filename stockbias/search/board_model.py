@@ -309,7 +309,14 @@ class BoardModel:
             solver.parameters.random_seed = seed
             solver.parameters.max_time_in_seconds = max(deadline - time.monotonic(), 0.05)
             # core-based lower bounds suit sums of literals; cost has large coefficients
-            solver.parameters.optimize_with_core = step[0] in CORE_OBJECTIVES
+            core = step[0] in CORE_OBJECTIVES
+            solver.parameters.optimize_with_core = core
+            if core:
+                # the count steps are sums of literals over a set-cover-like model: the LP
+                # relaxation only slows the core search (8-stage consolidation: 4.6 s CPU
+                # → 0.8 s; benchmarks/RESULTS_board.md), and so does minimising each core
+                solver.parameters.linearization_level = 0
+                solver.parameters.core_minimization_level = 0
             for k, v in SOLVER_PARAMS.items():
                 setattr(solver.parameters, k, v)
             t_step = time.monotonic()
