@@ -1,0 +1,100 @@
+"""The board search's shortcuts lose nothing.
+
+* ``keep_purpose.screen_options`` takes the nominal-point limits (the gain band an existing
+  stage sets) before the vertex check: its survivors must be exactly the designs of the
+  stage's options that ``vertex_check`` passes when it is run on every design (no
+  shortcut), and the gain band must actually bind in the case.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+
+from stockbias.analysis.check import analyze_stage
+from stockbias.assign import ResolvedResistor
+from stockbias.job import parse_job
+from stockbias.parts import Inventory, Resistor, Transistor
+from stockbias.search.board_options import stage_options
+from stockbias.search.candidates import build_shelf
+from stockbias.search.keep_purpose import screen_options
+from stockbias.search.prepass import nominal_check, vertex_check
+from stockbias.topologies import get_network
+
+# invented test data: a 12 V stage and an E12-like shelf of 5 % and 1 % lines
+JOB = """
+[supply]
+volts = 12
+tolerance_pct = 5
+[target]
+ic = "1.2 mA"
+ic_window_pct = 30
+vce_min = "2 V"
+[environment]
+ambient_min_c = 0
+ambient_max_c = 55
+[small_signal]
+load = "22k"
+re_bypassed = false
+[build]
+quantity = 5
+"""
+VALUES = [150.0, 330.0, 470.0, 680.0, 1000.0, 1500.0, 2200.0, 3300.0, 4700.0, 6800.0,
+          10e3, 15e3, 22e3, 33e3, 47e3, 68e3, 100e3]
+Q = Transistor("QA", "NPN", 110.0, 330.0, 40.0, 0.2, 0.5, vbe_min=0.6, vbe_max=0.7, qty=50,
+               theta_ja=250.0)
+
+
+def _inventory() -> Inventory:
+    rng = np.random.default_rng(11)
+    lines = tuple(Resistor(f"L{i}", v, float(rng.choice([1.0, 5.0])), 0.25, 100.0, 100, 0.01,
+                           line=i + 2) for i, v in enumerate(VALUES))
+    return Inventory("<lines>", lines, (Q,))
+
+
+def _designs(g) -> dict[str, np.ndarray]:
+    """Every design of every option, as role → candidate index arrays."""
+    rows = [d for k in range(g.size) for d in g.designs(k)]
+    return {r: np.array([d[r] for d in rows], dtype=np.int64) for r in rows[0]}
+
+
+def test_screen_options_nominal_first_equals_vertex_check_of_every_design() -> None:
+    job = parse_job(JOB, "<job>")
+    inv = _inventory()
+    shelf = build_shelf(job, inv, pairs=False)
+    net = get_network("divider")
+    cands = {r.name: shelf.candidates(r.optional, False) for r in net.roles}
+    opts = stage_options(job, job.stage, 0, "divider", Q, cands)
+    every = _designs(opts)
+    # today's design: the first design of the options that passes the full check; its
+    # nominal |gain| ±10 % is the band (as consolidation holds it)
+    ok_all = vertex_check(job, job.stage, "divider", Q,
+                          {r: (cands[r], v) for r, v in every.items()})["ok"]
+    assert ok_all.any()
+    stage = job.stage
+    for i in np.flatnonzero(ok_all)[:20]:
+        parts = {r: ResolvedResistor.of_part(r, shelf.lines[int(cands[r].line_a[v[i]])])
+                 for r, v in every.items()}
+        ref = analyze_stage(job, job.stage, parts, Q, samples=0)
+        if ref.ok:
+            g = abs(float(ref.purpose["gain"].nominal))
+            stage = replace(job.stage, target=replace(job.stage.target,
+                                                      gain_nominal_min=0.9 * g,
+                                                      gain_nominal_max=1.1 * g))
+            break
+    assert stage is not job.stage, "no passing design to take as today's"
+    held = replace(job, stages=(stage,))
+    screened = screen_options(held, stage, opts)
+    kept = set(zip(*(v.tolist() for v in _designs(screened).values()), strict=True)) \
+        if screened.size else set()
+    roles = {r: (cands[r], v) for r, v in every.items()}
+    direct = vertex_check(held, stage, "divider", Q, roles)["ok"]
+    expect = {d for d, ok in zip(zip(*(v.tolist() for v in every.values()), strict=True),
+                                 direct.tolist(), strict=True) if ok}
+    assert expect, "the band must leave designs to be a test"
+    assert kept == expect
+    # the band binds: the nominal shortcut rejects designs the vertices alone would pass
+    nominal = nominal_check(held, stage, "divider", Q, roles)
+    assert (~nominal & ok_all).any()
+    assert not (direct & ~nominal).any()        # never keeps what the nominal check drops
