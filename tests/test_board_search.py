@@ -352,3 +352,32 @@ def test_nominal_gain_band_matches_exhaustive(seed, n_lines, n_q, obj, stages):
     for s, g in zip(d.stages, gains, strict=True):
         assert 1.3 * g * (1 - 1e-9) <= abs(s.check.purpose["gain"].nominal) <= 2 * g * (1 + 1e-9)
     _recheck(held, d)
+
+
+# The exponential model: board options come from the same cuts as the single-stage search
+# (no assignment limit) and are screened at every vertex; the board optimum must equal the
+# exhaustive enumeration above, which evaluates every assignment with the exponential model.
+EXP_CASES = [
+    (1, 8, 2, 5, 0, TWO, (25, 25)),
+    (7, 8, 1, 5, 1, SAME, (0, 50)),
+]
+
+
+@pytest.mark.parametrize("case", EXP_CASES, ids=[f"exp-seed{c[0]}-obj{c[4]}" for c in EXP_CASES])
+def test_exponential_board_matches_exhaustive(case):
+    seed, n_lines, n_q, build, obj, stages, temps = case
+    inv = _shelf(seed, n_lines, n_q, build)
+    job = _board(OBJECTIVE_SETS[obj], build, stages, temps)
+    job = replace(job, search=replace(job.search, model="exponential"))
+    expected, _combo, _ = _exhaustive(job, inv)
+    assert expected is not None                     # these cases are chosen feasible
+    result = design_board(job, inv, top=1)
+    assert result.status == "optimal"
+    d = result.designs[0]
+    # source: the exhaustive enumeration (exponential model at every vertex, then
+    # analyze_stage), exact integer vectors
+    assert _key(job.search.objectives, build, _board_of(d)) == expected
+    assert _reported(job, d) == expected
+    for s in d.stages:
+        assert s.check.ok and s.check.model == "exponential"
+    _recheck(job, d)

@@ -4,10 +4,14 @@
   stage sets) before the vertex check: its survivors must be exactly the designs of the
   stage's options that ``vertex_check`` passes when it is run on every design (no
   shortcut), and the gain band must actually bind in the case.
+* With ``model = "exponential"`` a stage's options come from the same cuts as the
+  single-stage search (no assignment limit): they must hold exactly the designs that pass
+  every vertex among every assignment of the stock lines (enumerated here).
 """
 
 from __future__ import annotations
 
+import itertools
 from dataclasses import replace
 
 import numpy as np
@@ -98,3 +102,48 @@ def test_screen_options_nominal_first_equals_vertex_check_of_every_design() -> N
     nominal = nominal_check(held, stage, "divider", Q, roles)
     assert (~nominal & ok_all).any()
     assert not (direct & ~nominal).any()        # never keeps what the nominal check drops
+
+
+def _exp_job(extra: str = "") -> object:
+    job = parse_job(JOB + '[search]\nmodel = "exponential"\n' + extra, "<job>")
+    assert job.search.model == "exponential"
+    return job
+
+
+def test_exponential_options_are_exactly_the_vertex_feasible_assignments() -> None:
+    job = _exp_job()
+    lines = _inventory().resistors[3:13]            # 10 lines: 10⁴ assignments
+    inv = Inventory("<lines>", lines, (Q,))
+    shelf = build_shelf(job, inv, pairs=False)
+    net = get_network("divider")
+    cands = {r.name: shelf.candidates(r.optional, False) for r in net.roles}
+    opts = stage_options(job, job.stage, 0, "divider", Q, cands)
+    offered = set(zip(*(v.tolist() for v in _designs(opts).values()), strict=True))
+    roles = tuple(_designs(opts))
+    # reference: every assignment of the candidate tables, checked at every vertex
+    grid = np.array(list(itertools.product(*(range(len(cands[r])) for r in roles))))
+    ok = vertex_check(job, job.stage, "divider", Q,
+                      {r: (cands[r], grid[:, k]) for k, r in enumerate(roles)})["ok"]
+    expect = {tuple(int(x) for x in grid[i]) for i in np.flatnonzero(ok)}
+    assert expect, "the case must have feasible designs to be a test"
+    assert offered == expect
+    assert len(grid) > 20 * len(expect)             # and the case prunes
+
+
+def test_exponential_options_have_no_assignment_limit() -> None:
+    """24 lines: 331,776 assignments per transistor, above the 200,000 the enumeration took;
+    the cuts list the options, and every one passes the vertex check."""
+    job = _exp_job()
+    rng = np.random.default_rng(3)
+    values = [100.0 * 10 ** (i / 8) for i in range(24)]      # 100 Ω … 75 kΩ, 8 per decade
+    lines = tuple(Resistor(f"M{i}", round(v, 1), float(rng.choice([1.0, 5.0])), 0.25, 100.0,
+                           100, 0.01, line=i + 2) for i, v in enumerate(values))
+    inv = Inventory("<lines>", lines, (Q,))
+    shelf = build_shelf(job, inv, pairs=False)
+    cands = {r.name: shelf.candidates(r.optional, False) for r in get_network("divider").roles}
+    assert np.prod([len(c) for c in cands.values()]) > 200_000
+    opts = stage_options(job, job.stage, 0, "divider", Q, cands)
+    every = _designs(opts)
+    assert 0 < len(every["R1"]) < 20_000
+    assert vertex_check(job, job.stage, "divider", Q,
+                        {r: (cands[r], v) for r, v in every.items()})["ok"].all()

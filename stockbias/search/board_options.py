@@ -22,11 +22,18 @@ Screens, in order, each exact at a vertex:
 What is not screened here (transistor dissipation, junction temperature, gain, the
 interior peaks of products) is left to the full check of each chosen stage; a stage
 design that fails it is forbidden in the model and the board is solved again.
+
+The exponential model takes the same cuts (:func:`.prepass.row_cuts` and
+:func:`.prepass.free_role_bounds` dispatch to :mod:`.exp_cut`; the divider's one-vertex
+power screen is a constant-VBE closed form and is skipped), so no assignment limit
+applies; its options are then screened at every vertex (:func:`screen_every_vertex`),
+as the vertex check is exact for either model, when they hold at most
+``VERTEX_SCREEN_MAX`` designs.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -40,23 +47,23 @@ from .prepass import (
     PLANS,
     ROW_BUDGET,
     corners,
-    cross_product_check,
     free_role_bounds,
     free_role_keep,
     free_role_range,
     ie_terms,
     materialise,
+    nominal_check,
     rc_allowed_power,
     row_cuts,
     row_slices,
     vertex_check,
 )
 
-__all__ = ["EXPONENTIAL_MAX_PER_STAGE", "StageOptions", "stage_options"]
+__all__ = ["StageOptions", "screen_every_vertex", "stage_options"]
 
 _REL = 1e-12
-EXPONENTIAL_MAX_PER_STAGE = 200_000
-#: Options without a free role are screened at every vertex when there are at most this many.
+#: Options without a free role (and, for the exponential model, the designs of every
+#: option) are screened at every vertex when there are at most this many.
 VERTEX_SCREEN_MAX = 200_000
 
 
@@ -98,8 +105,8 @@ class StageOptions:
 def _core_power_ok(job: Job, stage: Stage, network: str, q: Transistor,
                    cands: dict[str, RoleCandidates], idx: dict[str, np.ndarray]) -> np.ndarray:
     """Divider: R1, R2, RE, supply power and supply current at one vertex (active closed
-    form)."""
-    if network != "divider":
+    form of the constant-VBE model; every option passes for the exponential model)."""
+    if network != "divider" or job.search.model != "constant_vbe":
         return np.ones(idx[PLANS[network].interval].size, dtype=bool)
     cn = corners(job, q, "divider")
     c = cands
@@ -151,8 +158,6 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
     options of the ranges done with ``complete`` False.
     """
     net = get_network(network)
-    if job.search.model == "exponential":
-        return _exponential(job, stage, stage_index, network, q, cands)
     plan = PLANS[network]
     spans = row_slices(network, cands, row_budget)
     pieces: list[dict[str, np.ndarray]] = []
@@ -195,15 +200,50 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
     row, fj = row[keep], fj[keep]
     crow, lo, hi = _runs(row, fj)
     core = {r: v[crow] for r, v in idx.items()}
-    return StageOptions(stage_index, network, q, cands, core_roles, plan.free, core,
+    opts = StageOptions(stage_index, network, q, cands, core_roles, plan.free, core,
                         lo.astype(np.int64), hi.astype(np.int64), **scan)
+    if job.search.model == "exponential" and 0 < row.size <= VERTEX_SCREEN_MAX:
+        # the exponential cuts keep more than the constant-VBE ones (their bounds are not
+        # closed forms at one vertex): the vertex check spares the board loop the rest
+        opts = screen_every_vertex(job, stage, opts)
+    return opts
 
 
-def _exponential(job: Job, stage: Stage, stage_index: int, network: str, q: Transistor,
-                 cands: dict[str, RoleCandidates]) -> StageOptions:
-    """Exponential model: the full cross product, checked at every vertex."""
-    idx, _chk, _total = cross_product_check(job, stage, network, q, cands,
-                                            EXPONENTIAL_MAX_PER_STAGE, f"stage '{stage.name}'")
-    n = next(iter(idx.values())).size
-    empty = np.full(n, -1, dtype=np.int64)
-    return StageOptions(stage_index, network, q, cands, tuple(cands), None, idx, empty, empty)
+def screen_every_vertex(job: Job, stage: Stage, g: StageOptions) -> StageOptions:
+    """Only the designs of ``g`` that pass every limit at every vertex (exact for either
+    model: :func:`.prepass.vertex_check` fails a design only at a vertex where it fails).
+
+    The limits set at the nominal point (a gain band) are taken first, at one point per
+    design (:func:`.prepass.nominal_check`, the same figures and margins), and only the
+    designs that meet them go to every vertex.
+    """
+    if g.size == 0:
+        return g
+    if g.free is None:
+        ok = _passes(job, stage, g, {r: (g.cands[r], g.core[r]) for r in g.core_roles})
+        return replace(g, core={r: v[ok] for r, v in g.core.items()}, lo=g.lo[ok],
+                       hi=g.hi[ok])
+    counts = g.hi - g.lo + 1
+    total = int(counts.sum())
+    opt = np.repeat(np.arange(g.size), counts)
+    fj = np.repeat(g.lo, counts) + np.arange(total) - np.repeat(np.cumsum(counts) - counts,
+                                                                counts)
+    roles = {r: (g.cands[r], v[opt]) for r, v in g.core.items()}
+    roles[g.free] = (g.cands[g.free], fj)
+    ok = _passes(job, stage, g, roles)
+    crow, lo, hi = _runs(opt[ok], fj[ok])
+    return replace(g, core={r: v[crow] for r, v in g.core.items()},
+                   lo=lo.astype(np.int64), hi=hi.astype(np.int64))
+
+
+def _passes(job: Job, stage: Stage, g: StageOptions,
+            roles: dict[str, tuple[RoleCandidates, np.ndarray]]) -> np.ndarray:
+    """``vertex_check``'s verdict on every design of ``roles``, the nominal-point limits
+    first (most designs of a run miss an existing stage's gain band)."""
+    pre = np.flatnonzero(nominal_check(job, stage, g.network, g.transistor, roles))
+    ok = np.zeros(next(iter(roles.values()))[1].size, dtype=bool)
+    if pre.size:
+        ok[pre] = vertex_check(job, stage, g.network, g.transistor,
+                               {r: (c, ix[pre]) for r, (c, ix) in roles.items()})["ok"]
+    return ok
+

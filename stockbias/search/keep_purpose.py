@@ -31,14 +31,11 @@ import math
 from dataclasses import dataclass, field, replace
 from typing import Any
 
-import numpy as np
-
 from ..analysis.check import CheckResult
 from ..errors import InputError
 from ..job import Job, KeepPurpose, Stage
 from ..units import format_quantity
-from .board_options import StageOptions, _runs
-from .prepass import nominal_check, vertex_check
+from .board_options import StageOptions, screen_every_vertex
 
 __all__ = [
     "DEFAULT_KEEP",
@@ -248,39 +245,10 @@ def screen_options(job: Job, stage: Stage, g: StageOptions) -> StageOptions:
     A design rejected here fails the full check (``vertex_check`` is exact at the vertex
     it names, and the nominal-gain limit is evaluated by the same code), so this removes
     nothing the verify-and-forbid loop of the board search would keep; it only spares the
-    loop a round per failing design.
+    loop a round per failing design.  The nominal-point limits are taken first
+    (:func:`.board_options.screen_every_vertex`).
     """
-    if g.size == 0:
-        return g
-    if g.free is None:
-        ok = _passes(job, stage, g, {r: (g.cands[r], g.core[r]) for r in g.core_roles})
-        return replace(g, core={r: v[ok] for r, v in g.core.items()}, lo=g.lo[ok],
-                       hi=g.hi[ok])
-    counts = g.hi - g.lo + 1
-    total = int(counts.sum())
-    opt = np.repeat(np.arange(g.size), counts)
-    fj = np.repeat(g.lo, counts) + np.arange(total) - np.repeat(np.cumsum(counts) - counts,
-                                                                counts)
-    roles = {r: (g.cands[r], v[opt]) for r, v in g.core.items()}
-    roles[g.free] = (g.cands[g.free], fj)
-    ok = _passes(job, stage, g, roles)
-    crow, lo, hi = _runs(opt[ok], fj[ok])
-    return replace(g, core={r: v[crow] for r, v in g.core.items()},
-                   lo=lo.astype(np.int64), hi=hi.astype(np.int64))
-
-
-def _passes(job: Job, stage: Stage, g: StageOptions,
-            roles: dict[str, tuple[Any, np.ndarray]]) -> np.ndarray:
-    """``vertex_check``'s verdict on every design of ``roles``, the nominal-point limits
-    first: they take one point per design (the same figures and margins ``vertex_check``
-    evaluates), most designs miss the gain band, and only the rest are taken to every
-    vertex."""
-    pre = np.flatnonzero(nominal_check(job, stage, g.network, g.transistor, roles))
-    ok = np.zeros(next(iter(roles.values()))[1].size, dtype=bool)
-    if pre.size:
-        ok[pre] = vertex_check(job, stage, g.network, g.transistor,
-                               {r: (c, ix[pre]) for r, (c, ix) in roles.items()})["ok"]
-    return ok
+    return screen_every_vertex(job, stage, g)
 
 
 def change_text(before: float | None, after: float | None, unit: str) -> str:

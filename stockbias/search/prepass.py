@@ -82,7 +82,6 @@ __all__ = [
     "Plan",
     "Rows",
     "corners",
-    "cross_product_check",
     "design_spec",
     "enumerate_cores",
     "free_role_bounds",
@@ -666,28 +665,3 @@ def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
         out.setdefault("vce_min", []).append(low["vce"])
     return {k: np.concatenate(v) if v else np.zeros(0) for k, v in out.items()}
 
-
-def cross_product_check(job: Job, stage: Stage, network: str, q: Transistor,
-                        cands: dict[str, RoleCandidates], limit: int, what: str
-                        ) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray], int]:
-    """Every assignment of the roles, checked at every vertex (the board search's
-    exponential-model path; the single-stage search cuts it, :mod:`.exp_cut`): (role →
-    candidate indices of the passing designs, their :func:`vertex_check` arrays, how many
-    were checked).  ``what`` names the search in the
-    error when there are more than ``limit`` assignments."""
-    from ..errors import InputError
-
-    roles = tuple(cands)
-    sizes = [len(cands[r]) for r in roles]
-    total = int(np.prod(sizes))
-    if total > limit:
-        raise InputError(
-            f"the exponential model is searched without closed-form pruning; {what} has "
-            f"{total} assignments per transistor (limit {limit}); search with model = "
-            "\"constant_vbe\" and check the result with the exponential model",
-            column="model", text="exponential")
-    mesh = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
-    idx = {r: m.reshape(-1) for r, m in zip(roles, mesh, strict=True)}
-    chk = vertex_check(job, stage, network, q, {r: (cands[r], idx[r]) for r in roles})
-    ok = chk["ok"]
-    return {r: v[ok] for r, v in idx.items()}, {k: v[ok] for k, v in chk.items()}, total
