@@ -27,8 +27,8 @@ The exponential model takes the same cuts (:func:`.prepass.row_cuts` and
 :func:`.prepass.free_role_bounds` dispatch to :mod:`.exp_cut`; the divider's one-vertex
 power screen is a constant-VBE closed form and is skipped), so no assignment limit
 applies; its options are then screened at every vertex (:func:`screen_every_vertex`),
-as the vertex check is exact for either model, when they hold at most
-``VERTEX_SCREEN_MAX`` designs.
+as the vertex check is exact for either model, when they hold at most ``EXP_SCREEN_MAX``
+designs.
 """
 
 from __future__ import annotations
@@ -62,9 +62,12 @@ from .prepass import (
 __all__ = ["StageOptions", "screen_every_vertex", "stage_options"]
 
 _REL = 1e-12
-#: Options without a free role (and, for the exponential model, the designs of every
-#: option) are screened at every vertex when there are at most this many.
+#: Options without a free role are screened at every vertex when there are at most this many.
 VERTEX_SCREEN_MAX = 200_000
+#: The exponential model's options are screened at every vertex when their designs are at
+#: most this many (a design costs about 0.2 ms, 5 ms where θJA adds the self-heated
+#: solution; beyond it the verify-and-forbid loop of the board search does the rest).
+EXP_SCREEN_MAX = 20_000
 
 
 @dataclass
@@ -202,7 +205,7 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
     core = {r: v[crow] for r, v in idx.items()}
     opts = StageOptions(stage_index, network, q, cands, core_roles, plan.free, core,
                         lo.astype(np.int64), hi.astype(np.int64), **scan)
-    if job.search.model == "exponential" and 0 < row.size <= VERTEX_SCREEN_MAX:
+    if job.search.model == "exponential" and 0 < row.size <= EXP_SCREEN_MAX:
         # the exponential cuts keep more than the constant-VBE ones (their bounds are not
         # closed forms at one vertex): the vertex check spares the board loop the rest
         opts = screen_every_vertex(job, stage, opts)
