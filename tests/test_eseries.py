@@ -308,3 +308,16 @@ def test_array_versions_reject_what_the_scalar_rejects(bad: float) -> None:
         nearest_many([4700.0, bad], "E12")
     with pytest.raises(ValueError, match="finite and > 0"):
         smallest_series_many([bad])
+
+
+def test_both_ways_of_smallest_series_many_equal_smallest_series() -> None:
+    # source: exhaustive evaluation of the scalar smallest_series(), exact equality; the
+    # plain-Python way (short lists before numpy is loaded) and the array way
+    from stockbias.eseries import _smallest_series_arrays, _smallest_series_plain
+
+    values = [float(v) for v in np.asarray(_probe_values(), dtype=float).ravel()]
+    expected = [smallest_series(v) for v in values]
+    assert _smallest_series_plain(values, 1e-6) == expected
+    assert _smallest_series_arrays(values, 1e-6) == expected
+    with pytest.raises(ValueError, match="finite and > 0"):
+        _smallest_series_plain([4700.0, math.nan], 1e-6)
