@@ -73,7 +73,7 @@ __all__ = [
 
 Progress = Callable[[str, float], None]
 #: Boards asked of each box's board search at least (--top asks more).
-PER_LEVEL = 4
+PER_LEVEL = 3
 #: The boxes searched for candidates: the one-stage search's, and one narrower (±1σ
 #: resistors, 90 % of the hFE and VBE ranges), since a board (a consolidation above all,
 #: one board per box) needs more room to find candidates whose stages are all cheaper.
