@@ -250,8 +250,9 @@ def edge_maxima(spec: StageSpec, axes: tuple[str, ...], edge_u: np.ndarray,
         c_new = np.where(left, b - ratio * (b - a), d)
         d_new = np.where(left, c, a + ratio * (b - a))
         f_new = f(np.where(left, c_new, d_new))
-        fd = np.where(left, fc, f_new)
-        fc = np.where(left, f_new, fd)
+        # left: the new d is the old c (its value kept), the new c is evaluated; right: the
+        # new c is the old d, the new d is evaluated
+        fc, fd = np.where(left, f_new, fd), np.where(left, fc, f_new)
         c, d = c_new, d_new
     u = u0.copy()
     u[rows, j_of] = 0.5 * (a + b)
