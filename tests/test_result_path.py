@@ -65,3 +65,14 @@ def test_clean_plain_and_numpy_values() -> None:
                               "h": [1, 2]}
     out = clean(payload)
     assert type(out["c"]) is float and type(out["e"]["f"]) is int and type(out["g"]) is bool
+
+
+@pytest.mark.parametrize("peak", [0.05, 0.2, 0.5, 0.8, 0.95])
+def test_golden_maximum_finds_the_peak_on_either_side(peak: float) -> None:
+    from stockbias.analysis.box_search import golden_maximum
+
+    a, b = np.zeros(2), np.array([1.0, 2.0])
+    # expected: the vertex of −(t − peak)² (hand calculation), within the final bracket
+    # (1 or 2 × 0.618^30 wide)
+    got = golden_maximum(lambda t: -(t - peak) ** 2, a, b, iterations=30)
+    np.testing.assert_allclose(got, [peak, peak], atol=1e-5)

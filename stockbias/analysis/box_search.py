@@ -26,6 +26,7 @@ __all__ = [
     "boundary_points",
     "edge_grid",
     "edge_maxima",
+    "golden_maximum",
     "nan_low",
     "point_at_unit",
     "refine_extremes",
@@ -240,6 +241,17 @@ def edge_maxima(spec: StageSpec, axes: tuple[str, ...], edge_u: np.ndarray,
             out[sel] = nan_low(signs[sel] * q)
         return out
 
+    u = u0.copy()
+    u[rows, j_of] = golden_maximum(f, a, b, iterations)
+    return u
+
+
+def golden_maximum(f, a: np.ndarray, b: np.ndarray, iterations: int = 16) -> np.ndarray:
+    """Golden-section search for the maximum of ``f`` on each interval [a, b] at once.
+
+    ``f`` maps an array of points (one per interval) to their values.  Each iteration
+    keeps the probe on the side of the larger value and evaluates one new probe per
+    interval; returns the middle of each final bracket (width (a − b)·0.618^iterations)."""
     ratio = (np.sqrt(5.0) - 1.0) / 2.0
     c, d = b - ratio * (b - a), a + ratio * (b - a)
     fc, fd = f(c), f(d)
@@ -254,9 +266,7 @@ def edge_maxima(spec: StageSpec, axes: tuple[str, ...], edge_u: np.ndarray,
         # new c is the old d, the new d is evaluated
         fc, fd = np.where(left, f_new, fd), np.where(left, fc, f_new)
         c, d = c_new, d_new
-    u = u0.copy()
-    u[rows, j_of] = 0.5 * (a + b)
-    return u
+    return 0.5 * (a + b)
 
 
 def self_heated_tj(spec: StageSpec, axes: tuple[str, ...], u: np.ndarray) -> np.ndarray:
