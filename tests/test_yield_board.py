@@ -320,6 +320,15 @@ def test_consolidate_cli_exit_codes_and_screen(files, columns: int) -> None:
     assert bad.exit_code == 2 and "RX@first" in bad.output
 
 
+def test_consolidate_cli_report_states_the_yield_status(files, tmp_path: Path) -> None:
+    report = tmp_path / "r.html"
+    res = CliRunner().invoke(app, ["consolidate", str(files["cons"]), "-i", str(files["both"]),
+                                   "--report", str(report)])
+    assert res.exit_code == 0, res.output
+    html = report.read_text()
+    assert "judged by its yield target" in html and "time limit reached" not in html
+
+
 def test_consolidate_cli_json(files) -> None:
     js = CliRunner().invoke(app, ["consolidate", str(files["cons"]), "-i", str(files["both"]),
                                   "--json"])

@@ -151,12 +151,18 @@ def _purpose_table(title: str, rows: Sequence[tuple[str, dict, dict | None, str]
     return f"<h3>{esc(title)}</h3>" + table(header, body, numeric=(1, 2, 3, 4))
 
 
+def _status_text(result: Any) -> str:
+    """The status in words: the result's own wording where it has one (a consolidation to a
+    yield target), else the search status's."""
+    return getattr(result, "status_text", None) or STATUS_TEXT.get(result.status, result.status)
+
+
 def consolidation_section(result: Any, build: int) -> str:
     """The consolidation: status, totals, BOM before and after, the changes per stage and
     each stage's purpose today → after (a :class:`~stockbias.search.consolidate.
     ConsolidateResult`; ``build`` the build quantity)."""
     out = ["<h2>Consolidation</h2>",
-           f"<p>Status: <b>{esc(STATUS_TEXT.get(result.status, result.status))}</b> in "
+           f"<p>Status: <b>{esc(_status_text(result))}</b> in "
            f"{result.solve_seconds:.2f} s; objectives {esc(', '.join(result.objectives))}"
            + (f"; kept as they are: {esc(', '.join(result.kept))}" if result.kept else "")
            + "</p>"]

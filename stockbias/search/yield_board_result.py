@@ -143,6 +143,14 @@ class YieldBoardResult:
         return bool(self.designs)
 
     @property
+    def status_text(self) -> str:
+        """The status in words (what a report prints)."""
+        if self.designs:
+            return ("feasible (the best among the candidate boards searched, every stage "
+                    "judged by its yield target; not a proof over the whole shelf)")
+        return "unknown (no candidate board was shown to meet every stage's target)"
+
+    @property
     def after(self) -> BoardDesign | None:
         """The best board (what a consolidation's change list is written from)."""
         return self.designs[0].board if self.designs else None
