@@ -3,6 +3,11 @@
 * A search with pairs starts from κ of the same search over single parts (every
   single-part design is a design of the larger set): the designs and status equal those
   of the search with pairs started from ∞.  Expected values: the run from ∞.
+* A search with pairs whose single parts' κ lies below every design holding a pair (on
+  cost or part count, the first objective) takes the single-part search's ranking, with
+  the free role's ranges listed from the table with pairs.  Expected values: the search
+  with pairs run in full; the bound itself against a brute-force minimum over every
+  assignment with a pair (numpy, written here).
 * The interval role's candidates drawn level by level of an objective attribute give
   the same cores as listing the whole cut and filtering by the attribute.  Expected
   values: the unlevelled listing.
@@ -14,23 +19,28 @@
 from __future__ import annotations
 
 import time
+from dataclasses import replace
 
 import numpy as np
 import pytest
 
+from stockbias.job import load_job
+from stockbias.parts import Inventory, Resistor
+from stockbias.samples import sample_path
 from stockbias.search import design as design_module
-from stockbias.search.candidates import build_shelf
+from stockbias.search.candidates import SINGLE, build_shelf
+from stockbias.search.deadline import Deadline
 from stockbias.search.design import design
 from stockbias.search.model import ModelDesign
 from stockbias.search.prepass import PLANS, attribute_levels, materialise, row_cuts
 from stockbias.search.solve import fits_stock, pick_one, solve_one
+from stockbias.stock_io import read_inventory
+from stockbias.topologies import get_network
 from tests.test_search_bounded import generated_shelf, job_for, signature
 
 
 def _pairs_job(objectives: str):
     job = job_for(objectives=objectives)
-    from dataclasses import replace
-
     return replace(job, build=replace(job.build, allow_pairs=True))
 
 
@@ -198,3 +208,60 @@ def test_a_single_stage_design_does_not_load_the_solver(tmp_path):
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True).stdout.split()
     assert out == ["optimal", "5", "False", "False"]      # five ranked designs, no solver
+
+
+def _ranges(result) -> list:
+    return [d.variant_range() for d in result.designs]
+
+
+@pytest.mark.parametrize(("case", "objectives"), [
+    ((22, 2, 5), '["part_count", "cost", "ic_margin"]'),
+    ((26, 2, 2), '["part_count", "cost", "ic_margin"]'),
+    ("line-driver", None)])
+def test_pairs_ruled_out_by_the_bound_give_the_same_designs(case, objectives, monkeypatch):
+    if case == "line-driver":
+        job = load_job(sample_path("line_driver_job.toml"))
+        job = replace(job, build=replace(job.build, allow_pairs=True),
+                      search=replace(job.search, time_limit_s=600.0))
+        inv = read_inventory(sample_path("stockroom_e96_reels.csv"))
+    else:
+        job, inv = _pairs_job(objectives), generated_shelf(case[0], case[1], seed=case[2])
+    short = design(job, inv)
+    assert short.stats["pairs_ruled_out_by_bound"], "each case is one the bound settles"
+    assert any(a.startswith("pairs: every design with a series or parallel pair")
+               for a in short.assumptions)
+    monkeypatch.setattr(design_module, "_pair_floor", lambda s: None)
+    full = design(job, inv)
+    assert not full.stats["pairs_ruled_out_by_bound"]
+    assert short.status == full.status == "optimal"
+    assert signature(short) == signature(full)
+    assert _ranges(short) == _ranges(full)
+    assert [len(d.variants) for d in short.designs] == [len(d.variants) for d in full.designs]
+
+
+def test_the_pair_floor_is_the_least_design_with_a_pair():
+    rng = np.random.default_rng(4)
+    for objectives, topology in (('["cost", "part_count"]', "divider"),
+                                 ('["part_count", "cost"]', "divider"),
+                                 ('["cost", "part_count"]', "fixed_base"),
+                                 ('["part_count", "cost"]', "fixed_base")):
+        res = tuple(Resistor(f"F{i}", float(v), 1.0, 0.25, 100.0, 100,
+                             float(rng.choice([0.001, 0.004, 0.007])), line=i + 2)
+                    for i, v in enumerate(np.sort(10 ** rng.uniform(2, 5, 5))))
+        base = generated_shelf(4, 2, seed=9)
+        inv = Inventory("<floor>", res, base.transistors)
+        job = job_for(topology, objectives=objectives)
+        job = replace(job, build=replace(job.build, allow_pairs=True))
+        s = design_module._Search(job, inv, 3, Deadline(600.0), None)
+        floor = design_module._pair_floor(s)
+        col = "cost" if objectives.startswith('["cost"') else "parts"
+        # brute force over every assignment of the network's roles (an optional one may be
+        # absent) with a pair in at least one
+        roles = get_network(topology).roles
+        tabs = [s.shelf.candidates(r.optional, True) for r in roles]
+        total, any_pair = np.zeros(()), np.zeros((), dtype=bool)
+        for t in tabs:
+            total = total[..., None] + getattr(t, col)
+            any_pair = any_pair[..., None] | (t.arrangement > SINGLE)
+        q = min(round(t.unit_cost * 1e6) for t in s.transistors) if col == "cost" else 1
+        assert floor == q + int(total[any_pair].min())

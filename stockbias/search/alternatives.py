@@ -278,7 +278,7 @@ def variants_of(job, stage, shelf, network: str, transistor, cands, core: dict[s
                               for k in order], complete, screened)
 
 
-def design_variants(s, k: int, verify: bool, deadline=None
+def design_variants(s, k: int, verify: bool, deadline=None, free_table=None
                     ) -> tuple[str | None, tuple[DesignVariant, ...], int | None]:
     """The free role's variants of the network of the search ``s``'s pool design ``k``:
     (free role, variants, ``None`` when the variants are every one, else an upper bound
@@ -288,19 +288,32 @@ def design_variants(s, k: int, verify: bool, deadline=None
     fails is left out); without it a long list gives the representative and the two ends
     of the range only (:func:`variants_of` with ``every`` False), and the bound counts
     the screened candidates between the ends.  ``deadline``: see :func:`variants_of` (the
-    representative is listed whatever the deadline)."""
+    representative is listed whatever the deadline).  ``free_table`` (optional): the free
+    role's candidates to list instead of the search's own (the table with pairs, when the
+    ranking came from the search over single parts)."""
     b = s.blocks[s.pool.block[k]]
     roles = s.pool.roles[k]
-    core = {r: i for r, i in roles.items() if r != PLANS[b.network].free}
-    listing = variants_of(s.job, s.stage, s.shelf, b.network, b.transistor, b.cands, core,
+    free_name = PLANS[b.network].free
+    core = {r: i for r, i in roles.items() if r != free_name}
+    cands = b.cands
+    rep = roles.get(free_name) if free_name is not None else None
+    if free_table is not None and free_name is not None and free_name in cands:
+        cands = {**b.cands, free_name: free_table}
+        if rep is not None:
+            # the representative's place in the other table: the same line(s), arrangement
+            c0 = b.cands[free_name]
+            hit = np.flatnonzero((free_table.arrangement == c0.arrangement[rep])
+                                 & (free_table.line_a == c0.line_a[rep])
+                                 & (free_table.line_b == c0.line_b[rep]))
+            rep = int(hit[0]) if hit.size else None
+    listing = variants_of(s.job, s.stage, s.shelf, b.network, b.transistor, cands, core,
                           s.objectives, deadline, every=verify)
     free, found = listing.role, listing.variants
     if free is None:
         return None, (), None
-    rep = roles.get(free)
     out = []
     for v in found:
-        part = s.shelf.resolved(free, b.cands[free], v.index)
+        part = s.shelf.resolved(free, cands[free], v.index)
         if part is None:
             continue
         verified: bool | None = None
@@ -320,11 +333,11 @@ def design_variants(s, k: int, verify: bool, deadline=None
         out.append(DesignVariant(part=part, representative=v.index == rep, verified=verified,
                                  cost_micro=v.cost_micro, vce_min=v.vce_min,
                                  ic_margin=v.ic_margin))
-    if not any(v.representative for v in out) and rep is not None:
+    if not any(v.representative for v in out) and roles.get(free) is not None:
         # the verified representative always heads its own list (a screen above that is
         # stricter than the full check in some corner case must not hide it)
         res = s.verify(k)
-        part = s.shelf.resolved(free, b.cands[free], rep)
+        part = s.shelf.resolved(free, b.cands[free], roles[free])
         if res is not None and part is not None:
             bound = res.worst.bounds.get("vce")
             vce = bound.min if bound is not None else 0.0

@@ -60,8 +60,10 @@ import numpy as np
 from ..analysis.check import CheckResult, analyze_stage, collect_assumptions
 from ..job import Job
 from ..parts import Inventory, id_key
+from ..topologies import get_network
 from .alternatives import design_variants, network_key, rank_networks
 from .candidates import (
+    SINGLE,
     Shelf,
     build_shelf,
     micro,
@@ -142,6 +144,8 @@ class _Search(RowScan):
         self._network_of: dict[int, tuple] = {}
         self._stock_ok: dict[int, bool] = {}
         self.pair_roles_limited: list[str] = []
+        #: the complete search over single parts that seeded this one (pairs on)
+        self.single_search: _Search | None = None
         self.timed_out = False
         self.coverage = Coverage(len(self.transistors))
         #: the longest full check so far, s (a cut run starts no check it cannot finish)
@@ -699,7 +703,21 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
         deadline = Deadline(limit)
     # the search leaves a tenth of the limit to rank, re-verify and explain what it found
     s = _Search(job, inventory, top, deadline.share(0.9), progress, row_budget)
-    done, bound = s.run(_single_part_bound(s, inventory, top, deadline, row_budget))
+    seed = _single_part_bound(s, inventory, top, deadline, row_budget)
+    floor = _pair_floor(s) if seed is not None and s.single_search is not None else None
+    pair_search, free_tables = s, None
+    if floor is not None and floor > int(seed[0]):
+        # no design holding a pair can rank: the single-part search is the whole answer
+        # (its free role still listed with pairs)
+        s = s.single_search
+        s.deadline = pair_search.deadline      # the ranking's share, not the seed's
+        done, bound = "complete", {}
+        free_tables = {n: pair_search.shelf.candidates(
+            get_network(n).role(PLANS[n].free).optional, True)
+            for n in s.networks if PLANS[n].free is not None}
+    else:
+        floor = None
+        done, bound = s.run(seed)
     pool_keys = np.stack(s.pool.keys) if s.pool.keys else np.zeros((0, len(s.objectives)))
     kappa = s.kappa()
     if len(pool_keys):
@@ -766,7 +784,9 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
         vals = {part.value_ohm for p in parts.values() for part in p.parts}
         lines = {part.part_id for p in parts.values() for part in p.parts}
         cost = b.transistor.unit_cost + sum(p.unit_cost for p in parts.values())
-        free_role, variants, at_most = design_variants(s, k, verify_variants, deadline)
+        free_role, variants, at_most = design_variants(
+            s, k, verify_variants, deadline,
+            None if free_tables is None else free_tables.get(b.network))
         designs.append(Design(
             rank=rank, topology=b.network, transistor=b.transistor, check=res,
             free_role=free_role, variants=variants, variants_at_most=at_most,
@@ -776,9 +796,12 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
             distinct_values=len(vals), bom_lines=len(lines) + 1, ic_margin=s.pool.margin[k]))
     elapsed = time.monotonic() - t0
     stats = dict(s.stats)
+    if floor is not None:
+        stats["single_part_bound"] = 1
     stats.update({"networks": s.networks, "transistors": [q.part_id for q in s.transistors],
                   "resistor_lines": len(s.shelf.lines),
-                  "candidates_per_role": len(s.shelf.with_pairs if s.pairs else s.shelf.single),
+                  "candidates_per_role": len(s.shelf.with_pairs if pair_search.pairs
+                                             else s.shelf.single),
                   "model_designs": len(mdesigns),
                   "rejected_on_verification": s.rejected_on_verification})
     result = DesignResult(status=status, solve_seconds=elapsed, designs=designs,
@@ -786,6 +809,19 @@ def design(job: Job, inventory: Inventory, *, top: int | None = None,
                           excluded_transistors=[{"part_id": q.part_id, "reason": why}
                                                 for q, why in s.excluded])
     result.assumptions = _assumptions(job, designs)
+    stats["pairs_ruled_out_by_bound"] = floor is not None
+    if floor is not None:
+        first = s.objectives[0]
+        unit = (lambda x: f"{x / 1e6:g} per board") if first == "cost" else (
+            lambda x: f"{x} parts")
+        k = s.top
+        nth = f"{k}{'th' if 10 <= k % 100 <= 20 else {1: 'st', 2: 'nd', 3: 'rd'}.get(k % 10, 'th')}"
+        result.assumptions.append(
+            f"pairs: every design with a series or parallel pair has {first} at least "
+            f"{unit(floor)}, above the {nth} best single-part network's "
+            f"{unit(int(seed[0]))}, so none can rank: the ranking is that of single parts "
+            f"(the free role's ranges include pairs) and the status holds for every design "
+            "with pairs")
     for net_name in s.pair_roles_limited:
         plan = PLANS[net_name]
         result.assumptions.append(
@@ -835,13 +871,43 @@ def _single_part_bound(s: _Search, inventory: Inventory, top: int, deadline: Dea
         return None
     first = _Search(s.job, inventory, top, deadline.share(0.4), None, row_budget,
                     shelf=s.shelf, pairs=False, checks=s.checks)
-    first.run()
+    first_done, _ = first.run()
     kappa = first.kappa()
+    # kept for the caller: a complete search over single parts can be the whole answer
+    s.single_search = first if first_done == "complete" else None
     for name in ("cores", "designs_vertex_checked", "verified"):
         s.stats[name] += first.stats[name]           # the work of both searches
     found = bool(np.all(kappa < _BIG))
     s.stats["single_part_bound"] = int(found)      # 1: the search with pairs started from it
     return kappa if found else None
+
+
+def _pair_floor(s: _Search) -> int | None:
+    """With cost or part count as the first objective, a lower bound on it over every
+    design that holds a series or parallel pair in any role (None otherwise).
+
+    A design is a transistor and one candidate per role; its cost (part count) is the
+    sum of theirs.  With m_r the least over role r's single parts (0 for an optional
+    role, which may be absent) and p the least over every pair, a design with a pair in
+    role j has at least q + Σ m_r + (p − m_j), q the least over the usable transistors
+    (1 part each).  Proven for every network of the stage; the caller compares it with
+    the first component of κ from the single parts: above it (strictly), no design with
+    a pair can rank in the top K, whatever the roles the search with pairs would cross.
+    """
+    col = {"cost": "cost", "part_count": "parts"}.get(s.objectives[0])
+    wp = s.shelf.with_pairs
+    if col is None or wp is None or not s.transistors or not len(s.shelf.single):
+        return None
+    paired = getattr(wp, col)[wp.arrangement > SINGLE]
+    if paired.size == 0:
+        return None
+    m, p = int(getattr(s.shelf.single, col).min()), int(paired.min())
+    q = min(micro(t.unit_cost) for t in s.transistors) if col == "cost" else 1
+    floors = []
+    for net in s.networks:
+        mins = [0 if r.optional else m for r in get_network(net).roles]
+        floors.append(q + sum(mins) + min(p - x for x in mins))
+    return min(floors)
 
 
 def _assumptions(job: Job, designs: list[Design]) -> list[str]:
