@@ -158,6 +158,13 @@ def render_yield_board(console: Console, job: Job, result) -> None:
                                    + "; ".join(result.stats["dropped_on_final_check"])))
     if not result.designs and result.explanation:
         console.print("[bold red]No board.[/bold red] " + console_text(result.explanation))
+        ex = result.worst_case.explanation
+        if isinstance(ex, dict) and ex.get("reason"):
+            console.print(console_text(f"At the worst case: {ex['reason']}"))
+            inner = ex.get("stage_explanation") or {}
+            hint = (inner.get("relaxation") or {}).get("text") or ex.get("suggestion")
+            if hint:
+                console.print(f"[bold]What would help:[/bold] {console_text(hint)}")
     if result.assumptions:
         console.print("Assumptions: " + "; ".join(result.assumptions), style="dim",
                       markup=False)

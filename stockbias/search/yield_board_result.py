@@ -172,6 +172,7 @@ class YieldBoardResult:
                 "distinct_values": best.distinct_values, "bom_lines": best.bom_lines,
                 "changes": best.changes},
             "worst_case_status": self.worst_case.status,
+            "worst_case_explanation": self.worst_case.explanation,
             "stats": self.stats, "assumptions": self.assumptions,
             "explanation": self.explanation}
         if self.kind == "consolidate":
