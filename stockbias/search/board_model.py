@@ -28,6 +28,7 @@ import math
 import time
 from dataclasses import dataclass, field
 
+import numpy as np
 from ortools.sat.python import cp_model
 
 from .board_options import StageOptions
@@ -100,8 +101,14 @@ class BoardModel:
         q_uses: dict[str, list] = {}
         self.change_terms: list = []
         self.change_const = 0
+        # per stage: the least cost and part count over its options (stock ignored), and
+        # the cheapest option (group, option, free candidate) as a starting board
+        self.least: list[tuple[int, int]] = []
+        self.cheapest: list[tuple[int, int, int] | None] = []
         for s, st in enumerate(stages):
             stage_opts = []
+            best: tuple[int, int, int, int, int] | None = None   # cost, parts, group, k, free
+            least_parts = None
             for g in st.options:
                 gi = len(self.groups)
                 self.groups.append(g)
@@ -132,6 +139,15 @@ class BoardModel:
                         self._uses(c, i, xv, line_uses, value_uses, s)
                 cost_terms += [cst * v for cst, v in zip(core_cost, ov, strict=True)]
                 part_terms += [p * v for p, v in zip(core_parts, ov, strict=True)]
+                for k, (cst, parts, free, free_parts) in enumerate(
+                        zip(core_cost, core_parts, *self._free_least(g), strict=True)):
+                    cand = (cst + int(g.cands[g.free].cost[free]) if free >= 0 else cst,
+                            parts + (int(g.cands[g.free].parts[free]) if free >= 0 else 0),
+                            gi, k, free)
+                    if best is None or cand[:2] < best[:2]:
+                        best = cand
+                    if least_parts is None or parts + free_parts < least_parts:
+                        least_parts = parts + free_parts
                 if g.free is not None and g.size:
                     c = g.cands[g.free]
                     lo_all, hi_all = int(g.lo.min()), int(g.hi.max())
@@ -156,6 +172,8 @@ class BoardModel:
                         if b < hi_all:
                             m.add(fv <= b).only_enforce_if(ov[k])
             part_upper += 1 + max((len(g.cands) for g in st.options), default=0) * 2
+            self.least.append((best[0], int(least_parts)) if best is not None else (0, 0))
+            self.cheapest.append(best[2:] if best is not None else None)
             if stage_opts:
                 m.add_exactly_one(stage_opts)
             else:
@@ -199,9 +217,44 @@ class BoardModel:
             "bom_lines": sum(self.u.values()) + sum(self.t.values()),
             "changes": sum(self.change_terms) + self.change_const,
         }
+        # redundant bounds: the board costs at least the sum of each stage's cheapest option
+        # (the shared stock only removes boards), and likewise for the part count; they give
+        # the solver the bound a relaxation would take long to find on large boards
+        m.add(self.objectives["cost"] >= sum(c for c, _ in self.least))
+        m.add(self.objectives["part_count"] >= sum(p for _, p in self.least))
+        self._hint_cheapest()
         self._fixing: list[int] = []
         self.part_upper = part_upper
         self.step_seconds: list[tuple[str, float, str]] = []
+
+    @staticmethod
+    def _free_least(g: StageOptions) -> tuple[list[int], list[int]]:
+        """Per option: the free role's cheapest candidate in its run (fewest parts on a tie;
+        −1 without a free role) and the fewest parts of any candidate in the run."""
+        if g.free is None:
+            return [-1] * g.size, [0] * g.size
+        c = g.cands[g.free]
+        cost, parts = c.cost.astype(np.int64), c.parts.astype(np.int64)
+        free, least = [], []
+        for a, b in zip(g.lo.tolist(), g.hi.tolist(), strict=True):
+            run = slice(a, b + 1)
+            best = np.flatnonzero(cost[run] == cost[run].min())
+            free.append(a + int(best[np.argmin(parts[run][best])]))
+            least.append(int(parts[run].min()))
+        return free, least
+
+    def _hint_cheapest(self) -> None:
+        """Hint the board of each stage's cheapest option (the first step starts from it; the
+        steps after start from the previous step's board)."""
+        if any(ch is None for ch in self.cheapest):
+            return
+        for gi, ov in enumerate(self.o):
+            pick = self.cheapest[self.group_stage[gi]]
+            for k, v in enumerate(ov):
+                self.model.add_hint(v, bool(pick is not None and pick[:2] == (gi, k)))
+        for gi, fv in self.f.items():
+            pick = self.cheapest[self.group_stage[gi]]
+            self.model.add_hint(fv, pick[2] if pick is not None and pick[0] == gi else 0)
 
     def _used(self, lits: list, name: str) -> cp_model.IntVar:
         """A boolean at least every literal of ``lits`` (used when any of them is)."""
