@@ -215,3 +215,37 @@ def test_explanation_of_a_stage_keeps_to_the_time_left():
     assert ex.binding == "time_limit" and ex.levers == [] and ex.relaxation is None
     assert ex.message.startswith("no design from this stock meets every limit (the search "
                                  "was complete); the time limit left no time")
+
+
+def test_option_screen_cut_by_the_deadline_keeps_the_rest_unscreened(monkeypatch):
+    """The board's option screen (purpose limits at every vertex) stops at the deadline and
+    keeps what it has not screened: a superset of the full screen, a subset of the options
+    (sound: the board search's full checks judge the rest).  Expected values: the same
+    screen run to the end, and the unscreened options."""
+    import stockbias.search.keep_purpose as kp
+    from stockbias.search.board import stage_job
+    from stockbias.search.board_options import stage_options
+    from stockbias.search.candidates import build_shelf
+
+    inv = generated_shelf(70, 2, seed=6)
+    job = parse_job(BOARD, "<board>")
+    st = job.stages[0]
+    sj = stage_job(job, st)
+    shelf = build_shelf(job, inv, pairs=False)
+    cands = {r: shelf.candidates(False, False) for r in ("R1", "R2", "RC", "RE")}
+    g = stage_options(sj, st, 0, "divider", inv.transistors[0], cands)
+
+    def designs(opts) -> set:
+        return {tuple(sorted(d.items())) for k in range(opts.size) for d in opts.designs(k)}
+
+    every = designs(g)
+    full = designs(kp.screen_options(sj, st, g))
+    assert full < every                       # this screen removes designs
+    monkeypatch.setattr(kp, "SCREEN_BLOCK", max(1, len(every) // 8))
+    cuts = [designs(kp.screen_options(sj, st, g, Deadline.after_checks(n)))
+            for n in range(1, 12)]                # n − 1 blocks screened
+    assert cuts[0] == every and cuts[-1] == full
+    for a, b in zip(cuts, cuts[1:], strict=False):
+        assert full <= b <= a <= every          # each block only removes what fails
+    assert kp.screen_options(sj, st, g, Deadline(600.0)).size == \
+        kp.screen_options(sj, st, g).size

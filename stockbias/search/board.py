@@ -494,7 +494,7 @@ def design_board(job: Job, inventory: Inventory, *, top: int | None = None,
                     continue
                 opts = stage_options(sj, stage, si, net_name, q, cands, prepass)
                 if held_from_reference(stage) and not prepass.expired():
-                    opts = screen_options(sj, stage, opts)
+                    opts = screen_options(sj, stage, opts, prepass)
                 groups.append(opts)
         n_opts[stage.name] = sum(g.size for g in groups)
         setups.append(StageSetup(stage.name, groups))

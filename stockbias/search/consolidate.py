@@ -312,7 +312,7 @@ def consolidate(job: Job, inventory: Inventory, *, keep: Iterable[tuple[str, str
         opts = stage_options(sj, st, si, st.topology, q, cands, prepass)
         # the screen only spares the board search rounds (it is sound to skip when late)
         if held[si].limits and not prepass.expired():
-            opts = screen_options(sj, st, opts)
+            opts = screen_options(sj, st, opts, prepass)
         setups.append(StageSetup(st.name, [opts], st.topology, cur))
         if progress is not None:
             progress("pre-pass", (si + 1) / len(job.stages))

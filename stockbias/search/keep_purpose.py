@@ -35,7 +35,10 @@ from ..analysis.check import CheckResult
 from ..errors import InputError
 from ..job import Job, KeepPurpose, Stage
 from ..units import format_quantity
-from .board_options import StageOptions, screen_every_vertex
+import numpy as np
+
+from .board_options import StageOptions, _passes, _runs, screen_every_vertex
+from .deadline import Deadline
 
 __all__ = [
     "DEFAULT_KEEP",
@@ -239,16 +242,47 @@ def held_from_reference(stage: Stage) -> bool:
     return stage.target.gain_nominal_min is not None or stage.target.gain_nominal_max is not None
 
 
-def screen_options(job: Job, stage: Stage, g: StageOptions) -> StageOptions:
+#: designs screened at once when a deadline is given (it is asked between blocks)
+SCREEN_BLOCK = 4096
+
+
+def screen_options(job: Job, stage: Stage, g: StageOptions,
+                   deadline: Deadline | None = None) -> StageOptions:
     """Only the designs of ``g`` that pass every limit at every vertex (purpose limits too).
 
     A design rejected here fails the full check (``vertex_check`` is exact at the vertex
     it names, and the nominal-gain limit is evaluated by the same code), so this removes
     nothing the verify-and-forbid loop of the board search would keep; it only spares the
     loop a round per failing design.  The nominal-point limits are taken first
-    (:func:`.board_options.screen_every_vertex`).
+    (:func:`.board_options.screen_every_vertex`).  With ``deadline``, the designs are
+    screened in blocks and those left when it expires are kept unscreened (sound: the
+    loop judges them).
     """
-    return screen_every_vertex(job, stage, g)
+    if deadline is None or g.size == 0:
+        return screen_every_vertex(job, stage, g)
+    if g.free is None:
+        roles = {r: (g.cands[r], g.core[r]) for r in g.core_roles}
+        opt = fj = None
+    else:
+        counts = g.hi - g.lo + 1
+        opt = np.repeat(np.arange(g.size), counts)
+        fj = np.repeat(g.lo, counts) + np.arange(int(counts.sum())) - np.repeat(
+            np.cumsum(counts) - counts, counts)
+        roles = {r: (g.cands[r], v[opt]) for r, v in g.core.items()}
+        roles[g.free] = (g.cands[g.free], fj)
+    n = next(iter(roles.values()))[1].size
+    ok = np.ones(n, dtype=bool)
+    for a in range(0, n, SCREEN_BLOCK):
+        if deadline.expired():
+            break
+        ok[a:a + SCREEN_BLOCK] = _passes(job, stage, g, {r: (c, ix[a:a + SCREEN_BLOCK])
+                                                         for r, (c, ix) in roles.items()})
+    if opt is None:
+        return replace(g, core={r: v[ok] for r, v in g.core.items()}, lo=g.lo[ok],
+                       hi=g.hi[ok])
+    crow, lo, hi = _runs(opt[ok], fj[ok])
+    return replace(g, core={r: v[crow] for r, v in g.core.items()},
+                   lo=lo.astype(np.int64), hi=hi.astype(np.int64))
 
 
 def change_text(before: float | None, after: float | None, unit: str) -> str:
