@@ -71,12 +71,12 @@ def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float
     lever lowers the gain, the swing or the input resistance the job asks for, or puts
     the VCE headroom below :func:`.levers.headroom_floor`.
     """
-    from . import levers as lv
-
     t0 = time.monotonic()
     if status == "unknown":
         return Explanation("time_limit", "the time limit ran out before any design was found "
                            f"or ruled out, {_time_spent_on(search)}; raise --time-limit")
+    from . import levers as lv      # the relaxed searches (loaded only when they can run)
+
     st = job.stage
     if not search.transistors:
         reasons = "; ".join(f"{q.part_id}: {why}" for q, why in search.excluded) or \
