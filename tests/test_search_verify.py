@@ -100,6 +100,8 @@ topology = "divider"
 [stage.target]
 ic = "2 mA"
 ic_window_pct = 20
+[search]
+time_limit_s = 600  # the proof, not the clock, is under test (a busy machine hit 20 s)
 """
     from stockbias.search.board import BoardResult
 
