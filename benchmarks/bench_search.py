@@ -20,7 +20,7 @@ fresh processes, with the ratio of the two (goal: pairs within 3× of no pairs).
 
 Pairs (``--pairs``): each generated shelf of the pairs rows searched with pairs off and
 on, each search in its own process after a warm-up search there (imports not counted):
-CPU and wall of the search, the process's peak memory (``ru_maxrss``), and the ratio on /
+CPU and wall of the search, the process's peak memory (``VmHWM``), and the ratio on /
 off of the CPU times measured in the same run.
 
 Shelves: E12 … E96 over 10 Ω … 1 MΩ (stockbias.eseries.series_values), 5000 pieces per
@@ -95,6 +95,19 @@ def shelf(series: str, n_q: int, lo: float = 10.0, hi: float = 1e6, seed: int = 
 SAMPLES = Path(__file__).resolve().parent.parent / "inventory_samples"
 
 
+def peak_mib() -> float:
+    """This process's peak resident memory, MiB: ``VmHWM`` of /proc/self/status (Linux), which
+    a new program starts afresh; ``ru_maxrss`` elsewhere (on Linux it keeps, across exec, the
+    peak of the forked copy of the parent that started the process)."""
+    try:
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("VmHWM:"):
+                return int(line.split()[1]) / 1024
+    except OSError:
+        pass
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+
+
 def fresh(job_file: Path, stock: Path) -> tuple[float, float, dict]:
     """``stockbias design`` in a new process: (wall s, CPU s, the JSON result)."""
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
@@ -121,8 +134,7 @@ def sample_job_rows(folder: Path) -> list[str]:
                             encoding="utf-8")
         wall, cpu, res = fresh(job_file, stock)
         # the search alone, CPU and peak memory: in its own process after a warm-up search
-        # (imports); the peak is the process's own (a child's ru_maxrss as the parent
-        # reads it counts the parent's pages at the fork)
+        # (imports); the peak is the process's own VmHWM (see peak_mib)
         code = _ONE_FILE.format(here=str(Path(__file__).resolve().parent),
                                 job=str(job_file), stock=str(stock))
         got = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
@@ -142,7 +154,7 @@ def sample_job_rows(folder: Path) -> list[str]:
 _ONE_FILE = """
 import json, resource, sys, time
 sys.path.insert(0, {here!r})
-from bench_search import JOB, shelf
+from bench_search import JOB, peak_mib, shelf
 from stockbias.job import load_job, parse_job
 from stockbias.search.design import design
 from stockbias.stock_io import read_inventory
@@ -151,7 +163,7 @@ design(parse_job(JOB.format(pairs="false")), shelf("E12", 1))   # warm-up: impor
 c0 = time.process_time()
 r = design(job, inv)
 print(json.dumps({{"status": r.status, "cpu": time.process_time() - c0,
-                  "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}}))
+                  "peak_mib": peak_mib()}}))
 """
 
 
@@ -290,7 +302,7 @@ PAIR_CASES = [("E12", 20), ("E24", 20), ("E48", 5), ("E48", 20), ("E96", 5), ("E
 _ONE_CASE = """
 import json, resource, sys, time
 sys.path.insert(0, {here!r})
-from bench_search import JOB, shelf
+from bench_search import JOB, peak_mib, shelf
 from stockbias.job import parse_job
 from stockbias.search.design import design
 inv = shelf({series!r}, {n_q})
@@ -300,7 +312,7 @@ c0, t0 = time.process_time(), time.perf_counter()
 r = design(job, inv)
 cpu, wall = time.process_time() - c0, time.perf_counter() - t0
 print(json.dumps({{"status": r.status, "cpu": cpu, "wall": wall, "designs": len(r.designs),
-                  "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+                  "peak_mib": peak_mib(),
                   "keys": [[d.cost_micro, d.part_count, d.distinct_values, d.ic_margin]
                            for d in r.designs]}}))
 """
@@ -309,7 +321,8 @@ print(json.dumps({{"status": r.status, "cpu": cpu, "wall": wall, "designs": len(
 def pair_ratio_rows() -> None:
     """Pairs on against off on the generated shelves: each search once in its own process
     (after a warm-up search there, so imports are not counted), CPU and wall of the search,
-    the process's peak memory; the ratio on / off of the CPU times of the same run."""
+    the process's peak memory (:func:`peak_mib`); the ratio on / off of the CPU times of
+    the same run."""
     here = str(Path(__file__).resolve().parent)
     print("| shelf | transistors | pairs | status | search wall (CPU) (s) | peak memory (MiB) "
           "| ratio on / off CPU (wall) |")
