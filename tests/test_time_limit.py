@@ -249,3 +249,25 @@ def test_option_screen_cut_by_the_deadline_keeps_the_rest_unscreened(monkeypatch
         assert full <= b <= a <= every          # each block only removes what fails
     assert kp.screen_options(sj, st, g, Deadline(600.0)).size == \
         kp.screen_options(sj, st, g).size
+
+
+def test_yield_board_starts_no_monte_carlo_past_the_limit(monkeypatch, tmp_path):
+    """A board to a yield target whose limit ends during the judging of its first candidate
+    board: no stage's Monte Carlo starts after that, no board is shown, and the advice says
+    the judging was cut.  (Board and shelf: tests/test_yield_board.py's, where the yield
+    board exists; the clock moves 100 s with each Monte Carlo run.)"""
+    import stockbias.search.yield_board as yb
+    from test_yield_board import HEADER, PRECISE, TRANSISTOR, WIDE, board_text
+
+    stock = tmp_path / "both.csv"
+    stock.write_text(HEADER + PRECISE + WIDE + TRANSISTOR)
+    job = parse_job(board_text((25, 25), ("yield_min = 95\n", "yield_min = 90\n")))
+    clock = FakeClock(step=100.0)
+    monkeypatch.setattr(yb, "Deadline", lambda limit: Deadline(limit, clock=clock))
+    monkeypatch.setattr(yb, "judge", clock.wrap(yb.judge))
+    monkeypatch.setattr(yb, "final_check", clock.wrap(yb.final_check))
+    res = yb.yield_board(job, read_inventory(stock), time_limit_s=50.0)
+    assert clock.checks == 1                      # one Monte Carlo run, none past the limit
+    assert res.status == "unknown" and not res.designs
+    assert res.explanation.startswith("the time limit ran out while the candidate boards "
+                                      "were judged (")

@@ -302,6 +302,11 @@ def _judge(job: Job, boards: list[_Board], designs: dict[tuple, _StageDesign], t
             d = designs[key]
             y_min = d.stage.target.yield_min
             conf = float(d.stage.target.yield_confidence)
+            if (d.kind == "sampled" and d.judged is None or d.check is None) \
+                    and clock.expired():
+                ok = False          # no Monte Carlo starts past the limit: this board and
+                cut = len(alive) - i    # the rest are not judged
+                break
             if d.kind == "sampled" and d.judged is None:
                 judged += 1
                 d.judged, d.judged_low = judge(ex, d.job, d.trial, samples, conf)
@@ -309,12 +314,17 @@ def _judge(job: Job, boards: list[_Board], designs: dict[tuple, _StageDesign], t
                 ok = False
                 break
             if d.check is None:
+                if clock.expired():
+                    ok, cut = False, len(alive) - i
+                    break
                 checked += 1
                 d.check, d.check_low = final_check(d.job, d.trial, samples, conf)
             if not _stage_ok(d):
                 ok = False
                 failed.append(_failure(d))
                 break
+        if cut:
+            break
         if not ok:
             continue
         chosen.append(_chosen(job, b, designs, len(chosen) + 1, levels, inventory))
@@ -414,9 +424,12 @@ def _finish(kind: str, job: Job, worst: Any, chosen: list[YieldBoard],
             + "; a longer --time-limit gives more candidates")
     if not chosen:
         dropped = [str(x) for x in jstats["dropped_on_final_check"]]  # type: ignore[attr-defined]
+        not_judged = int(jstats["not_judged_time_limit"])  # type: ignore[call-overload]
         res.explanation = ("the time limit ran out before the box searches found a board; "
                            "raise [search] time_limit_s or --time-limit: " if not boards and cut
-                           else "") + (
+                           else f"the time limit ran out while the candidate boards were "
+                           f"judged ({not_judged} not judged); raise [search] time_limit_s or "
+                           "--time-limit: " if not_judged else "") + (
             f"no candidate board was shown to meet every stage's target: {len(boards)} "
             f"boards from {len(run)} boxes, {len(designs)} stage designs, "
             f"{jstats['screened_out']} screened out, {jstats['judged']} judged on "
