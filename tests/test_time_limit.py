@@ -16,6 +16,7 @@ designs).
 
 from __future__ import annotations
 
+import itertools
 from pathlib import Path
 
 from test_search_bounded import BOARD, generated_shelf, job_for
@@ -245,7 +246,7 @@ def test_option_screen_cut_by_the_deadline_keeps_the_rest_unscreened(monkeypatch
     cuts = [designs(kp.screen_options(sj, st, g, Deadline.after_checks(n)))
             for n in range(1, 12)]                # n − 1 blocks screened
     assert cuts[0] == every and cuts[-1] == full
-    for a, b in zip(cuts, cuts[1:], strict=False):
+    for a, b in itertools.pairwise(cuts):
         assert full <= b <= a <= every          # each block only removes what fails
     assert kp.screen_options(sj, st, g, Deadline(600.0)).size == \
         kp.screen_options(sj, st, g).size
@@ -256,8 +257,9 @@ def test_yield_board_starts_no_monte_carlo_past_the_limit(monkeypatch, tmp_path)
     board: no stage's Monte Carlo starts after that, no board is shown, and the advice says
     the judging was cut.  (Board and shelf: tests/test_yield_board.py's, where the yield
     board exists; the clock moves 100 s with each Monte Carlo run.)"""
-    import stockbias.search.yield_board as yb
     from test_yield_board import HEADER, PRECISE, TRANSISTOR, WIDE, board_text
+
+    import stockbias.search.yield_board as yb
 
     stock = tmp_path / "both.csv"
     stock.write_text(HEADER + PRECISE + WIDE + TRANSISTOR)

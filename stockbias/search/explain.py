@@ -75,7 +75,7 @@ def explain(job: Job, inventory: Inventory, search, status: str, budget_s: float
     if status == "unknown":
         return Explanation("time_limit", "the time limit ran out before any design was found "
                            f"or ruled out, {_time_spent_on(search)}; raise --time-limit")
-    from . import levers as lv      # the relaxed searches (loaded only when they can run)
+    from . import levers as lv  # the relaxed searches (loaded only when they can run)
 
     st = job.stage
     if not search.transistors:

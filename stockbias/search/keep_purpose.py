@@ -31,12 +31,12 @@ import math
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+import numpy as np
+
 from ..analysis.check import CheckResult
 from ..errors import InputError
 from ..job import Job, KeepPurpose, Stage
 from ..units import format_quantity
-import numpy as np
-
 from .board_options import StageOptions, _passes, _runs, screen_every_vertex
 from .deadline import Deadline
 

@@ -302,7 +302,7 @@ def _judge(job: Job, boards: list[_Board], designs: dict[tuple, _StageDesign], t
             d = designs[key]
             y_min = d.stage.target.yield_min
             conf = float(d.stage.target.yield_confidence)
-            if (d.kind == "sampled" and d.judged is None or d.check is None) \
+            if ((d.kind == "sampled" and d.judged is None) or d.check is None) \
                     and clock.expired():
                 ok = False          # no Monte Carlo starts past the limit: this board and
                 cut = len(alive) - i    # the rest are not judged

@@ -235,7 +235,8 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
     executor : stockbias.executor.Executor, optional
         Where the candidates' Monte Carlo runs (default: this process).
     """
-    from scipy import special, stats  # noqa: F401  (start-up: loaded before the clock)
+    import scipy.special
+    import scipy.stats  # noqa: F401
 
     from ..executor import InProcess
 
