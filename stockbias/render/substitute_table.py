@@ -265,7 +265,8 @@ def _yield_intro(console: Console, result: SubstituteResult, width: int) -> None
             "boards (an upper bound below the target at a Bonferroni-adjusted confidence "
             f"puts one out), judged on {ys['samples_per_design']:,} fresh boards and "
             f"checked again on {ys['samples_per_design']:,} more from an independent stream. "
-            f"This run: {st['sampled_candidates']} candidates sampled, "
+            f"This run: {st['sampled_candidates']} "
+            f"candidate{'' if st['sampled_candidates'] == 1 else 's'} sampled, "
             f"{st['proven_without_sampling']} shown without sampling, {st['screened_out']} "
             f"screened out, {st['judged']} judged, in {result.solve_seconds:.1f} s on "
             f"{st['executor']}.")
