@@ -350,7 +350,19 @@ class BoardModel:
         proven = True
         choices: list[Choice] | None = None
         steps = self.steps(objectives)
+        last: cp_model.CpSolver | None = None          # the incumbent's solve
+        floor = {"cost": sum(c for c, _ in self.least),
+                 "part_count": sum(p for _, p in self.least)}
         for si, step in enumerate(steps):
+            if last is not None and len(step) == 1 and step[0] in floor:
+                at = round(last.value(self.objectives[step[0]]))
+                if at == floor[step[0]]:
+                    # the incumbent meets every constraint so far and reaches the proven
+                    # lower bound of this objective: it is this step's optimum as it stands
+                    values[step[0]] = at
+                    self._fixing.append(self.model.add(self.objectives[step[0]] <= at).index)
+                    self.step_seconds.append((step[0], 0.0, "AT_LOWER_BOUND"))
+                    continue
             weights = [1] * len(step)
             for j in range(len(step) - 2, -1, -1):
                 weights[j] = weights[j + 1] * (self.upper(step[j + 1]) + 1)
@@ -395,6 +407,7 @@ class BoardModel:
             for n in step:
                 values[n] = round(solver.value(self.objectives[n]))
             choices = self._read(solver)
+            last = solver
             self.model.clear_hints()
             for ov in self.o:
                 for v in ov:
