@@ -7,6 +7,9 @@
 * With ``model = "exponential"`` a stage's options come from the same cuts as the
   single-stage search (no assignment limit): they must hold exactly the designs that pass
   every vertex among every assignment of the stock lines (enumerated here).
+* A cost step whose incumbent already reaches the sum of each stage's cheapest option is
+  taken as proven without a solve: on a board where that happens, the result must still
+  be the exhaustive optimum (tests/test_board_search.py's enumeration).
 """
 
 from __future__ import annotations
@@ -148,3 +151,19 @@ def test_exponential_options_have_no_assignment_limit() -> None:
     assert 0 < len(every["R1"]) < 20_000
     assert vertex_check(job, job.stage, "divider", QE,
                         {r: (cands[r], v) for r, v in every.items()})["ok"].all()
+
+
+def test_step_at_the_summed_lower_bound_is_the_exhaustive_optimum() -> None:
+    import test_board_search as ref
+
+    from stockbias.search.board import design_board
+
+    seed, n_lines, n_q, build, obj, stages, temps = ref.CASES[2]   # distinct_values, cost
+    inv = ref._shelf(seed, n_lines, n_q, build)
+    job = ref._board(ref.OBJECTIVE_SETS[obj], build, stages, temps)
+    expected, _combo, _ = ref._exhaustive(job, inv)
+    result = design_board(job, inv, top=1)
+    assert ("cost", 0.0, "AT_LOWER_BOUND") in result.stats["solver_steps"]
+    assert result.status == "optimal"
+    # source: the exhaustive enumeration of tests/test_board_search.py (exact vectors)
+    assert ref._key(job.search.objectives, build, ref._board_of(result.designs[0])) == expected
