@@ -167,3 +167,26 @@ def test_step_at_the_summed_lower_bound_is_the_exhaustive_optimum() -> None:
     assert result.status == "optimal"
     # source: the exhaustive enumeration of tests/test_board_search.py (exact vectors)
     assert ref._key(job.search.objectives, build, ref._board_of(result.designs[0])) == expected
+
+
+def test_exponential_board_without_the_vertex_screen_is_the_exhaustive_optimum(monkeypatch
+                                                                               ) -> None:
+    """Above ``EXP_SCREEN_MAX`` designs the options are the cuts alone (a superset of the
+    designs that pass), and the board must still be the exhaustive optimum
+    (tests/test_board_search.py's enumeration with the exponential model), every stage
+    confirmed by the full check."""
+    import test_board_search as ref
+
+    from stockbias.search import board_options
+    from stockbias.search.board import design_board
+
+    monkeypatch.setattr(board_options, "EXP_SCREEN_MAX", 0)
+    seed, n_lines, n_q, build, obj, stages, temps = ref.EXP_CASES[0]
+    inv = ref._shelf(seed, n_lines, n_q, build)
+    job = ref._board(ref.OBJECTIVE_SETS[obj], build, stages, temps)
+    job = replace(job, search=replace(job.search, model="exponential"))
+    expected, _combo, _ = ref._exhaustive(job, inv)
+    result = design_board(job, inv, top=1)
+    assert result.status == "optimal"
+    assert ref._key(job.search.objectives, build, ref._board_of(result.designs[0])) == expected
+    ref._recheck(job, result.designs[0])

@@ -64,10 +64,10 @@ __all__ = ["StageOptions", "screen_every_vertex", "stage_options"]
 _REL = 1e-12
 #: Options without a free role are screened at every vertex when there are at most this many.
 VERTEX_SCREEN_MAX = 200_000
-#: The exponential model's options are screened at every vertex when their designs are at
-#: most this many (a design costs about 0.2 ms, 5 ms where θJA adds the self-heated
-#: solution; beyond it the verify-and-forbid loop of the board search does the rest).
-EXP_SCREEN_MAX = 20_000
+#: The exponential model's designs are screened at every vertex when they are at most this
+#: many (a design costs about 0.2 ms, 5 ms where θJA adds the self-heated solution; beyond
+#: it the verify-and-forbid loop of the board search does the rest).
+EXP_SCREEN_MAX = 5_000
 
 
 @dataclass
@@ -183,7 +183,8 @@ def stage_options(job: Job, stage: Stage, stage_index: int, network: str, q: Tra
         # every role is in the core: the options are whole designs, so screen them at every
         # vertex now (the headroom and dissipation limits have no closed-form cut here)
         n = idx[plan.interval].size
-        if 0 < n <= VERTEX_SCREEN_MAX:
+        if 0 < n <= (EXP_SCREEN_MAX if job.search.model == "exponential"
+                     else VERTEX_SCREEN_MAX):
             chk = vertex_check(job, stage, network, q, {r: (cands[r], idx[r]) for r in idx})
             idx = {r: v[chk["ok"]] for r, v in idx.items()}
             n = idx[plan.interval].size
