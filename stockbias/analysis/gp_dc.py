@@ -163,6 +163,11 @@ def _diode(v, i_s, n_vt):
     return i_s * (e - 1.0), i_s * e / n_vt
 
 
+def _zero(x) -> bool:
+    """True for a scalar exactly zero (a term the card leaves out)."""
+    return (type(x) is float or np.ndim(x) == 0) and float(x) == 0.0
+
+
 def junction_currents(vbe, vbc, dev: GPDevice, icbo=0.0):
     """Base and collector currents of the intrinsic transistor, and their slopes.
 
@@ -183,17 +188,28 @@ def junction_currents(vbe, vbc, dev: GPDevice, icbo=0.0):
         (∂/∂VBE, ∂/∂VBC) of each, siemens.
     """
     vt = dev.vt
+    # A parameter that is a scalar zero drops its term (skipped, not computed: adding
+    # or multiplying by an exact zero changes no bit of the result).
     cbe, gbe = _diode(vbe, dev.is_a, dev.nf * vt)
     cbc, gbc = _diode(vbc, dev.is_a, dev.nr * vt)
-    cben, gben = _diode(vbe, dev.ise, dev.ne * vt)
-    cbcn, gbcn = _diode(vbc, dev.isc, dev.nc * vt)
-    q1 = 1.0 / (1.0 - dev.inv_vaf * vbc - dev.inv_var * vbe)
-    q2 = dev.inv_ikf * cbe + dev.inv_ikr * cbc
-    sq = np.sqrt(np.maximum(1.0 + 4.0 * q2, 0.0))
-    sq_safe = np.where(sq > 0, sq, 1.0)
-    qb = q1 * (1.0 + sq) / 2.0
-    dqb_dve = q1 * (qb * dev.inv_var + dev.inv_ikf * gbe / sq_safe)
-    dqb_dvc = q1 * (qb * dev.inv_vaf + dev.inv_ikr * gbc / sq_safe)
+    cben, gben = (0.0, 0.0) if _zero(dev.ise) else _diode(vbe, dev.ise, dev.ne * vt)
+    cbcn, gbcn = (0.0, 0.0) if _zero(dev.isc) else _diode(vbc, dev.isc, dev.nc * vt)
+    inv_var, inv_ikf, inv_ikr = dev.inv_var, dev.inv_ikf, dev.inv_ikr
+    base_w = 1.0 - dev.inv_vaf * vbc
+    q1 = 1.0 / (base_w if _zero(inv_var) else base_w - inv_var * vbe)
+    if _zero(inv_ikf) and _zero(inv_ikr):
+        qb = q1
+        dqb_dve = q1 * (qb * inv_var)
+        dqb_dvc = q1 * (qb * dev.inv_vaf)
+    else:
+        q2 = inv_ikf * cbe if _zero(inv_ikr) else inv_ikf * cbe + inv_ikr * cbc
+        sq = np.sqrt(np.maximum(1.0 + 4.0 * q2, 0.0))
+        sq_safe = np.where(sq > 0, sq, 1.0)
+        qb = q1 * (1.0 + sq) / 2.0
+        k_e = inv_ikf * gbe / sq_safe
+        dqb_dve = q1 * (k_e if _zero(inv_var) else qb * inv_var + k_e)
+        dqb_dvc = q1 * (qb * dev.inv_vaf if _zero(inv_ikr)
+                        else qb * dev.inv_vaf + inv_ikr * gbc / sq_safe)
     transfer = (cbe - cbc) / qb
     ic = transfer - cbc / dev.br - cbcn + icbo
     ib = cbe / dev.bf + cben + cbc / dev.br + cbcn - icbo

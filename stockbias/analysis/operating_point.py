@@ -656,13 +656,20 @@ def solve_exponential(
     """
     inv_vaf = 1.0 / np.asarray(gp.vaf, dtype=float)
     full = gp.full
+    # a card's terms that are zero everywhere (no ISC, IKR, VAR …) stay scalar zeros, so
+    # the current equations skip them rather than compute them at every point
+    card = gp.extras() if full else ()
+    kept = [i for i, x in enumerate(card) if np.any(np.asarray(x) != 0)]
     st = _stage(
         network, resistances, polarity, vcc, vee,
         gp.is_a, gp.bf, gp.br, gp.nf, gp.nr, inv_vaf, temp_k, icbo,
-        *(gp.extras() if full else ()),
+        *(card[i] for i in kept),
     )
     is_a, bf, br, nf, nr, inv_vaf_f, temp_f, icbo_f = st.extra[:8]
-    extra = st.extra[8:] if full else None
+    extra = None
+    if full:
+        got = dict(zip(kept, st.extra[8:], strict=True))
+        extra = tuple(got.get(i, 0.0) for i in range(len(card)))
     vt = thermal_voltage(temp_f)
     resp = _linear_response(st.network, st.r, st.rails)
     p0, p1, p2 = resp.junction(0, 2)
