@@ -98,6 +98,7 @@ SATURATION_INJECTION_RATIO = 1e-3  # exponential model: BC injection / BE inject
 _NEWTON_TOL_V = 1e-12
 _NEWTON_MAX_ITER = 200
 _NEWTON_POLISH = 2
+_START_STEPS = 3  # fixed-point steps on the Newton start
 _EXP_ARG_MAX = 300.0
 _NODE_INDEX = {"B": 0, "C": 1, "E": 2}
 
@@ -678,18 +679,44 @@ def solve_exponential(
         p1, p2 = p1 - gp.rb - gp.re, p2 - gp.re
         q1, q2 = q1 - gp.rb, q2 + gp.rc
 
-    # Start from the constant-VBE point with VBE at 1 mA and β = BF, then once more with
-    # the VBE of the diode law at that point's current (a fixed-point step: the start is
-    # then within a few millivolts wherever the point is active).
-    vbe_start = nf * vt * np.log(1e-3 / is_a)
-    ib0 = (vbe_start - p0 - p2 * (bf + 1.0) * icbo_f) / (p1 + p2 * bf)
-    ic0 = bf * ib0 + (bf + 1.0) * icbo_f
-    with np.errstate(invalid="ignore", divide="ignore"):
-        vbe_2 = nf * vt * np.log(np.maximum(ic0 - icbo_f, 1e-3 * is_a) / is_a)
-    vbe_start = np.where(ic0 - icbo_f > 1e-9, np.clip(vbe_2, vbe_start - 0.2, vbe_start + 0.1),
-                         vbe_start)
-    ib0 = (vbe_start - p0 - p2 * (bf + 1.0) * icbo_f) / (p1 + p2 * bf)
-    ic0 = bf * ib0 + (bf + 1.0) * icbo_f
+    # Start from the constant-VBE point with VBE at 1 mA and β = BF, then move VBE by
+    # fixed-point steps: the network's IC at this VBE (β the model's IC/IB there) gives
+    # the VBE that carries it (IS·exp(VBE/(NF·VT)) = IC·q1·(1 + IC·q1/IKF), the base
+    # charge solved in closed form).  The start is then within millivolts wherever the
+    # point is active, and Newton needs few steps.
+    vbe_1ma = nf * vt * np.log(1e-3 / is_a)
+    vbe_start = vbe_1ma
+    beta = bf
+    if extra is not None:
+        ise, ne, _isc, _nc, inv_ikf, _inv_ikr, inv_var = extra
+    for _step in range(_START_STEPS):
+        ib0 = (vbe_start - p0 - p2 * (beta + 1.0) * icbo_f) / (p1 + p2 * beta)
+        ic0 = beta * ib0 + (beta + 1.0) * icbo_f
+        i_t = ic0 - icbo_f
+        vbc0 = np.minimum(q0 + q1 * ib0 + q2 * ic0, vbe_start - 0.1)
+        q1b = 1.0 / (1.0 - inv_vaf_f * vbc0)
+        if extra is not None:
+            q1b = 1.0 / (1.0 / q1b - inv_var * vbe_start)
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+            i_f = i_t * q1b
+            if extra is not None:
+                i_f = i_f * (1.0 + i_t * q1b * inv_ikf)
+            vbe_2 = nf * vt * np.log(np.maximum(i_f, 1e-3 * is_a) / is_a)
+        vbe_start = np.where(i_t > 1e-9, np.clip(vbe_2, vbe_1ma - 0.2, vbe_1ma + 0.25),
+                             vbe_start)
+        if extra is not None:
+            # β of the full equations at this VBE: IC/IB with the base charge and the
+            # recombination current
+            with np.errstate(over="ignore"):
+                e_f = np.exp(np.minimum(vbe_start / (nf * vt), _EXP_ARG_MAX))
+                i_f = is_a * (e_f - 1.0)
+                qb = q1b * (1.0 + np.sqrt(1.0 + 4.0 * inv_ikf * i_f)) / 2.0
+                i_le = 0.0 if type(ise) is float and ise == 0.0 else ise * (
+                    np.exp(np.minimum(vbe_start / (ne * vt), _EXP_ARG_MAX)) - 1.0)
+                ib_m = i_f / bf + i_le
+                beta = np.where(ib_m > 0, (i_f / qb) / np.where(ib_m > 0, ib_m, 1.0), bf)
+    ib0 = (vbe_start - p0 - p2 * (beta + 1.0) * icbo_f) / (p1 + p2 * beta)
+    ic0 = beta * ib0 + (beta + 1.0) * icbo_f
     cut0 = (ib0 + ic0) <= 0
     ib0 = np.where(cut0, 0.0, ib0)
     ic0 = np.where(cut0, 0.0, ic0)
