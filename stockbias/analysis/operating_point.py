@@ -353,6 +353,31 @@ def _linear_response(network: Network, r: dict[str, np.ndarray], rails: dict[str
     return _Response(v0=cols[0], dv_ib=cols[1], dv_ic=cols[2])
 
 
+def _stage_response(st: _Stage, resistances, vcc, vee) -> _Response:
+    """:func:`_linear_response` of a stage, solved once per distinct resistor and rail
+    set: the device arrays (β, IS, temperature …) often add axes the network does not
+    depend on, and the response is then broadcast along them (the same numbers)."""
+    r = _resistances(st.network, resistances)
+    rails = rail_voltages(st.network, st.polarity, vcc, vee)
+    arrays = [*r.values(), *(np.asarray(v, dtype=float) for v in rails.values())]
+    small = np.broadcast_shapes(*(a.shape for a in arrays))
+    n_small = int(np.prod(small, dtype=np.int64))
+    n_full = int(np.prod(st.shape, dtype=np.int64))
+    if len(small) > len(st.shape) or 2 * n_small > n_full:
+        return _linear_response(st.network, st.r, st.rails)
+
+    def flat(a):
+        return np.broadcast_to(np.asarray(a, dtype=float), small).ravel().astype(float)
+
+    resp = _linear_response(st.network, {k: flat(v) for k, v in r.items()},
+                            {k: st.sign * flat(v) for k, v in rails.items()})
+
+    def grow(a):
+        return np.broadcast_to(a.reshape((*small, 3)), (*st.shape, 3)).reshape(-1, 3)
+
+    return _Response(v0=grow(resp.v0), dv_ib=grow(resp.dv_ib), dv_ic=grow(resp.dv_ic))
+
+
 def _saturated_currents(resp: _Response, vbe, vbc):
     """IB, IC that hold VBE = vbe and VBC = vbc (two linear equations)."""
     p0, p1, p2 = resp.junction(0, 2)
@@ -672,7 +697,7 @@ def solve_exponential(
         got = dict(zip(kept, st.extra[8:], strict=True))
         extra = tuple(got.get(i, 0.0) for i in range(len(card)))
     vt = thermal_voltage(temp_f)
-    resp = _linear_response(st.network, st.r, st.rails)
+    resp = _stage_response(st, resistances, vcc, vee)
     p0, p1, p2 = resp.junction(0, 2)
     q0, q1, q2 = resp.junction(0, 1)
     if full:  # the card's series resistances: the junctions sit inside RB, RE, RC
