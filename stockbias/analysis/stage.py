@@ -392,8 +392,36 @@ def gummel_poon_of(spec: StageSpec, point: StagePoint, temp_c: np.ndarray) -> de
                                  d.xtb, device.STOCK_REFERENCE_C, temp_c)
 
 
+_CARD_GP: dict[tuple, device.GummelPoon] = {}
+_CARD_GP_SMALL = 64  # arrays up to this size (the vertex axes) take part in the cache key
+
+
+def _array_key(x) -> tuple | None:
+    a = np.asarray(x, dtype=float)
+    return (a.shape, a.tobytes()) if a.size <= _CARD_GP_SMALL else None
+
+
 def _card_gummel_poon(d: DeviceSpec, point: StagePoint, temp_c: np.ndarray
                       ) -> device.GummelPoon:
+    """:func:`_card_device` remembered for small arrays (the same card at the same vertex
+    temperatures, VBE and hFE spread is asked for by every check of a transistor)."""
+    assert d.card is not None
+    parts = [_array_key(x) for x in (temp_c, point.vbe, point.hfe, d.br, d.nf, d.nr, d.xtb,
+                                     d.xti, d.eg_ev, d.vaf_v, d.vbe_min, d.vbe_max, d.hfe_min,
+                                     d.hfe_max, 0.0 if d.is_a is None else d.is_a)]
+    if any(k is None for k in parts):
+        return _card_device(d, point, temp_c)
+    key = (d.is_a is None, tuple(sorted(d.card.items())), *parts)
+    got = _CARD_GP.get(key)
+    if got is None:
+        if len(_CARD_GP) >= 256:
+            _CARD_GP.clear()
+        got = _CARD_GP[key] = _card_device(d, point, temp_c)
+    return got
+
+
+def _card_device(d: DeviceSpec, point: StagePoint, temp_c: np.ndarray
+                 ) -> device.GummelPoon:
     """A model card's device at a point: the card as given at the nominal point, the hFE
     bin's and VBE range's spread applied around it.
 
