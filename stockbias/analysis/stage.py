@@ -393,7 +393,7 @@ def gummel_poon_of(spec: StageSpec, point: StagePoint, temp_c: np.ndarray) -> de
 
 
 _CARD_GP: dict[tuple, device.GummelPoon] = {}
-_CARD_GP_SMALL = 64  # arrays up to this size (the vertex axes) take part in the cache key
+_CARD_GP_SMALL = 4096  # arrays up to this size (the vertex axes) take part in the cache key
 
 
 def _array_key(x) -> tuple | None:

@@ -56,11 +56,11 @@ from ..analysis.ratings import allowed_resistor_power
 from ..analysis.stage import (
     DeviceSpec,
     ResistorSpec,
+    StagePoint,
     StageSpec,
     evaluate,
     self_heated_temperature,
 )
-from ..analysis.worst_case import vertex_points
 from ..job import Job, Stage
 from ..parts import Transistor
 from ..topologies import get_network
@@ -613,6 +613,40 @@ def nominal_check(job: Job, stage: Stage, network: str, q: Transistor,
     return ok
 
 
+_NETWORK_AXES = ("vcc", "vee")
+
+
+def _vertex_grid(spec: StageSpec) -> StagePoint:
+    """Every vertex of the box, on two new last axes: the supplies' and resistors'
+    vertices (what the network's linear response depends on), then the device's and the
+    ambient's.  The same vertices as :func:`stockbias.analysis.worst_case.vertex_points`;
+    the split lets the operating-point solve work out the network once per resistor
+    vertex, not once per vertex."""
+    axes = spec.axes()
+    net_axes = [a for a in axes if a in _NETWORK_AXES or a.startswith("R:")]
+    dev_axes = [a for a in axes if a not in net_axes]
+    values = {}
+    for group, last in ((net_axes, False), (dev_axes, True)):
+        k = len(group)
+        bits = ((np.arange(2 ** k)[:, None] >> np.arange(k)[None, :]) & 1).astype(float)
+        for j, axis in enumerate(group):
+            lo, hi = spec.axis_range(axis)
+            lo = np.asarray(lo, dtype=float)[..., None, None]
+            hi = np.asarray(hi, dtype=float)[..., None, None]
+            b = bits[:, j][None, :] if last else bits[:, j][:, None]
+            values[axis] = lo + b * (hi - lo)
+    base = spec.nominal_point()
+
+    def grown(v):
+        return np.asarray(v)[..., None, None]
+
+    base = StagePoint(
+        vcc=grown(base.vcc), vee=None if base.vee is None else grown(base.vee),
+        r={k_: grown(v) for k_, v in base.r.items()}, hfe=grown(base.hfe),
+        vbe=grown(base.vbe), icbo=grown(base.icbo), ambient_c=grown(base.ambient_c))
+    return spec.point_from(values, base)
+
+
 def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
                  roles: dict[str, tuple[RoleCandidates, np.ndarray]],
                  chunk: int = 2048) -> dict[str, np.ndarray]:
@@ -630,7 +664,7 @@ def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
     for s0 in range(0, n, chunk):
         sl = slice(s0, min(n, s0 + chunk))
         spec, ratings = design_spec(job, network, dev, roles, sl)
-        point, _bits = vertex_points(spec)
+        point = _vertex_grid(spec)
         evs = [evaluate(spec, point)]
         if not math.isnan(float(np.asarray(dev.theta_ja, dtype=float))):
             # as check does: the device also at its self-heated junction temperature
@@ -645,10 +679,11 @@ def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
                                          e.op.shape) for e in evs]
                 if parts[0].ndim == 0:
                     continue
+                parts = [x.reshape((*x.shape[:-2], -1)) for x in parts]
                 a = np.concatenate(parts, axis=-1)
                 low[name] = np.nanmin(a, axis=-1)
                 high[name] = np.nanmax(a, axis=-1)
-        nonactive = sum(np.sum(np.asarray(e.op.region) != 0, axis=-1) for e in evs)
+        nonactive = sum(np.sum(np.asarray(e.op.region) != 0, axis=(-2, -1)) for e in evs)
         nonactive = np.asarray(nonactive, dtype=float)
         low["non_active_corners"] = high["non_active_corners"] = nonactive
         low["vceo_needed"] = high["vceo_needed"] = np.full(nonactive.shape,
