@@ -98,6 +98,7 @@ from .scan_coverage import Coverage
 __all__ = ["Design", "DesignResult", "design", "objective_key"]
 
 _REL = 1e-12
+_VERTEX_BATCH = 64   # designs per vertex check, at least, while unchecked ones remain
 
 Progress = Callable[[str, float], None]
 
@@ -542,6 +543,11 @@ class _Search(RowScan):
                 elif not self.failed(k):
                     ahead.add(net)
             if todo:
+                if len(todo) < _VERTEX_BATCH:
+                    # the next unchecked designs in key order come along: a check of one
+                    # design costs little beside the fixed cost of a check
+                    more = [int(k) for k in order[limit:] if status[k] == 0]
+                    todo += more[:_VERTEX_BATCH - len(todo)]
                 # a batch the time left can hold (by the slowest design so far)
                 n = batch_size
                 if self.vertex_s > 0:
