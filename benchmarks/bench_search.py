@@ -1,6 +1,7 @@
 """Benchmark: design-search solve time against shelf size, and the naive baseline.
 
-Run:  python benchmarks/bench_search.py [--quick | --sample-only | --pairs | --exponential]
+Run:  python benchmarks/bench_search.py [--quick | --sample-only | --pairs | --exponential
+      | --exponential-cpu]
 
 Solve time is everything after the stock and job are loaded (pre-pass, model, solve,
 re-verification), as DESIGN §2 defines it; the median of three runs after one warm-up
@@ -17,6 +18,11 @@ time is given beside wall time.
 
 Sample job: the bundled line-driver job on the bundled E96 reels, pairs off and on, in
 fresh processes, with the ratio of the two (goal: pairs within 3× of no pairs).
+
+Exponential in process (``--exponential-cpu``): each bundled shelf (the model-card shelf
+with its cable-driver job) and the generated E96 shelf with 20 transistors, both models one
+after the other in one process, the search CPU after a warm-up search, the least of three
+runs (one on the generated shelf); the ratio exponential / constant VBE of the CPU times.
 
 Pairs (``--pairs``): each generated shelf of the pairs rows searched with pairs off and
 on, each search in its own process after a warm-up search there (imports not counted):
@@ -297,6 +303,60 @@ def exponential_rows() -> None:
                       f"{r[3]} | {ratio[0]} | {ratio[1]} |", flush=True)
 
 
+def _design_cpu(job: Path, stock: Path, reps: int) -> tuple[float, float, str, int]:
+    """One in-process ``design`` of a job on a stock file, after a warm-up search of the
+    same job (imports and the first-use caches not counted): (least CPU s, least wall s
+    of ``reps`` runs, status, designs checked at every vertex)."""
+    from stockbias.cli.common import load
+
+    job_o, inv = load(job, stock)
+    design(job_o, inv)
+    cpu = wall = float("inf")
+    for _ in range(reps):
+        c0, t0 = time.process_time(), time.perf_counter()
+        r = design(job_o, inv)
+        cpu = min(cpu, time.process_time() - c0)
+        wall = min(wall, time.perf_counter() - t0)
+    return cpu, wall, r.status, r.stats.get("designs_vertex_checked", 0)
+
+
+def exponential_cpu_rows(reps: int = 3) -> None:
+    """Exponential vs constant-VBE model, in process: the search CPU time of each model
+    after a warm-up search, the least of ``reps`` runs, both models one after the other
+    in the same run.  Every bundled shelf with a job it can meet (the model-card shelf
+    with the cable-driver job, the others with the line-driver job; the broken shelf left
+    out) and the generated E96 shelf with 20 transistors and this script's job."""
+    cases = []
+    line_driver = (SAMPLES / "line_driver_job.toml").read_text()
+    cable = (SAMPLES / "cable_driver_job.toml").read_text()
+    for csv in sorted(SAMPLES.glob("*.csv")):
+        if csv.name == "broken_shelf.csv":
+            continue                    # every line is a deliberate mistake: no design
+        if csv.name == "characterised_parts.csv":
+            cases.append((csv.name, "cable_driver_job.toml", cable, csv, reps))
+        else:
+            cases.append((csv.name, "line_driver_job.toml", line_driver, csv, reps))
+    with tempfile.TemporaryDirectory() as tmp:
+        e96 = Path(tmp) / "e96_20.csv"
+        _shelf_csv(shelf("E96", 20), e96)
+        cases.append(("generated E96, 20 transistors", "bench JOB", JOB.format(pairs="false"),
+                      e96, 1))
+        print("\n| shelf | job | model | status | search CPU (s) | search wall (s) | "
+              "designs checked at every vertex | CPU ratio exp/cvbe |")
+        print("|---|---|---|---|---|---|---|---|")
+        for name, jname, text, stock, n in cases:
+            res = {}
+            for model in ("constant_vbe", "exponential"):
+                job = Path(tmp) / f"job_{model}.toml"
+                job.write_text(_with_model(text, model))
+                res[model] = _design_cpu(job, stock, n)
+            ratio = res["exponential"][0] / res["constant_vbe"][0]
+            for model, r in res.items():
+                shown = f"{ratio:.2f}" if model == "exponential" else ""
+                print(f"| {name} | {jname} | {model} | {r[2]} | {r[0]:.2f} | {r[1]:.2f} | "
+                      f"{r[3]} | {shown} |", flush=True)
+
+
 PAIR_CASES = [("E12", 20), ("E24", 20), ("E48", 5), ("E48", 20), ("E96", 5), ("E96", 20)]
 
 _ONE_CASE = """
@@ -349,6 +409,9 @@ def main() -> None:
     ap.add_argument("--baseline-only", action="store_true")
     ap.add_argument("--exponential", action="store_true",
                     help="only the exponential vs constant-VBE rows (fresh processes)")
+    ap.add_argument("--exponential-cpu", action="store_true",
+                    help="the exponential vs constant-VBE rows in process: search CPU after "
+                    "a warm-up, the least of three runs")
     ap.add_argument("--sample-only", action="store_true", help="only the bundled sample job")
     ap.add_argument("--pairs", action="store_true",
                     help="only pairs on against off on the generated shelves, one process each")
@@ -358,6 +421,9 @@ def main() -> None:
         return
     if args.exponential:
         exponential_rows()
+        return
+    if args.exponential_cpu:
+        exponential_cpu_rows()
         return
     if args.sample_only:
         print("| job | pairs | status | solve time wall (search CPU) (s) | fresh process wall "
