@@ -546,8 +546,8 @@ class _Search(RowScan):
                 if len(todo) < _VERTEX_BATCH:
                     # the next unchecked designs in key order come along: a check of one
                     # design costs little beside the fixed cost of a check
-                    more = [int(k) for k in order[limit:] if status[k] == 0]
-                    todo += more[:_VERTEX_BATCH - len(todo)]
+                    rest = order[limit:]
+                    todo += [int(k) for k in rest[status[rest] == 0][:_VERTEX_BATCH - len(todo)]]
                 # a batch the time left can hold (by the slowest design so far)
                 n = batch_size
                 if self.vertex_s > 0:
