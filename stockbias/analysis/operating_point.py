@@ -98,6 +98,7 @@ SATURATION_INJECTION_RATIO = 1e-3  # exponential model: BC injection / BE inject
 _NEWTON_TOL_V = 1e-12
 _NEWTON_MAX_ITER = 200
 _NEWTON_POLISH = 2
+_POLISH_BELOW_LOG = -30.0  # no polish where ln(Ir/If) is below this
 _START_STEPS = 3  # fixed-point steps on the Newton start
 _EXP_ARG_MAX = 300.0
 _NODE_INDEX = {"B": 0, "C": 1, "E": 2}
@@ -750,11 +751,14 @@ def solve_exponential(
 
     vcrit_f = nf * vt * np.log(nf * vt / (np.sqrt(2.0) * is_a))
     vcrit_r = nr * vt * np.log(nr * vt / (np.sqrt(2.0) * is_a))
-    converged = False
-    polish = _NEWTON_POLISH
-    for _ in range(_NEWTON_MAX_ITER):
+    per_point = (p0, p1, p2, q0, q1, q2, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f, vcrit_f,
+                 vcrit_r)
+
+    def newton_step(vbe, vbc, a, ext):
+        p0, p1, p2, q0, q1, q2, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f, vcrit_f, \
+            vcrit_r = a
         ib, ic, dib, dic = _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f,
-                                        extra)
+                                        ext)
         f1 = p0 + p1 * ib + p2 * ic - vbe
         f2 = q0 + q1 * ib + q2 * ic - vbc
         j11 = p1 * dib[0] + p2 * dic[0] - 1.0
@@ -767,16 +771,33 @@ def solve_exponential(
         vbe_new, lim_f = _pnjlim(vbe + d_vbe, vbe, nf * vt, vcrit_f)
         vbc_new, lim_r = _pnjlim(vbc + d_vbc, vbc, nr * vt, vcrit_r)
         step = np.maximum(np.abs(vbe_new - vbe), np.abs(vbc_new - vbc))
-        vbe, vbc = vbe_new, vbc_new
-        if converged or np.all((step < _NEWTON_TOL_V) & ~lim_f & ~lim_r):
-            # Quadratic convergence: a few more steps take the KVL residual to
-            # rounding, which matters in deep saturation where If and Ir cancel.
+        return vbe_new, vbc_new, (step < _NEWTON_TOL_V) & ~lim_f & ~lim_r
+
+    converged = False
+    for _ in range(_NEWTON_MAX_ITER):
+        vbe, vbc, done = newton_step(vbe, vbc, per_point, extra)
+        if np.all(done):
             converged = True
-            if polish == 0:
-                break
-            polish -= 1
+            break
     if not converged:
         raise ArithmeticError("exponential operating point: Newton iteration did not converge")
+    # Quadratic convergence: a few more steps take the KVL residual to rounding, which
+    # matters where the collector junction injects (saturation: If and Ir cancel); where
+    # its injection is below 1e-13 of the emitter's the last step already moved less
+    # than 1e-12 V and those points are left as they are.
+    with np.errstate(over="ignore", invalid="ignore"):
+        polish = np.flatnonzero(~(vbc / (nr * vt) - vbe / (nf * vt) < _POLISH_BELOW_LOG))
+    if polish.size:
+        def take(x):
+            return x[polish] if np.ndim(x) else x
+
+        a = tuple(take(x) for x in per_point)
+        ext = None if extra is None else tuple(take(x) for x in extra)
+        vbe_p, vbc_p = vbe[polish], vbc[polish]
+        for _ in range(_NEWTON_POLISH):
+            vbe_p, vbc_p, _done = newton_step(vbe_p, vbc_p, a, ext)
+        vbe, vbc = vbe.copy(), vbc.copy()
+        vbe[polish], vbc[polish] = vbe_p, vbc_p
 
     ib, ic, _, _ = _gp_currents(vbe, vbc, is_a, bf, br, nf, nr, inv_vaf_f, vt, icbo_f, extra)
     vb, vc, ve = resp.voltages(ib, ic).T
