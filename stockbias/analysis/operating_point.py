@@ -364,7 +364,7 @@ def _stage_response(st: _Stage, resistances, vcc, vee) -> _Response:
     small = np.broadcast_shapes(*(a.shape for a in arrays))
     n_small = int(np.prod(small, dtype=np.int64))
     n_full = int(np.prod(st.shape, dtype=np.int64))
-    if len(small) > len(st.shape) or 2 * n_small > n_full:
+    if len(small) > len(st.shape) or 2 * n_small > n_full or n_full < 2048:
         return _linear_response(st.network, st.r, st.rails)
 
     def flat(a):

@@ -379,6 +379,23 @@ def gummel_poon_of(spec: StageSpec, point: StagePoint, temp_c: np.ndarray) -> de
     d = spec.device
     if d.card is not None:
         return _card_gummel_poon(d, point, temp_c)
+    parts = [_array_key(x) for x in (temp_c, point.vbe, point.hfe, d.nf, d.br, d.nr, d.vaf_v,
+                                     d.xti, d.eg_ev, d.xtb, d.hfe_test_ic, d.vbe_min,
+                                     d.vbe_max, 0.0 if d.is_a is None else d.is_a)]
+    if any(k is None for k in parts):
+        return _row_gummel_poon(d, point, temp_c)
+    key = ("row", d.is_a is None, *parts)
+    got = _CARD_GP.get(key)
+    if got is None:
+        if len(_CARD_GP) >= 256:
+            _CARD_GP.clear()
+        got = _CARD_GP[key] = _row_gummel_poon(d, point, temp_c)
+    return got
+
+
+def _row_gummel_poon(d: DeviceSpec, point: StagePoint, temp_c: np.ndarray
+                     ) -> device.GummelPoon:
+    """:func:`gummel_poon_of` for a row without a model card (not remembered)."""
     t25 = device.STOCK_REFERENCE_C + device.CELSIUS_TO_KELVIN
     nf = np.asarray(d.nf, dtype=float)
     if d.is_a is None:
