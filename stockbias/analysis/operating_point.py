@@ -358,13 +358,15 @@ def _stage_response(st: _Stage, resistances, vcc, vee) -> _Response:
     """:func:`_linear_response` of a stage, solved once per distinct resistor and rail
     set: the device arrays (β, IS, temperature …) often add axes the network does not
     depend on, and the response is then broadcast along them (the same numbers)."""
+    n_full = int(np.prod(st.shape, dtype=np.int64))
+    if n_full < 2048:
+        return _linear_response(st.network, st.r, st.rails)
     r = _resistances(st.network, resistances)
     rails = rail_voltages(st.network, st.polarity, vcc, vee)
     arrays = [*r.values(), *(np.asarray(v, dtype=float) for v in rails.values())]
     small = np.broadcast_shapes(*(a.shape for a in arrays))
     n_small = int(np.prod(small, dtype=np.int64))
-    n_full = int(np.prod(st.shape, dtype=np.int64))
-    if len(small) > len(st.shape) or 2 * n_small > n_full or n_full < 2048:
+    if len(small) > len(st.shape) or 2 * n_small > n_full:
         return _linear_response(st.network, st.r, st.rails)
 
     def flat(a):
