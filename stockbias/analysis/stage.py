@@ -518,11 +518,17 @@ def self_heated_temperature(spec: StageSpec, point: StagePoint) -> np.ndarray:
     ambient = np.asarray(point.ambient_c, dtype=float)
     theta = spec.device.theta_ja_effective
 
+    op0 = solve_point(spec, point)[0]
+    shape = op0.shape
+    at_ambient = np.broadcast_to(ambient, shape)
+
     def pd_of_tj(tj: np.ndarray) -> np.ndarray:
-        op, _ = solve_point(spec, point, tj)
+        if np.shape(tj) == shape and np.array_equal(tj, at_ambient):
+            op = op0        # the device at the ambient: solved above
+        else:
+            op, _ = solve_point(spec, point, tj)
         return np.maximum(np.asarray(op.pd, dtype=float), 0.0)
 
-    shape = solve_point(spec, point)[0].shape
     sh = self_heated_point(pd_of_tj, np.broadcast_to(ambient, shape),
                            np.broadcast_to(theta, shape), tol=1e-4)
     return np.asarray(sh.tj_c, dtype=float)
