@@ -226,15 +226,15 @@ class GummelPoon:
     def __post_init__(self) -> None:
         for name in ("is_a", "bf", "br", "nf", "nr", "vaf", "ne", "nc", "ikf", "ikr", "var"):
             value = np.asarray(getattr(self, name), dtype=float)
-            if np.any(~(value > 0)):
+            if not (value > 0).all():
                 raise ValueError(f"Gummel-Poon parameter {name} must be positive, got {value}")
 
     @property
     def full(self) -> bool:
         """True when a term beyond the simple transport model is present."""
-        return bool(np.any(np.asarray(self.ise) > 0) or np.any(np.asarray(self.isc) > 0)
-                    or np.any(np.isfinite(self.ikf)) or np.any(np.isfinite(self.ikr))
-                    or np.any(np.isfinite(self.var)) or self.rb > 0 or self.re > 0
+        return bool((np.asarray(self.ise) > 0).any() or (np.asarray(self.isc) > 0).any()
+                    or np.isfinite(self.ikf).any() or np.isfinite(self.ikr).any()
+                    or np.isfinite(self.var).any() or self.rb > 0 or self.re > 0
                     or self.rc > 0)
 
     def extras(self) -> tuple:
