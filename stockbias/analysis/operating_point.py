@@ -355,6 +355,7 @@ def _linear_response(network: Network, r: dict[str, np.ndarray], rails: dict[str
 
 
 _RESPONSES: dict[tuple, tuple[tuple, _Response]] = {}
+_RESPONSES_BYTES = 64 * 2**20   # the most the remembered responses hold
 
 
 def _remembered_response(st: _Stage, resistances, vcc, vee) -> _Response:
@@ -370,7 +371,11 @@ def _remembered_response(st: _Stage, resistances, vcc, vee) -> _Response:
             and got[0][1] is vcc and got[0][2] is vee:
         return got[1]
     resp = _stage_response(st, resistances, vcc, vee)
-    if len(_RESPONSES) >= 16:
+    size = resp.v0.nbytes * 3
+    if size > _RESPONSES_BYTES:
+        return resp                 # too large to keep
+    held = sum(r.v0.nbytes * 3 for _refs, r in _RESPONSES.values())
+    if len(_RESPONSES) >= 16 or held + size > _RESPONSES_BYTES:
         _RESPONSES.clear()
     _RESPONSES[key] = (refs, resp)
     return resp
