@@ -387,7 +387,7 @@ def gummel_poon_of(spec: StageSpec, point: StagePoint, temp_c: np.ndarray) -> de
     key = ("row", d.is_a is None, *parts)
     got = _CARD_GP.get(key)
     if got is None:
-        if len(_CARD_GP) >= 256:
+        if len(_CARD_GP) >= 64:
             _CARD_GP.clear()
         got = _CARD_GP[key] = _row_gummel_poon(d, point, temp_c)
     return got
@@ -410,7 +410,7 @@ def _row_gummel_poon(d: DeviceSpec, point: StagePoint, temp_c: np.ndarray
 
 
 _CARD_GP: dict[tuple, device.GummelPoon] = {}
-_CARD_GP_SMALL = 4096  # arrays up to this size (the vertex axes) take part in the cache key
+_CARD_GP_SMALL = 1024  # arrays up to this size (the vertex axes) take part in the cache key
 
 
 def _array_key(x) -> tuple | None:
@@ -431,7 +431,7 @@ def _card_gummel_poon(d: DeviceSpec, point: StagePoint, temp_c: np.ndarray
     key = (d.is_a is None, tuple(sorted(d.card.items())), *parts)
     got = _CARD_GP.get(key)
     if got is None:
-        if len(_CARD_GP) >= 256:
+        if len(_CARD_GP) >= 64:
             _CARD_GP.clear()
         got = _CARD_GP[key] = _card_device(d, point, temp_c)
     return got
