@@ -4,8 +4,10 @@ searches, their outputs and exit codes (called from :mod:`.design_cmd` and
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import typer
 
@@ -23,25 +25,14 @@ def run_yield_design(outs: OutputSet, job: Job, inv: Inventory, job_file: Path,
                      assumed: list[str]) -> None:
     """Search, write --save, commit the outputs, print; exit 1 when no design qualifies."""
     from ..render.console import make_console
-    from ..render.json_out import dumps
     from ..search.yield_search import yield_design
-    from ..selection import input_record
 
-    executor = _executor(workers, cluster)
-    try:
-        with search_progress(json_out, "yield search") as progress:
-            result = yield_design(job, inv, top=top, time_limit_s=time_limit,
-                                  executor=executor, progress=progress)
-    finally:
-        close = getattr(executor, "close", None)
-        if close is not None:
-            close()
+    with _executor(workers, cluster) as executor, \
+            search_progress(json_out, "yield search") as progress:
+        result = yield_design(job, inv, top=top, time_limit_s=time_limit,
+                              executor=executor, progress=progress)
     result.assumptions[:0] = assumed
-    payload = result.to_dict()
-    payload["job"] = str(job_file)
-    payload["inventory"] = str(inventory)
-    payload["inputs"] = {"job": input_record(job_file), "inventory": input_record(inventory)}
-    text = dumps(payload)
+    text = _payload_text(result, job_file, inventory)
     if save is not None:
         outs.write_text("--save", text + "\n")
     written = outs.commit()
@@ -58,11 +49,32 @@ def run_yield_design(outs: OutputSet, job: Job, inv: Inventory, job_file: Path,
         raise typer.Exit(1)
 
 
-def _executor(workers: int, cluster: str | None):
+@contextmanager
+def _executor(workers: int, cluster: str | None) -> Iterator[Any]:
+    """The executor a yield search runs on, closed when the search ends."""
     from ..executor import InProcess, make_executor
 
     # candidates are few and short: local workers only pay off when asked for
-    return make_executor(workers or None, cluster) if (cluster or workers > 1) else InProcess()
+    executor = (make_executor(workers or None, cluster) if (cluster or workers > 1)
+                else InProcess())
+    try:
+        yield executor
+    finally:
+        close = getattr(executor, "close", None)
+        if close is not None:
+            close()
+
+
+def _payload_text(result: Any, job_file: Path, inventory: Path) -> str:
+    """The result's JSON with the input files and their records."""
+    from ..render.json_out import dumps
+    from ..selection import input_record
+
+    payload = result.to_dict()
+    payload["job"] = str(job_file)
+    payload["inventory"] = str(inventory)
+    payload["inputs"] = {"job": input_record(job_file), "inventory": input_record(inventory)}
+    return dumps(payload)
 
 
 def run_yield_board(outs: OutputSet, job: Job, inv: Inventory, job_file: Path,
@@ -73,25 +85,14 @@ def run_yield_board(outs: OutputSet, job: Job, inv: Inventory, job_file: Path,
     """`design BOARD` with a yield target in some stage: search, write --save and --report,
     commit, print; exit 1 when no board qualifies."""
     from ..render.console import make_console
-    from ..render.json_out import dumps
     from ..search.yield_board import yield_board
-    from ..selection import input_record
 
-    executor = _executor(workers, cluster)
-    try:
-        with search_progress(json_out, "yield board search") as progress:
-            result = yield_board(job, inv, top=top, time_limit_s=time_limit,
-                                 executor=executor, progress=progress)
-    finally:
-        close = getattr(executor, "close", None)
-        if close is not None:
-            close()
+    with _executor(workers, cluster) as executor, \
+            search_progress(json_out, "yield board search") as progress:
+        result = yield_board(job, inv, top=top, time_limit_s=time_limit,
+                             executor=executor, progress=progress)
     result.assumptions[:0] = [a for a in assumed if a not in result.assumptions]
-    payload = result.to_dict()
-    payload["job"] = str(job_file)
-    payload["inventory"] = str(inventory)
-    payload["inputs"] = {"job": input_record(job_file), "inventory": input_record(inventory)}
-    text = dumps(payload)
+    text = _payload_text(result, job_file, inventory)
     if save is not None:
         outs.write_text("--save", text + "\n")
     if report is not None:
@@ -142,12 +143,7 @@ def run_yield_consolidate(job: Job, inv: Inventory, *, keep, objectives, time_li
     consolidation's for the report and the change list)."""
     from ..search.yield_board import yield_consolidate
 
-    executor = _executor(workers, cluster)
-    try:
+    with _executor(workers, cluster) as executor:
         return yield_consolidate(job, inv, keep=keep, objectives=objectives,
                                  time_limit_s=time_limit, keep_purpose=keep_purpose,
                                  purpose=purpose, executor=executor, progress=progress)
-    finally:
-        close = getattr(executor, "close", None)
-        if close is not None:
-            close()
