@@ -36,7 +36,7 @@ Axes of the tolerance box (DESIGN §2, "Extreme value analysis"):
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -384,13 +384,8 @@ def gummel_poon_of(spec: StageSpec, point: StagePoint, temp_c: np.ndarray) -> de
                                      d.vbe_max, 0.0 if d.is_a is None else d.is_a)]
     if any(k is None for k in parts):
         return _row_gummel_poon(d, point, temp_c)
-    key = ("row", d.is_a is None, *parts)
-    got = _CARD_GP.get(key)
-    if got is None:
-        if len(_CARD_GP) >= 64:
-            _CARD_GP.clear()
-        got = _CARD_GP[key] = _row_gummel_poon(d, point, temp_c)
-    return got
+    return _remembered(("row", d.is_a is None, *parts),
+                       lambda: _row_gummel_poon(d, point, temp_c))
 
 
 def _row_gummel_poon(d: DeviceSpec, point: StagePoint, temp_c: np.ndarray
@@ -413,6 +408,16 @@ _CARD_GP: dict[tuple, device.GummelPoon] = {}
 _CARD_GP_SMALL = 1024  # arrays up to this size (the vertex axes) take part in the cache key
 
 
+def _remembered(key: tuple, build: Callable[[], device.GummelPoon]) -> device.GummelPoon:
+    """The device under ``key`` in :data:`_CARD_GP`, built once (at most 64 kept)."""
+    got = _CARD_GP.get(key)
+    if got is None:
+        if len(_CARD_GP) >= 64:
+            _CARD_GP.clear()
+        got = _CARD_GP[key] = build()
+    return got
+
+
 def _array_key(x) -> tuple | None:
     a = np.asarray(x, dtype=float)
     return (a.shape, a.tobytes()) if a.size <= _CARD_GP_SMALL else None
@@ -428,13 +433,8 @@ def _card_gummel_poon(d: DeviceSpec, point: StagePoint, temp_c: np.ndarray
                                      d.hfe_max, 0.0 if d.is_a is None else d.is_a)]
     if any(k is None for k in parts):
         return _card_device(d, point, temp_c)
-    key = (d.is_a is None, tuple(sorted(d.card.items())), *parts)
-    got = _CARD_GP.get(key)
-    if got is None:
-        if len(_CARD_GP) >= 64:
-            _CARD_GP.clear()
-        got = _CARD_GP[key] = _card_device(d, point, temp_c)
-    return got
+    return _remembered((d.is_a is None, tuple(sorted(d.card.items())), *parts),
+                       lambda: _card_device(d, point, temp_c))
 
 
 def _card_device(d: DeviceSpec, point: StagePoint, temp_c: np.ndarray
