@@ -14,7 +14,7 @@ from pathlib import Path
 import jsonschema
 import numpy as np
 import pytest
-from scipy import stats
+from independent_mc import divider_passes
 from typer.testing import CliRunner
 
 from stockbias.cli.app import app
@@ -100,20 +100,8 @@ def stage_passes(values: dict[str, tuple[float, float]], window_pct: float, n: i
     VBE, the divider's closed-form active-region solution (constant VBE, no leakage,
     25 °C) at both supply extremes; a board passes when IC stays in the window and
     VCE ≥ 2 V at both."""
-    lo, hi = _window(window_pct)
-    r = {role: v * (1 + tol / 3 * stats.truncnorm.rvs(-3, 3, size=n, random_state=rng))
-         for role, (v, tol) in values.items()}
-    beta = rng.uniform(*HFE, n)
-    vbe = rng.uniform(*VBE, n)
-    ok = np.ones(n, dtype=bool)
-    for vcc in (VCC * (1 - VCC_TOL), VCC * (1 + VCC_TOL)):
-        vbb = vcc * r["R2"] / (r["R1"] + r["R2"])
-        rbb = r["R1"] * r["R2"] / (r["R1"] + r["R2"])
-        ie = (vbb - vbe) / (r["RE"] + rbb / (beta + 1))
-        ic = beta / (beta + 1) * ie
-        vce = vcc - ic * r["RC"] - ie * r["RE"]
-        ok &= (ic >= lo) & (ic <= hi) & (vce >= VCE_MIN)
-    return ok
+    return divider_passes(values, hfe=HFE, vbe=VBE, vcc=VCC, vcc_tol=VCC_TOL,
+                          ic_window=_window(window_pct), vce_min=VCE_MIN, n=n, rng=rng)
 
 
 def _values(stage) -> dict[str, tuple[float, float]]:

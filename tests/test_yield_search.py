@@ -10,7 +10,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from scipy import stats
+from independent_mc import divider_passes
 from typer.testing import CliRunner
 
 from stockbias.analysis.statistics import one_sided_bounds
@@ -71,19 +71,9 @@ def independent_yield(values: dict[str, tuple[float, float]], n: int = 40_000,
     resistor (σ = tol/3, cut at ±tol), uniform hFE and VBE, the divider's closed-form
     active-region solution (constant VBE, no leakage, 25 °C) at both supply extremes; a
     board passes when IC stays in the window and VCE ≥ 2 V at both."""
-    rng = np.random.default_rng(seed)
-    r = {role: v * (1 + tol / 3 * stats.truncnorm.rvs(-3, 3, size=n, random_state=rng))
-         for role, (v, tol) in values.items()}
-    beta = rng.uniform(*HFE, n)
-    vbe = rng.uniform(*VBE, n)
-    ok = np.ones(n, dtype=bool)
-    for vcc in (VCC * (1 - VCC_TOL), VCC * (1 + VCC_TOL)):
-        vbb = vcc * r["R2"] / (r["R1"] + r["R2"])
-        rbb = r["R1"] * r["R2"] / (r["R1"] + r["R2"])
-        ie = (vbb - vbe) / (r["RE"] + rbb / (beta + 1))
-        ic = beta / (beta + 1) * ie
-        vce = vcc - ic * r["RC"] - ie * r["RE"]
-        ok &= (ic >= IC_MIN) & (ic <= IC_MAX) & (vce >= VCE_MIN)
+    ok = divider_passes(values, hfe=HFE, vbe=VBE, vcc=VCC, vcc_tol=VCC_TOL,
+                        ic_window=(IC_MIN, IC_MAX), vce_min=VCE_MIN, n=n,
+                        rng=np.random.default_rng(seed))
     return float(ok.mean())
 
 

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from scipy import stats
+from independent_mc import divider_passes
 from test_yield_search import HEADER, JOB, PRECISE, TRANSISTOR, WIDE
 from typer.testing import CliRunner
 
@@ -59,19 +59,9 @@ def independent_yield(values: dict[str, tuple[float, float]], part_id: str,
     closed-form active-region solution (constant VBE, no leakage, 25 °C) at both supply
     extremes; a board passes when IC stays in the window and VCE ≥ 2 V at both."""
     (h0, h1), (v0, v1) = DEVICES[part_id]
-    rng = np.random.default_rng(seed)
-    r = {role: v * (1 + tol / 3 * stats.truncnorm.rvs(-3, 3, size=n, random_state=rng))
-         for role, (v, tol) in values.items()}
-    beta = rng.uniform(h0, h1, n)
-    vbe = rng.uniform(v0, v1, n)
-    ok = np.ones(n, dtype=bool)
-    for vcc in (VCC * (1 - VCC_TOL), VCC * (1 + VCC_TOL)):
-        vbb = vcc * r["R2"] / (r["R1"] + r["R2"])
-        rbb = r["R1"] * r["R2"] / (r["R1"] + r["R2"])
-        ie = (vbb - vbe) / (r["RE"] + rbb / (beta + 1))
-        ic = beta / (beta + 1) * ie
-        vce = vcc - ic * r["RC"] - ie * r["RE"]
-        ok &= (ic >= IC_MIN) & (ic <= IC_MAX) & (vce >= VCE_MIN)
+    ok = divider_passes(values, hfe=(h0, h1), vbe=(v0, v1), vcc=VCC, vcc_tol=VCC_TOL,
+                        ic_window=(IC_MIN, IC_MAX), vce_min=VCE_MIN, n=n,
+                        rng=np.random.default_rng(seed))
     return float(ok.mean())
 
 
