@@ -46,7 +46,7 @@ class FakeClock:
 
 
 def test_design_cut_during_the_final_checks_shows_only_checked_designs(monkeypatch):
-    import stockbias.search.design as design_module
+    import stockbias.search.design_pool as pool_module
     from stockbias.search.design import design
 
     inv = generated_shelf(120, 6, seed=3)
@@ -54,7 +54,7 @@ def test_design_cut_during_the_final_checks_shows_only_checked_designs(monkeypat
     full = design(job, inv)
     assert full.status == "optimal" and len(full.designs) == 3
     clock = FakeClock(step=2.0)
-    monkeypatch.setattr(design_module, "analyze_stage", clock.wrap(design_module.analyze_stage))
+    monkeypatch.setattr(pool_module, "analyze_stage", clock.wrap(pool_module.analyze_stage))
     # 10 s, each full check 2 s, five designs asked for: the search has 9 s, so after its
     # fourth check (at 8 s) a fifth could not end in time and the search stops there, with
     # networks that pass every vertex still unchecked; the checks after the search have
