@@ -9,7 +9,8 @@ temperature, ``pd_of_tj``, is supplied by the caller as a vectorised callable
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -66,7 +67,7 @@ class SelfHeatedPoint:
         above the ambient; the cap where the stage runs away; NaN where the
         dissipation could not be evaluated (NaN, or negative at the ambient).
     pd_w : ndarray of float
-        Dissipation at ``tj_c``, watt.
+        Dissipation at ``tj_c``, watt, evaluated when first read.
     converged : ndarray of bool
         True where the fixed point was found to within the tolerance.
     runaway : ndarray of bool
@@ -75,9 +76,15 @@ class SelfHeatedPoint:
     """
 
     tj_c: NDArray[np.float64]
-    pd_w: NDArray[np.float64]
     converged: NDArray[np.bool_]
     runaway: NDArray[np.bool_]
+    dissipation: Callable[[], NDArray[np.float64]] = field(repr=False, compare=False)
+
+    @cached_property
+    def pd_w(self) -> NDArray[np.float64]:
+        """Dissipation at ``tj_c``, watt (NaN where ``tj_c`` is); one more call of the
+        dissipation, made on first use only (most callers want the temperature alone)."""
+        return self.dissipation()
 
 
 def self_heated_point(
@@ -153,6 +160,7 @@ def self_heated_point(
     hi = np.full(shape, np.nan)
     g_hi = np.full(shape, np.nan)
     bracketed = np.zeros(shape, dtype=bool)
+    guessed = np.zeros(shape, dtype=bool)  # the secant trial used once
 
     # March: first step the size of the first fixed-point increment (at least
     # 0.5 K), doubling while g stays ≤ 0; each such point raises the low end.
@@ -177,11 +185,21 @@ def self_heated_point(
         g_lo = np.where(exact, 0.0, g_lo)
         done |= exact
         still = active & ~newly_bad & (g_trial < 0.0)
+        # The secant through the old and new low ends predicts the root; where it
+        # lies ahead within the doubled step, try once just past it (a quarter of the
+        # tolerance, or a tenth of the distance), so that a stage whose first
+        # fixed-point iterate already lands close is bracketed tightly.
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+            guess = trial - g_trial * (trial - lo) / (g_trial - g_lo)
+        guess = guess + np.maximum(0.25 * tol, 0.1 * (guess - trial))
+        use = still & ~guessed & np.isfinite(guess) & (guess > trial) \
+            & (guess < trial + 2.0 * step)
+        guessed |= still
         lo = np.where(still, trial, lo)
         g_lo = np.where(still, g_trial, g_lo)
         runaway |= still & (trial >= tj_cap_c)
         step = np.where(still, 2.0 * step, step)
-        trial = np.where(still, np.minimum(lo + step, tj_cap_c), trial)
+        trial = np.where(still, np.minimum(np.where(use, guess, lo + step), tj_cap_c), trial)
 
     # Refine inside [lo, hi] by Illinois false position.
     side = np.zeros(shape, dtype=np.int8)  # which end moved last: -1 low, +1 high
@@ -196,6 +214,11 @@ def self_heated_point(
         with np.errstate(invalid="ignore", divide="ignore"):
             x = (lo * g_hi - hi * g_lo) / (g_hi - g_lo)
         x = np.where(np.isfinite(x) & (x > lo) & (x < hi), x, 0.5 * (lo + hi))
+        # False position converges from one side; a trial a quarter tolerance past
+        # the estimate, toward the farther end, lands on the root's other side once
+        # the estimate is that good, and closes the bracket in one step.
+        push = np.where(hi - x > x - lo, 0.25 * tol, -0.25 * tol)
+        x = np.where((x + push > lo) & (x + push < hi), x + push, x)
         g_x, _ = residual(np.where(active, x, lo))
         newly_bad = active & np.isnan(g_x)
         bad |= newly_bad
@@ -221,8 +244,12 @@ def self_heated_point(
     tj = np.where(runaway, tj_cap_c, tj)
     tj = np.where(bad, np.nan, tj)
     converged &= ~runaway & ~bad
-    pd = np.where(bad, np.nan, np.broadcast_to(power(np.where(bad, ta, tj)), shape))
-    return SelfHeatedPoint(tj_c=tj, pd_w=pd, converged=converged, runaway=runaway)
+
+    def dissipation() -> NDArray[np.float64]:
+        return np.where(bad, np.nan, np.broadcast_to(power(np.where(bad, ta, tj)), shape))
+
+    return SelfHeatedPoint(tj_c=tj, converged=converged, runaway=runaway,
+                           dissipation=dissipation)
 
 
 def runaway_margin(
