@@ -507,18 +507,21 @@ def _exponential_small_signal(spec: StageSpec, point: StagePoint, op: OperatingP
 SMALL_SIGNAL_QUANTITIES = frozenset({"gm", "gain", "gain_abs", "rin", "swing_to_cutoff"})
 
 
-def self_heated_temperature(spec: StageSpec, point: StagePoint) -> np.ndarray:
+def self_heated_temperature(spec: StageSpec, point: StagePoint,
+                            ambient_op: OperatingPoint | None = None) -> np.ndarray:
     """Junction temperature TJ = TA + θJA·PD(TJ) at each point (fixed point), °C.
 
     The device is evaluated at TJ, the resistors at the ambient.  Where no fixed
-    point exists below 400 °C (thermal runaway) TJ is the cap.
+    point exists below 400 °C (thermal runaway) TJ is the cap.  ``ambient_op``, the
+    operating point already solved at ``point`` with the device at the ambient (the
+    ``op`` of :func:`evaluate` there), spares that solve.
     """
     from .thermal import self_heated_point
 
     ambient = np.asarray(point.ambient_c, dtype=float)
     theta = spec.device.theta_ja_effective
 
-    op0 = solve_point(spec, point)[0]
+    op0 = solve_point(spec, point)[0] if ambient_op is None else ambient_op
     shape = op0.shape
     at_ambient = np.broadcast_to(ambient, shape)
 

@@ -269,9 +269,10 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
 
     def add_points(u: np.ndarray) -> None:
         pts = point_at_unit(spec, axes, u)
-        add(u, evaluate(spec, pts), None)
+        cold = evaluate(spec, pts)
+        add(u, cold, None)
         if heat:
-            tj = self_heated_temperature(spec, pts)
+            tj = self_heated_temperature(spec, pts, cold.op)
             add(u, evaluate(spec, pts, device_temp_c=tj), tj)
 
     add(bits, ev, None)
@@ -280,7 +281,7 @@ def worst_case(spec: StageSpec, *, refine: bool = True, self_heating: bool = Tru
     if heat:
         # DESIGN §2: where θJA is known, the device is also evaluated at its self-heated
         # junction temperature; every bound covers both.
-        tj_v = self_heated_temperature(spec, point)
+        tj_v = self_heated_temperature(spec, point, ev.op)
         heated = evaluate(spec, point, device_temp_c=tj_v)
         add(bits, heated, tj_v)
         region = np.concatenate([region, np.asarray(heated.op.region).reshape(-1)])

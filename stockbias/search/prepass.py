@@ -669,7 +669,8 @@ def vertex_check(job: Job, stage: Stage, network: str, q: Transistor,
         if not math.isnan(float(np.asarray(dev.theta_ja, dtype=float))):
             # as check does: the device also at its self-heated junction temperature
             evs.append(evaluate(spec, point,
-                                device_temp_c=self_heated_temperature(spec, point)))
+                                device_temp_c=self_heated_temperature(spec, point,
+                                                                      evs[0].op)))
         low: dict[str, np.ndarray] = {}
         high: dict[str, np.ndarray] = {}
         with np.errstate(all="ignore"), warnings.catch_warnings():
