@@ -139,3 +139,62 @@ def test_shape_set_by_dissipation_callable() -> None:
     res = self_heated_point(lambda tj: a + 1e-3 * tj, 40.0, 200.0)
     assert res.tj_c.shape == (3,)
     np.testing.assert_allclose(res.tj_c, (40.0 + 200.0 * a) / 0.8, atol=1e-6)  # algebra
+
+
+def _lowest_root(g, lo: float, hi: float) -> float:
+    """The first sign change of ``g`` above ``lo`` on a 0.01 K grid, refined by scipy's
+    brentq to 1e-12 K (an independent reference for the fixed point)."""
+    from scipy.optimize import brentq
+
+    t = np.arange(lo, hi, 0.01)
+    v = g(t)
+    i = int(np.flatnonzero(v > 0.0)[0])
+    return float(brentq(g, t[i - 1], t[i], xtol=1e-12))
+
+
+def test_fixed_point_random_curved_cases_against_brentq() -> None:
+    # generated cases: PD(TJ) = a + c·exp((TJ − TA)/τ), loop gains θ·∂PD/∂TJ at the
+    # ambient from −0.6 to 0.25 (rising and falling dissipation), self-heating up to about
+    # 45 K; the reference is the lowest root of TJ − TA − θ·PD(TJ) found by a grid scan
+    # and scipy.optimize.brentq
+    rng = np.random.default_rng(2718)
+    n = 300
+    ta = rng.uniform(-40.0, 85.0, n)
+    theta = rng.uniform(50.0, 250.0, n)
+    tau = rng.uniform(40.0, 80.0, n)
+    gain = rng.uniform(-0.6, 0.25, n)      # θ·c/τ: the loop gain of the curved term
+    c = gain * tau / theta
+    a = rng.uniform(0.0, 0.1, n) + np.maximum(-c, 0.0)   # PD ≥ 0 near the ambient
+    res = self_heated_point(lambda tj: a + c * np.exp((tj - ta) / tau), ta, theta)
+    for i in range(n):
+        def g(t: np.ndarray, i: int = i) -> np.ndarray:
+            return t - ta[i] - theta[i] * (a[i] + c[i] * np.exp((t - ta[i]) / tau[i]))
+        try:
+            ref = _lowest_root(g, ta[i], 400.0)
+        except IndexError:          # no sign change below the cap: runaway
+            assert res.runaway[i]
+            continue
+        assert res.converged[i] and not res.runaway[i]
+        assert res.tj_c[i] == pytest.approx(ref, abs=1e-6)
+    ok = res.converged
+    np.testing.assert_allclose(res.pd_w[ok], (a + c * np.exp((res.tj_c - ta) / tau))[ok],
+                               rtol=1e-12)
+
+
+def test_dissipation_at_root_only_on_read_and_few_evaluations() -> None:
+    # a weakly coupled stage (θ·b = 0.02) settles within five evaluations of PD: the
+    # ambient, the first fixed-point iterate, the trial past the secant's root and at most
+    # two closing steps; PD at the root is evaluated once, when first read
+    calls = []
+
+    def pd(tj: np.ndarray) -> np.ndarray:
+        calls.append(np.array(tj, dtype=float))
+        return 0.2 + 1e-4 * np.asarray(tj)
+
+    res = self_heated_point(pd, 25.0, 200.0)
+    assert len(calls) <= 5
+    assert float(res.tj_c) == pytest.approx((25.0 + 200.0 * 0.2) / (1.0 - 0.02), abs=1e-6)
+    n = len(calls)
+    assert float(res.pd_w) == pytest.approx(0.2 + 1e-4 * float(res.tj_c), abs=1e-12)
+    assert float(res.pd_w) == pytest.approx(0.2 + 1e-4 * float(res.tj_c), abs=1e-12)
+    assert len(calls) == n + 1

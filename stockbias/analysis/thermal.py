@@ -161,6 +161,8 @@ def self_heated_point(
     g_hi = np.full(shape, np.nan)
     bracketed = np.zeros(shape, dtype=bool)
     guessed = np.zeros(shape, dtype=bool)  # the secant trial used once
+    on_guess = np.zeros(shape, dtype=bool)  # the next trial is the secant's
+    fallback = np.full(shape, np.nan)        # the march's point after it
 
     # March: first step the size of the first fixed-point increment (at least
     # 0.5 K), doubling while g stays ≤ 0; each such point raises the low end.
@@ -188,18 +190,23 @@ def self_heated_point(
         # The secant through the old and new low ends predicts the root; where it
         # lies ahead within the doubled step, try once just past it (a quarter of the
         # tolerance, or a tenth of the distance), so that a stage whose first
-        # fixed-point iterate already lands close is bracketed tightly.
+        # fixed-point iterate already lands close is bracketed tightly.  If that trial
+        # falls short, the march resumes at the point it would have tried: the
+        # doubling march's points are all still visited, one trial added before them.
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
             guess = trial - g_trial * (trial - lo) / (g_trial - g_lo)
         guess = guess + np.maximum(0.25 * tol, 0.1 * (guess - trial))
         use = still & ~guessed & np.isfinite(guess) & (guess > trial) \
             & (guess < trial + 2.0 * step)
-        guessed |= still
         lo = np.where(still, trial, lo)
         g_lo = np.where(still, g_trial, g_lo)
         runaway |= still & (trial >= tj_cap_c)
-        step = np.where(still, 2.0 * step, step)
-        trial = np.where(still, np.minimum(np.where(use, guess, lo + step), tj_cap_c), trial)
+        step = np.where(still & ~on_guess, 2.0 * step, step)
+        march = np.where(still & on_guess, fallback, np.minimum(lo + step, tj_cap_c))
+        fallback = np.where(use, march, fallback)
+        trial = np.where(still, np.where(use, np.minimum(guess, tj_cap_c), march), trial)
+        on_guess = use
+        guessed |= still
 
     # Refine inside [lo, hi] by Illinois false position.
     side = np.zeros(shape, dtype=np.int8)  # which end moved last: -1 low, +1 high
