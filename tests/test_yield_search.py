@@ -106,6 +106,14 @@ def test_worst_case_has_no_design_and_the_yield_target_has_one(shelves) -> None:
     assert res.designs and res.status == "feasible"
     for d in res.designs:
         assert independent_yield(_values(d.design)) >= 0.95
+        # the margin shown is the real shelf's worst case, here outside the window (no
+        # worst-case design exists), not the sub-box's on which the design was found;
+        # hand calculation from the check's own IC bounds
+        t = job.stage.target
+        b = d.design.check.worst.bounds["ic"]
+        by_hand = min(b.min - t.ic_min, t.ic_max - b.max) / t.ic
+        assert d.design.ic_margin == pytest.approx(by_hand, rel=1e-12, abs=1e-15)
+        assert d.design.ic_margin < 0
 
 
 def test_box_mass_by_hand() -> None:

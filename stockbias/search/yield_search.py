@@ -355,8 +355,11 @@ def yield_design(job: Job, inventory: Inventory, *, top: int | None = None,
         seen_nets.add(_network(c.design))
         evidence = "worst case" if c.level == 0 else (
             "sub-box" if c.mass >= y_min else "sampled")
+        # the margin of the design on the real shelf (a sub-box design's search margin is
+        # that of its sub-box, which the full box's worst case may overstep)
         chosen.append(YieldDesign(len(chosen) + 1, replace(c.design, check=check,
-                                                           rank=len(chosen) + 1),
+                                                           rank=len(chosen) + 1,
+                                                           ic_margin=check.ic_margin),
                                   evidence, levels[c.level], c.mass, c.judged, c.judged_low,
                                   check, check_low))
     seconds = time.monotonic() - t0
